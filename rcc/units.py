@@ -1,0 +1,220 @@
+"""Parsing of physical quantities written in design files.
+
+A value is either a plain number, taken in SI base units, or a string with a
+number, an optional SI prefix and a unit: ``"4.7 uF"``, ``"4.7 µF"``,
+``"1.5 Mohm"``, ``"19.3 mm^2"``, ``"-10 degC"``.  Unit arithmetic and the
+dimension check are delegated to the pint library; this module only adds the
+table of dimensions the design file uses and error messages in the
+vocabulary of the file.
+
+Temperatures are kept in kelvin inside the package and shown in degrees
+Celsius; everything else is kept in SI base units.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+
+from scipy.constants import zero_Celsius
+
+__all__ = [
+    "DIMENSIONS",
+    "Dimension",
+    "UnitError",
+    "parse_quantity",
+    "kelvin_to_celsius",
+    "celsius_to_kelvin",
+    "format_si",
+]
+
+
+class UnitError(ValueError):
+    """A value could not be read as a quantity of the expected dimension."""
+
+
+@dataclass(frozen=True)
+class Dimension:
+    """A physical dimension a design-file key can carry.
+
+    Attributes
+    ----------
+    name : str
+        Word used in messages, e.g. ``"capacitance"``.
+    unit : str
+        SI unit symbol used for display, e.g. ``"F"``.
+    pint_unit : str
+        Unit expression understood by pint with the same dimensionality.
+    """
+
+    name: str
+    unit: str
+    pint_unit: str
+
+
+DIMENSIONS: dict[str, Dimension] = {
+    d.name: d
+    for d in (
+        Dimension("voltage", "V", "volt"),
+        Dimension("current", "A", "ampere"),
+        Dimension("resistance", "ohm", "ohm"),
+        Dimension("capacitance", "F", "farad"),
+        Dimension("inductance", "H", "henry"),
+        Dimension("time", "s", "second"),
+        Dimension("frequency", "Hz", "hertz"),
+        Dimension("area", "m^2", "meter**2"),
+        Dimension("flux density", "T", "tesla"),
+        Dimension("temperature", "K", "kelvin"),
+        Dimension("power", "W", "watt"),
+        Dimension("voltage per kelvin", "V/K", "volt/kelvin"),
+        Dimension("fraction per kelvin", "1/K", "1/kelvin"),
+        Dimension("dimensionless", "", "dimensionless"),
+    )
+}
+
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+@lru_cache(maxsize=1)
+def _registry():
+    import pint
+
+    registry = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    return registry
+
+
+def _normalise_unit_text(text: str) -> str:
+    text = text.replace("Ω", "ohm").replace("Ω", "ohm").replace("°C", "degC")
+    text = text.replace("°F", "degF").replace("²", "^2").replace("³", "^3")
+    return text
+
+
+def parse_quantity(value, dimension: str) -> float:
+    """Read a design-file value as a float in SI base units.
+
+    Parameters
+    ----------
+    value : int, float or str
+        A plain number (SI base units; kelvin for temperature) or a string
+        such as ``"4.7 uF"`` or ``"-10 degC"``.
+    dimension : str
+        Key of :data:`DIMENSIONS` the value must have.
+
+    Returns
+    -------
+    float
+        The value in SI base units [SI].
+
+    Raises
+    ------
+    UnitError
+        The value is not a number, has no finite value, or its unit has a
+        different dimension.  The message says what was expected.
+    """
+    expected = DIMENSIONS[dimension]
+    if isinstance(value, bool):
+        raise UnitError(f"expected a {expected.name}, got a boolean")
+    if isinstance(value, (int, float)):
+        number = float(value)
+        if not math.isfinite(number):
+            raise UnitError(f"expected a finite {expected.name}, got {value!r}")
+        return number
+    if not isinstance(value, str):
+        raise UnitError(
+            f"expected a number or a string such as '1.5 {expected.unit or '1'}', "
+            f"got {type(value).__name__}"
+        )
+    match = _NUMBER.match(value)
+    if match is None:
+        if value.strip().lower() in {"nan", "inf", "-inf", "+inf", "infinity"}:
+            raise UnitError(f"expected a finite {expected.name}, got {value!r}")
+        raise UnitError(
+            f"expected a number with an optional unit, such as "
+            f"'4.7 {_example_unit(expected)}'".replace(" '4.7 '", " '4.7'")
+        )
+    number = float(match.group(1))
+    unit_text = _normalise_unit_text(match.group(2))
+    if not unit_text:
+        return number
+    registry = _registry()
+    try:
+        quantity = registry.Quantity(number, unit_text)
+    except Exception:  # pint raises several unrelated types for bad units
+        raise UnitError(
+            f"expected {_article(expected.name)} {expected.name} such as "
+            f"'4.7 {_example_unit(expected)}' (unknown unit {match.group(2)!r})"
+        ) from None
+    target = registry.Unit(expected.pint_unit)
+    if quantity.dimensionality != target.dimensionality:
+        raise UnitError(
+            f"expected {_article(expected.name)} {expected.name} such as "
+            f"'4.7 {_example_unit(expected)}' ({match.group(2)!r} is not a unit of "
+            f"{expected.name})"
+        )
+    result = float(quantity.to(target).magnitude)
+    if not math.isfinite(result):
+        raise UnitError(f"expected a finite {expected.name}, got {value!r}")
+    return result
+
+
+def _article(word: str) -> str:
+    return "an" if word[:1] in "aeiou" else "a"
+
+
+def _example_unit(dimension: Dimension) -> str:
+    examples = {
+        "voltage": "V",
+        "current": "mA",
+        "resistance": "kohm",
+        "capacitance": "nF",
+        "inductance": "mH",
+        "time": "us",
+        "frequency": "kHz",
+        "area": "mm^2",
+        "flux density": "T",
+        "temperature": "degC",
+        "power": "W",
+        "voltage per kelvin": "mV/K",
+        "fraction per kelvin": "%/K",
+        "dimensionless": "",
+    }
+    return examples[dimension.name]
+
+
+def celsius_to_kelvin(temperature_celsius):
+    """Convert [degC] to [K] using ``scipy.constants.zero_Celsius``."""
+    return temperature_celsius + zero_Celsius
+
+
+def kelvin_to_celsius(temperature_kelvin):
+    """Convert [K] to [degC] using ``scipy.constants.zero_Celsius``."""
+    return temperature_kelvin - zero_Celsius
+
+
+_PREFIXES = [
+    (1e9, "G"),
+    (1e6, "M"),
+    (1e3, "k"),
+    (1.0, ""),
+    (1e-3, "m"),
+    (1e-6, "u"),
+    (1e-9, "n"),
+    (1e-12, "p"),
+]
+
+
+def format_si(value: float, unit: str, digits: int = 4) -> str:
+    """Format a value with an SI prefix for display, e.g. ``4.7e-6, "F"`` ->
+    ``"4.7 uF"``.  Display only; never parse the result back."""
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if value == 0:
+        return f"0 {unit}".strip()
+    magnitude = abs(value)
+    for scale, prefix in _PREFIXES:
+        if magnitude >= scale * 0.9995:
+            return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
+    scale, prefix = _PREFIXES[-1]
+    return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
