@@ -168,9 +168,10 @@ class TransformerSpec:
 
 @dataclass(frozen=True)
 class StartupSpec:
-    """Start-up resistor [ohm]."""
+    """Start-up resistor [ohm] and its power rating [W]."""
 
     resistance: float
+    power_rating: float
 
 
 @dataclass(frozen=True)

@@ -154,6 +154,9 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
     # ------------------------------------------------------------ startup
     _q("startup", "resistance", "resistance",
        "Start-up resistor from the bus to the switch base."),
+    _q("startup", "power_rating", "power",
+       "Power rating of the start-up resistor (the check allows half of it).",
+       required=False, default=0.25),
     # -------------------------------------------------------------- drive
     _q("drive", "resistance", "resistance",
        "Series resistor from the feedback winding to the base."),

@@ -1,0 +1,727 @@
+"""Steady-state cycle model of the free-running flyback (numeric layer).
+
+For each operating point (line or bus voltage, load, temperature, current
+gain) the model finds the switching cycle the circuit of
+``notes/circuit.md`` settles into: what ends the on-time (the switch
+leaving saturation, the current limit, or the regulation path), what ends
+the off-time (demagnetization and the resonant ring, or the drive
+capacitor's timing), the conduction mode, the peak current, the frequency
+and the output voltage that balances the delivered power against the load.
+
+Everything is vectorized with numpy: inputs broadcast against each other
+and no Python loop runs per point.  The output voltage is found by
+bisection on the power balance; the drive-capacitor state is carried from
+one bisection step to the next, which is the cycle-to-cycle map of the
+drive capacitor iterated to its fixed point.
+
+References
+----------
+.. [1] J. Irving and M. M. Jovanović, "Analysis and design of
+   self-oscillating flyback converter", Proc. IEEE APEC 2002, pp. 897-903,
+   doi:10.1109/APEC.2002.989351 (boundary-conduction operation, the on-time
+   ended by the limiter, the off-time by demagnetization).
+.. [2] R. W. Erickson and D. Maksimović, *Fundamentals of Power
+   Electronics*, 2nd ed., Kluwer, 2001, ch. 5-6 (energy balance of the
+   discontinuous and boundary flyback).
+.. [3] J. Millman and H. Taub, *Pulse and Digital Circuits*, McGraw-Hill,
+   1956, blocking-oscillator chapter (on-time ended when the collector
+   current reaches hFE times the decaying base current).
+.. [4] J. L. Moll, "Large-signal transient response of junction
+   transistors", Proc. IRE 42 (1954) 1773-1784 (storage time).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+
+import numpy as np
+
+from rcc.design import Design, Load
+from rcc.devices import REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain
+from rcc.limiter import (auxiliary_voltage, regulation_current, trip_current)
+from rcc.mains import bulk_valley, rectified_peak
+from rcc.flyback import reflected_voltage
+
+__all__ = [
+    "OperatingPoints",
+    "Losses",
+    "MODES",
+    "ON_END",
+    "OFF_END",
+    "operating_points",
+    "bus_voltage",
+    "reference_temperature",
+    "hold_output_voltage",
+    "limit_power_capability",
+]
+
+#: Conduction modes.  ``burst``: the regulation path holds the limiter on
+#: even at zero current, so the supply delivers its minimum energy per
+#: cycle in bursts; the frequency reported is the average.  ``off``: the
+#: switch cannot turn on again (see ``OperatingPoints.running``).
+MODES = ("dcm", "bcm", "ccm", "burst", "off")
+#: What ended the on-time.
+ON_END = ("drive", "limit", "regulation")
+#: What ended the off-time.
+OFF_END = ("demagnetization", "drive-timing")
+
+_BISECTION_STEPS = 30
+_NEWTON_STEPS = 8
+_SCAN_POINTS = 12
+_SETTLE_STEPS = 2
+
+
+@dataclass(frozen=True)
+class Losses:
+    """Loss breakdown of an operating point, every field in [W].
+
+    Attributes
+    ----------
+    switch_conduction : ndarray
+        ``Vce_sat`` times the average collector current [W].
+    resistive : ndarray
+        Sense resistor and primary winding resistance [W].
+    core : ndarray
+        Core-loss resistance during on- and off-time [W].
+    leakage : ndarray
+        Leakage-inductance energy dumped into the clamp or node [W].
+    capacitive : ndarray
+        Node-capacitance energy dissipated at turn-on [W].
+    rectifier : ndarray
+        Output rectifier forward drop [W].
+    drive : ndarray
+        Base-drive energy taken from the feedback winding [W].
+    startup : ndarray
+        Start-up resistor [W].
+    regulation : ndarray
+        Regulation path fed from the feedback winding [W].
+    """
+
+    switch_conduction: np.ndarray
+    resistive: np.ndarray
+    core: np.ndarray
+    leakage: np.ndarray
+    capacitive: np.ndarray
+    rectifier: np.ndarray
+    drive: np.ndarray
+    startup: np.ndarray
+    regulation: np.ndarray
+
+    @property
+    def total(self) -> np.ndarray:
+        """Sum of all losses [W]."""
+        return sum(getattr(self, item.name) for item in fields(self))
+
+
+@dataclass(frozen=True)
+class OperatingPoints:
+    """Steady-state operating points (arrays broadcast to one shape).
+
+    Attributes
+    ----------
+    line_voltage : ndarray
+        RMS line voltage (AC input) or DC input voltage [V].
+    bus_voltage : ndarray
+        Bus voltage the cycle is computed at: the bulk-capacitor valley for
+        AC input, the input voltage for DC input [V].
+    load_current : ndarray
+        Load current at the computed output voltage [A].
+    temperature : ndarray
+        Temperature [K].
+    current_gain : ndarray
+        Switch current gain at that temperature [1].
+    output_voltage : ndarray
+        Output voltage [V].
+    frequency : ndarray
+        Switching frequency (average over bursts) [Hz].
+    on_time : ndarray
+        On-time including the storage time [s].
+    off_time : ndarray
+        Off-time [s].
+    duty : ndarray
+        Duty cycle [1].
+    peak_current : ndarray
+        Peak primary current including the storage overshoot [A].
+    trip_current : ndarray
+        Current at which the limiter (with the regulation current) acts [A].
+    drive_capability : ndarray
+        hFE times the base current at the end of the on-time [A].
+    reflected_voltage : ndarray
+        Reflected output voltage [V].
+    regulation_current : ndarray
+        Regulation current injected into the limiter base [A].
+    mode : ndarray of str
+        One of :data:`MODES`.
+    on_end : ndarray of str
+        One of :data:`ON_END`.
+    off_end : ndarray of str
+        One of :data:`OFF_END`.
+    running : ndarray of bool
+        False where the switch cannot turn on again after the first cycle
+        (the base is held off for good), or the feedback winding is
+        degenerative; all rates are zero there.
+    input_power : ndarray
+        Power drawn from the bus [W].
+    output_power : ndarray
+        Power delivered to the load [W].
+    losses : Losses
+        Loss breakdown [W]; ``input_power = output_power + losses.total``.
+    """
+
+    line_voltage: np.ndarray
+    bus_voltage: np.ndarray
+    load_current: np.ndarray
+    temperature: np.ndarray
+    current_gain: np.ndarray
+    output_voltage: np.ndarray
+    frequency: np.ndarray
+    on_time: np.ndarray
+    off_time: np.ndarray
+    duty: np.ndarray
+    peak_current: np.ndarray
+    trip_current: np.ndarray
+    drive_capability: np.ndarray
+    reflected_voltage: np.ndarray
+    regulation_current: np.ndarray
+    mode: np.ndarray
+    on_end: np.ndarray
+    off_end: np.ndarray
+    running: np.ndarray
+    input_power: np.ndarray
+    output_power: np.ndarray
+    losses: Losses
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        return self.frequency.shape
+
+    def records(self) -> list[dict]:
+        """One JSON-ready dict per point (SI units, temperature in degC)."""
+        flat = {name: np.ravel(getattr(self, name)) for name in (
+            "line_voltage", "bus_voltage", "load_current", "temperature", "output_voltage",
+            "frequency", "on_time", "off_time", "duty", "peak_current", "mode", "on_end",
+            "off_end")}
+        rows = []
+        for i in range(flat["frequency"].size):
+            rows.append({
+                "line_v": float(flat["line_voltage"][i]),
+                "bus_v": float(flat["bus_voltage"][i]),
+                "load_a": float(flat["load_current"][i]),
+                "temperature_c": float(flat["temperature"][i] - 273.15),
+                "output_v": float(flat["output_voltage"][i]),
+                "frequency_hz": float(flat["frequency"][i]),
+                "on_time_s": float(flat["on_time"][i]),
+                "off_time_s": float(flat["off_time"][i]),
+                "duty": float(flat["duty"][i]),
+                "peak_current_a": float(flat["peak_current"][i]),
+                "mode": str(flat["mode"][i]),
+                "on_end": str(flat["on_end"][i]),
+                "off_end": str(flat["off_end"][i]),
+            })
+        return rows
+
+
+def reference_temperature(design: Design) -> float:
+    """25 degC clipped into the design's temperature range [K]."""
+    return float(np.clip(REFERENCE_TEMPERATURE, design.environment.temperature_min,
+                         design.environment.temperature_max))
+
+
+def bus_voltage(design: Design, line_voltage, input_power=0.0):
+    """Bus voltage for a line voltage and input power.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    line_voltage : float or array_like
+        RMS line voltage (AC input) or DC voltage (DC input) [V].
+    input_power : float or array_like, default 0
+        Power drawn from the bulk capacitor [W].
+
+    Returns
+    -------
+    ndarray
+        Bulk-capacitor valley (AC input) or the DC voltage [V].
+
+    Notes
+    -----
+    AC input: :func:`rcc.mains.rectified_peak` then
+    :func:`rcc.mains.bulk_valley` (energy balance over a half line cycle).
+    """
+    line_voltage = np.asarray(line_voltage, dtype=float)
+    if not design.input.is_ac:
+        return line_voltage + 0.0 * np.asarray(input_power, dtype=float)
+    peak = rectified_peak(line_voltage, design.input.bridge_drop)
+    return bulk_valley(peak, input_power, design.input.bulk_capacitance,
+                       design.input.line_frequency)
+
+
+def hold_output_voltage(design: Design, temperature):
+    """Output voltage at which the regulation path alone turns the limiter on.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    temperature : float or array_like
+        Temperature [K].
+
+    Returns
+    -------
+    ndarray or None
+        Output voltage [V] above which the on-time shrinks to the storage
+        time (burst operation); ``None`` for ``regulation.method = "none"``.
+
+    Notes
+    -----
+    Solves ``I_reg R_lb = Vbe`` of the regulation law in ``notes/circuit.md``.
+    """
+    from rcc.devices import zener_voltage
+
+    regulation, limiter = design.regulation, design.limiter
+    vbe = base_emitter_voltage(limiter.vbe, limiter.vbe_tempco, temperature)
+    needed = vbe / limiter.base_resistance
+    if regulation.method == "feedback-winding":
+        zener = zener_voltage(regulation.zener_voltage, regulation.zener_tempco, temperature)
+        aux = zener + vbe + needed * regulation.series_resistance
+        return ((aux + regulation.rectifier_drop) * design.transformer.output_turns
+                / design.transformer.feedback_turns - design.output.rectifier_drop)
+    if regulation.method == "optocoupler":
+        led_current = needed / regulation.ctr
+        return (regulation.reference_voltage + regulation.led_drop
+                + led_current * regulation.series_resistance)
+    return None
+
+
+def _load_power(load, output_voltage):
+    if isinstance(load, Load):
+        if load.kind == "current":
+            return load.value * output_voltage
+        if load.kind == "resistance":
+            return output_voltage**2 / load.value
+        return np.full_like(output_voltage, load.value)
+    return np.asarray(load, dtype=float) * output_voltage
+
+
+def _solve_rising(slope, gain, amplitude, offset, tau, initial):
+    """Smallest t >= 0 with initial + slope t = gain (amplitude e^(-t/tau) + offset).
+
+    The left side rises and the right side falls (amplitude >= 0), so the
+    root is unique; Newton from t = 0 approaches it from below because the
+    difference is concave.  Returns 0 where the drive is already short at
+    t = 0 and a large finite time where the drive never runs out.
+    """
+    target0 = gain * (amplitude + offset) - initial
+    t_inf = np.where(gain * offset > initial, (gain * offset - initial) / slope, 0.0)
+    # upper estimate: the time the ramp reaches the initial drive capability
+    t = np.zeros_like(target0)
+    for _ in range(_NEWTON_STEPS):
+        decay = np.exp(-t / tau)
+        residual = initial + slope * t - gain * (amplitude * decay + offset)
+        derivative = slope + gain * amplitude * decay / tau
+        t = np.maximum(t - residual / derivative, 0.0)
+    t = np.where(target0 <= 0.0, 0.0, t)
+    return np.maximum(t, np.minimum(t_inf, t))
+
+
+class _Cycle:
+    """Cycle evaluation at given output voltages (internal, vectorized)."""
+
+    def __init__(self, design: Design, bus, temperature, hfe):
+        tr, sw, dr, lim = design.transformer, design.switch, design.drive, design.limiter
+        self.design = design
+        self.bus = bus
+        self.temperature = temperature
+        self.hfe = hfe
+        self.lm = tr.magnetizing_inductance
+        self.lt = tr.magnetizing_inductance + tr.leakage_inductance
+        self.nb = tr.feedback_turns / tr.primary_turns
+        self.vbe = base_emitter_voltage(sw.vbe, sw.vbe_tempco, temperature)
+        self.vbe_limiter = base_emitter_voltage(lim.vbe, lim.vbe_tempco, temperature)
+        self.startup_current = np.maximum(bus - self.vbe, 0.0) / design.startup.resistance
+        rbe = dr.base_emitter_resistance
+        self.rbe = np.inf if rbe is None else rbe
+        self.bleed = 0.0 if rbe is None else self.vbe / rbe
+        self.slope = np.maximum(bus - sw.vce_sat, 1e-3) / self.lt
+        self.winding_on = self.nb * (bus - sw.vce_sat) * self.lm / self.lt
+        self.v_on = self.winding_on - self.vbe
+        self.tau = dr.resistance * dr.capacitance
+        # base threshold: the drive-capacitor voltage at which the base reaches Vbe
+        rb = dr.resistance
+        if rbe is None:
+            self.v_threshold = self.startup_current * rb - self.vbe
+        else:
+            self.v_threshold = self.startup_current * rb - self.vbe * (rb + rbe) / rbe
+        self.omega = 1.0 / np.sqrt(self.lm * design.node_capacitance)
+        quality = tr.core_loss_resistance * np.sqrt(design.node_capacitance / self.lm)
+        self.ring_damping = np.exp(-np.pi / (2.0 * quality))
+
+    def evaluate(self, output_voltage, vc0, i0, losses=False):
+        d = self.design
+        tr, sw, dr, lim = d.transformer, d.switch, d.drive, d.limiter
+        vr = reflected_voltage(output_voltage, d.output.rectifier_drop, tr.primary_turns,
+                               tr.output_turns)
+        vr = np.maximum(vr, 1e-3)
+        ireg = regulation_current(d, output_voltage, self.temperature)
+        itrip = trip_current(self.vbe_limiter, ireg, lim.base_resistance,
+                             lim.sense_resistance)
+        rb, cb, tau = dr.resistance, dr.capacitance, self.tau
+        # ---- on-time: drive-limited decision (switch leaves saturation)
+        amplitude = np.maximum(self.v_on - vc0, 0.0) / rb
+        offset = self.startup_current - self.bleed
+        t_drive = _solve_rising(self.slope, self.hfe, amplitude, offset, tau, i0)
+        i_drive = i0 + self.slope * t_drive
+        drive_ends = i_drive < np.maximum(itrip, i0)
+        i_decision = np.where(drive_ends, i_drive, np.maximum(itrip, i0))
+        overshoot = np.where(drive_ends, 0.0, self.slope * sw.storage_time)
+        peak = i_decision + overshoot
+        t_on = (peak - i0) / self.slope
+        on_end = np.where(drive_ends, 0, np.where(ireg > 0.0, 2, 1))
+        base_end = amplitude * np.exp(-t_on / tau) + offset
+        drive_capability = self.hfe * np.maximum(base_end, 0.0)
+        vc_end = self.v_on + (vc0 - self.v_on) * np.exp(-t_on / tau)
+        charge_base = amplitude * tau * (1.0 - np.exp(-t_on / tau)) + offset * t_on
+        # ---- off-time: flyback plateau
+        t_demag = self.lm * peak / vr
+        winding_plateau = -self.nb * vr
+        # plateau: the base is clamped at -vebo while the winding would pull
+        # it lower, and the capacitor relaxes through R_b towards that level
+        target_clamp = winding_plateau + sw.vebo
+        clamped = vc_end > target_clamp
+        rbe = self.rbe
+        if np.isinf(rbe):
+            tau_slow = np.inf
+        else:
+            tau_slow = (rb + rbe) * cb
+        vc_demag = np.where(
+            clamped,
+            target_clamp + (vc_end - target_clamp) * np.exp(-t_demag / tau),
+            self._slow(vc_end, winding_plateau, t_demag, tau_slow),
+        )
+        # turn-on during the plateau (drive timer shorter than demagnetization)
+        limit_plateau = self.v_threshold + winding_plateau
+        t_cross = self._slow_cross(vc_end, winding_plateau, limit_plateau, tau_slow)
+        ccm = (~clamped) & (t_cross < t_demag)
+        # ---- ring after demagnetization
+        need = vc_demag - self.v_threshold
+        ring_amplitude = self.nb * vr
+        ring_peak = self.nb * np.minimum(vr * self.ring_damping, self.bus)
+        ring_on = need <= ring_peak
+        phase = np.arccos(np.clip(-need / ring_amplitude, -1.0, 1.0))
+        t_ring = phase / self.omega
+        # ---- waiting for the slow path (drive-capacitor timing)
+        t_wait = self._slow_cross(vc_demag, 0.0, self.v_threshold, tau_slow)
+        restarts = ccm | ring_on | np.isfinite(t_wait)
+        t_wait = np.where(np.isfinite(t_wait), t_wait, 0.0)
+        t_off = np.where(ccm, t_cross, np.where(ring_on, t_demag + t_ring, t_demag + t_wait))
+        residual = np.where(ccm, np.maximum(peak - vr * t_cross / self.lm, 0.0), 0.0)
+        vc_next = np.where(ccm, limit_plateau, np.where(ring_on, vc_demag, self.v_threshold))
+        mode = np.where(ccm, 2, np.where(ring_on, 1, 0))
+        off_end = np.where(ring_on & ~ccm, 0, 1)
+        period = t_on + t_off
+        frequency = 1.0 / period
+        # ---- energy per cycle
+        transferred = 0.5 * self.lm * (peak**2 - residual**2)
+        t_flyback = np.where(ccm, t_cross, t_demag)
+        core_off = vr**2 / tr.core_loss_resistance * t_flyback
+        secondary = np.maximum(transferred - core_off, 0.0)
+        share_out = output_voltage / (output_voltage + d.output.rectifier_drop)
+        aux = auxiliary_voltage(output_voltage, d.output.rectifier_drop, tr.feedback_turns,
+                                tr.output_turns, d.regulation.rectifier_drop)
+        regulation_power = np.where(ireg > 0.0, np.maximum(aux, 0.0) * ireg, 0.0)
+        delivered = secondary * share_out * frequency - regulation_power
+        state = dict(
+            vr=vr, ireg=ireg, itrip=itrip, peak=peak, t_on=t_on, t_off=t_off,
+            frequency=frequency, delivered=delivered, on_end=on_end, off_end=off_end,
+            mode=mode, vc_next=vc_next, residual=residual, restarts=restarts,
+            drive_capability=drive_capability,
+        )
+        if not losses:
+            return state
+        valley = np.where(ring_on & ~ccm,
+                          np.maximum(self.bus - vr * self.ring_damping, 0.0),
+                          np.where(ccm, self.bus + vr, self.bus))
+        mean_current = 0.5 * (peak + i0)
+        square_current = (peak**2 + peak * i0 + i0**2) / 3.0
+        state["losses"] = Losses(
+            switch_conduction=sw.vce_sat * mean_current * t_on * frequency,
+            resistive=(lim.sense_resistance + tr.primary_resistance) * square_current * t_on
+            * frequency,
+            core=(self.bus**2 * t_on + vr**2 * t_flyback) / tr.core_loss_resistance * frequency,
+            leakage=0.5 * tr.leakage_inductance * peak**2 * frequency,
+            capacitive=0.5 * d.node_capacitance * valley**2 * frequency,
+            rectifier=secondary * (1.0 - share_out) * frequency,
+            drive=self.winding_on * charge_base * frequency,
+            startup=self.bus * self.startup_current,
+            regulation=regulation_power,
+        )
+        return state
+
+    @staticmethod
+    def _slow(vc, winding, duration, tau_slow):
+        """Drive capacitor through the slow path (base-emitter resistor)."""
+        if np.isinf(tau_slow):
+            return vc + 0.0 * duration
+        return winding + (vc - winding) * np.exp(-duration / tau_slow)
+
+    def _slow_cross(self, vc, winding, level, tau_slow):
+        """Time for the drive capacitor to fall to ``level`` on the slow path."""
+        cb = self.design.drive.capacitance
+        if np.isinf(tau_slow):
+            # start-up resistor current only: linear discharge
+            current = np.maximum(self.startup_current, 1e-30)
+            t = cb * (vc - level) / current
+            return np.where(vc <= level, 0.0, t)
+        target = winding - self.startup_current * self.rbe
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = (vc - target) / (level - target)
+            t = tau_slow * np.log(ratio)
+        reachable = level > target
+        return np.where(vc <= level, 0.0, np.where(reachable & (ratio > 0), t, np.inf))
+
+
+def operating_points(design: Design, line_voltage, load, temperature=None, hfe=None):
+    """Steady-state operating points of the free-running flyback.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    line_voltage : float or array_like
+        RMS line voltage for AC input, DC input voltage otherwise [V].
+    load : Load, float or array_like
+        A :class:`rcc.design.Load`, or load currents [A].
+    temperature : float or array_like, optional
+        Temperature [K]; default 25 degC clipped into the design's range.
+    hfe : float or array_like, optional
+        Switch current gain at 25 degC [1]; default ``switch.hfe_typ``.
+
+    Returns
+    -------
+    OperatingPoints
+        Arrays broadcast over the inputs.
+
+    Notes
+    -----
+    On-time: the collector current ramps at ``(V_bus - Vce_sat) / (Lm + L_lk)``
+    until the first of (a) ``hFE I_B(t)``, the base current decaying as the
+    drive capacitor charges (``I_B = (V_on - v_C0)/R_b e^(-t/(R_b C_b)) +
+    I_start - Vbe/R_be``; blocking-oscillator timing [3]_), or (b) the trip
+    current of the limiter with the regulation current (``notes/circuit.md``).
+    A limiter-ended on-time continues for the storage time [4]_.
+
+    Off-time: demagnetization ``Lm Ipk / V_R`` [1]_, then the ring of ``Lm``
+    with the node capacitance turns the switch on as soon as the feedback
+    winding lifts the base over Vbe (at most half a ring period, the valley).
+    If the drive capacitor still holds the base off, the off-time is set by
+    the capacitor discharging through ``R_be`` or the start-up current
+    (drive timing, DCM); if the timer expires before demagnetization the
+    switch turns on early (CCM).  During the plateau the base is clamped at
+    ``-switch.vebo`` where the winding drives it below that.
+
+    The output voltage balances ``E f - P_reg`` (energy per cycle less core,
+    rectifier and regulation losses) against the load power [2]_.  When even
+    the storage-time-limited minimum energy per cycle exceeds the load, the
+    supply bursts at the output where the regulation path holds the limiter
+    on (mode ``burst``); the reported frequency is the average.
+
+    Simplifications: the leakage ring on the feedback winding and the sense
+    voltage in the base loop are neglected; storage time is the datasheet
+    value (not bias dependent); the output is taken ripple-free.  The
+    periodic-steady-state engine (``rcc cycle``) checks these.
+    """
+    if temperature is None:
+        temperature = reference_temperature(design)
+    if hfe is None:
+        hfe = design.switch.hfe_typ
+    load_values = np.asarray(load.value if isinstance(load, Load) else load, dtype=float)
+    line, temp, hfe25, _ = np.broadcast_arrays(
+        np.asarray(line_voltage, dtype=float), np.asarray(temperature, dtype=float),
+        np.asarray(hfe, dtype=float), load_values)
+    line, temp, hfe25 = (np.array(a, dtype=float) for a in (line, temp, hfe25))
+    if not isinstance(load, Load):
+        load = np.broadcast_to(load_values, line.shape).astype(float)
+    gain = current_gain(hfe25, design.switch.hfe_tempco, temp)
+
+    # AC input: the bus is the bulk valley, which depends on the input power
+    input_power_estimate = np.zeros_like(line)
+    result = None
+    for _ in range(2 if design.input.is_ac else 1):
+        bus = bus_voltage(design, line, input_power_estimate)
+        bus = np.maximum(bus, 1.0)
+        result = _solve_output(design, bus, temp, gain, load)
+        input_power_estimate = result["input_power"]
+    return _assemble(design, line, bus, temp, gain, load, result)
+
+
+def _upper_output(design: Design, temperature, bus):
+    hold = hold_output_voltage(design, temperature)
+    if hold is not None:
+        return np.maximum(hold, 1e-3) + np.zeros_like(bus)
+    tr = design.transformer
+    if design.clamp.type == "zener":
+        reflected_max = design.clamp.voltage
+    else:
+        reflected_max = 2.0 * bus
+    return np.maximum(reflected_max * tr.output_turns / tr.primary_turns
+                      - design.output.rectifier_drop, 1e-3)
+
+
+def _solve_output(design: Design, bus, temperature, gain, load):
+    """Output voltage of the stable power balance, with the cycle state there.
+
+    The delivered power is not monotonic in the output voltage: at a low
+    output the reflected voltage cannot reset the drive capacitor and the
+    supply idles in drive-timed cycles.  The stable operating point is the
+    highest output where the surplus ``P_delivered - P_load`` changes from
+    positive to negative, so a coarse scan from the top brackets it and
+    bisection refines it.
+    """
+    cycle = _Cycle(design, bus, temperature, gain)
+    top = _upper_output(design, temperature, bus)
+    vc = np.minimum(cycle.v_threshold, 0.0) + np.zeros_like(bus)
+    i0 = np.zeros_like(bus)
+    fractions = np.linspace(1.0, 0.0, _SCAN_POINTS + 1)[:-1]
+    fractions = np.append(fractions, 1e-4)
+    scan_voltage = np.empty((fractions.size,) + bus.shape)
+    scan_surplus = np.empty_like(scan_voltage)
+    scan_vc = np.empty_like(scan_voltage)
+    scan_i0 = np.empty_like(scan_voltage)
+    for index, fraction in enumerate(fractions):
+        voltage = top * fraction
+        for _ in range(_SETTLE_STEPS if index else 2 * _SETTLE_STEPS):
+            state = cycle.evaluate(voltage, vc, i0)
+            vc, i0 = state["vc_next"], state["residual"]
+        scan_voltage[index] = voltage
+        scan_surplus[index] = state["delivered"] - _load_power(load, voltage)
+        scan_vc[index], scan_i0[index] = vc, i0
+    positive = scan_surplus > 0.0
+    burst = positive[0]
+    first = np.argmax(positive, axis=0)          # highest voltage with a surplus
+    any_positive = positive.any(axis=0)
+    first = np.where(any_positive, first, fractions.size - 1)
+    take = lambda array, idx: np.take_along_axis(array, idx[None], axis=0)[0]  # noqa: E731
+    low = take(scan_voltage, first)
+    high = take(scan_voltage, np.maximum(first - 1, 0))
+    vc, i0 = take(scan_vc, first), take(scan_i0, first)
+    for _ in range(_BISECTION_STEPS):
+        middle = 0.5 * (low + high)
+        state = cycle.evaluate(middle, vc, i0)
+        vc, i0 = state["vc_next"], state["residual"]
+        surplus = state["delivered"] - _load_power(load, middle) > 0.0
+        low = np.where(surplus, middle, low)
+        high = np.where(surplus, high, middle)
+    output = np.where(burst, top, np.where(any_positive, 0.5 * (low + high), low))
+    for _ in range(_SETTLE_STEPS):
+        state = cycle.evaluate(output, vc, i0)
+        vc, i0 = state["vc_next"], state["residual"]
+    state = cycle.evaluate(output, vc, i0, losses=True)
+    state["output"] = output
+    state["burst"] = burst
+    load_power = _load_power(load, output)
+    running = state["restarts"] & (design.transformer.feedback_phase == "regenerative")
+    # burst: the supply delivers only what the load takes, at the minimum
+    # energy per cycle; the average frequency scales down accordingly
+    scale = np.where(burst & (state["delivered"] > 0),
+                     np.clip(load_power / np.maximum(state["delivered"], 1e-300), 0.0, 1.0),
+                     1.0)
+    scale = np.where(running, scale, 0.0)
+    losses = state["losses"]
+    scaled = Losses(**{
+        item.name: getattr(losses, item.name) * (running if item.name == "startup" else scale)
+        for item in fields(Losses)})
+    output_power = np.where(running, load_power, 0.0)
+    state.update(scale=scale, running=running, losses=scaled, output_power=output_power,
+                 input_power=output_power + scaled.total)
+    return state
+
+
+def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoints:
+    running = state["running"]
+    scale = state["scale"]
+    frequency = np.where(running, state["frequency"] * scale, 0.0)
+    output = np.where(running, state["output"], 0.0)
+    if isinstance(load, Load):
+        load_current = load.current(output)
+    else:
+        load_current = np.where(running, load, 0.0)
+    t_on, t_off = state["t_on"], state["t_off"]
+    mode_names = np.array(["dcm", "bcm", "ccm"])[state["mode"]]
+    mode_names = np.where(state["burst"], "burst", mode_names)
+    mode_names = np.where(running, mode_names, "off")
+    period = np.where(frequency > 0, 1.0 / np.maximum(frequency, 1e-300), 0.0)
+    off_time = np.where(running, np.maximum(period - t_on, t_off), 0.0)
+    return OperatingPoints(
+        line_voltage=line,
+        bus_voltage=bus,
+        load_current=np.asarray(load_current, dtype=float),
+        temperature=temperature,
+        current_gain=gain,
+        output_voltage=output,
+        frequency=frequency,
+        on_time=np.where(running, t_on, 0.0),
+        off_time=off_time,
+        duty=np.where(running & (period > 0), t_on / np.maximum(period, 1e-300), 0.0),
+        peak_current=np.where(running, state["peak"], 0.0),
+        trip_current=state["itrip"],
+        drive_capability=state["drive_capability"],
+        reflected_voltage=state["vr"],
+        regulation_current=state["ireg"],
+        mode=mode_names,
+        on_end=np.array(ON_END)[state["on_end"]],
+        off_end=np.array(OFF_END)[state["off_end"]],
+        running=running,
+        input_power=state["input_power"],
+        output_power=state["output_power"],
+        losses=state["losses"],
+    )
+
+
+def limit_power_capability(design: Design, line_voltage, temperature, hfe=None):
+    """Output power available at the current limit with no regulation current.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    line_voltage : float or array_like
+        RMS line voltage (AC) or DC input [V].
+    temperature : float or array_like
+        Temperature [K].
+    hfe : float or array_like, optional
+        Switch current gain at 25 degC [1]; default ``switch.hfe_min``.
+
+    Returns
+    -------
+    ndarray
+        Output power at the target output voltage (or the regulation hold
+        voltage when no target is given) [W].
+
+    Notes
+    -----
+    Evaluates the cycle with the regulation path removed, at the output
+    voltage the design is meant to hold, on the bulk valley at that power.
+    Above it the output must fall (overload).
+    """
+    if hfe is None:
+        hfe = design.switch.hfe_min
+    unregulated = design.with_values({"regulation.method": "none"})
+    line_voltage, temperature = np.broadcast_arrays(np.asarray(line_voltage, float),
+                                                    np.asarray(temperature, float))
+    target = design.output.voltage_target
+    if target is None:
+        target = hold_output_voltage(design, temperature)
+    output = np.broadcast_to(np.asarray(target, dtype=float), line_voltage.shape)
+    gain = current_gain(hfe, design.switch.hfe_tempco, temperature)
+    power = np.zeros_like(output)
+    for _ in range(3 if design.input.is_ac else 1):
+        bus = np.maximum(bus_voltage(design, line_voltage, power * 1.25), 1.0)
+        cycle = _Cycle(unregulated, bus, temperature, gain)
+        vc = np.minimum(cycle.v_threshold, 0.0) + np.zeros_like(bus)
+        i0 = np.zeros_like(bus)
+        for _ in range(12):
+            state = cycle.evaluate(output, vc, i0)
+            vc, i0 = state["vc_next"], state["residual"]
+        power = np.where(state["restarts"], np.maximum(state["delivered"], 0.0), 0.0)
+    return power
