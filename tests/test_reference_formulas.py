@@ -202,3 +202,388 @@ def test_storage_time_vectorized():
     assert ts.shape == (3,)
     # more reverse drive -> shorter storage [Sp60]
     assert np.all(np.diff(ts) < 0)
+
+
+# ================================================================= flyback
+from rcc import flyback, limiter, stress  # noqa: E402
+
+#: DOMAIN.md BCM row [IJ02]: Vin 300 V, V_R 100 V, Lp 2 mH, Pin 10 W
+BCM_IJ02_CASE = dict(bus_voltage=300.0, reflected_voltage=100.0,
+                     magnetizing_inductance=2e-3, input_power=10.0)
+BCM_IJ02_EXPECTED = dict(peak_current=0.2667, on_time=1.778e-6, off_time=5.333e-6,
+                         frequency=140.6e3, duty=0.25)
+
+
+def bcm_cycle_by_integration(bus_voltage, reflected_voltage, magnetizing_inductance,
+                             input_power):
+    """Boundary conduction found in the time domain: ramp the inductor
+    current up at Vin/L (v = L di/dt, integrated with solve_ivp, with the
+    input energy as a second state) to a trial peak, ramp it down at
+    -V_R/L to zero, and adjust the peak (brentq) until the average input
+    power equals ``input_power``.  Returns (peak, t_on, t_off)."""
+    vin, vr, lm = bus_voltage, reflected_voltage, magnetizing_inductance
+
+    def cycle(peak):
+        def at_peak(t, y):
+            return y[0] - peak
+
+        at_peak.terminal, at_peak.direction = True, 1
+        on = solve_ivp(lambda t, y: [vin / lm, vin * y[0]], (0.0, 1.0), [0.0, 0.0],
+                       events=at_peak, **ODE)
+        t_on, energy = on.t_events[0][0], on.y_events[0][0][1]
+
+        def at_zero(t, y):
+            return y[0]
+
+        at_zero.terminal, at_zero.direction = True, -1
+        off = solve_ivp(lambda t, y: [-vr / lm], (0.0, 1.0), [peak], events=at_zero, **ODE)
+        t_off = off.t_events[0][0]
+        return t_on, t_off, energy
+
+    def power_error(peak):
+        t_on, t_off, energy = cycle(peak)
+        return energy / (t_on + t_off) - input_power
+
+    peak = brentq(power_error, 1e-4, 100.0, xtol=1e-15, rtol=1e-13)
+    t_on, t_off, _ = cycle(peak)
+    return peak, t_on, t_off
+
+
+def test_reflected_voltage():
+    # ideal transformer [EM01 ch. 6]: V_R = (Np/Ns)(Vo + Vf); 80:10, 12 V + 0.5 V -> 100 V
+    assert float(flyback.reflected_voltage(12.0, 0.5, 80, 10)) == pytest.approx(100.0)
+    # volts per turn equal on every winding: V_R / Np == (Vo + Vf) / Ns
+    vr = flyback.reflected_voltage(np.array([5.0, 12.0, 24.0]), 0.7, 60, 7)
+    np.testing.assert_allclose(vr / 60, (np.array([5.0, 12.0, 24.0]) + 0.7) / 7)
+
+
+def test_bcm_domain_values_and_time_domain_route():
+    case = BCM_IJ02_CASE
+    vin, vr, lm, pin = (case[k] for k in ("bus_voltage", "reflected_voltage",
+                                          "magnetizing_inductance", "input_power"))
+    peak = float(flyback.bcm_peak_current(pin, vin, vr))
+    frequency = float(flyback.bcm_frequency(pin, vin, vr, lm))
+    duty = float(flyback.bcm_duty(vin, vr))
+    t_on = float(flyback.ramp_time(lm, peak, vin))
+    t_off = float(flyback.demagnetization_time(lm, peak, vr))
+    # DOMAIN check values [IJ02], quoted to 4 significant figures
+    expected = BCM_IJ02_EXPECTED
+    assert peak == quoted(expected["peak_current"], 4)
+    assert t_on == pytest.approx(expected["on_time"], abs=0.5e-9)
+    assert t_off == pytest.approx(expected["off_time"], abs=0.5e-9)
+    assert frequency == pytest.approx(expected["frequency"], abs=50.0)
+    assert duty == pytest.approx(expected["duty"], abs=1e-12)
+    # second route: the cycle integrated in time
+    peak_ode, t_on_ode, t_off_ode = bcm_cycle_by_integration(**case)
+    assert peak == pytest.approx(peak_ode, rel=1e-6)
+    assert t_on == pytest.approx(t_on_ode, rel=1e-6)
+    assert t_off == pytest.approx(t_off_ode, rel=1e-6)
+    assert frequency == pytest.approx(1.0 / (t_on_ode + t_off_ode), rel=1e-6)
+    assert duty == pytest.approx(t_on_ode / (t_on_ode + t_off_ode), rel=1e-6)
+
+
+@pytest.mark.parametrize(
+    "power, bus, frequency, peak",
+    [(20.0, 300.0, 70.3e3, None),  # DOMAIN: same at 20 W -> 70.3 kHz [IJ02]
+     (10.0, 150.0, 90.0e3, 0.333)],  # DOMAIN: at 150 V, 10 W -> 90.0 kHz, 0.333 A [IJ02]
+)
+def test_bcm_domain_variants(power, bus, frequency, peak):
+    f = float(flyback.bcm_frequency(power, bus, 100.0, 2e-3))
+    assert f == pytest.approx(frequency, abs=50.0)  # quoted to 0.1 kHz
+    peak_ode, t_on, t_off = bcm_cycle_by_integration(bus, 100.0, 2e-3, power)
+    assert f == pytest.approx(1.0 / (t_on + t_off), rel=1e-6)
+    if peak is not None:
+        assert float(flyback.bcm_peak_current(power, bus, 100.0)) == quoted(peak, 3)
+        assert float(flyback.bcm_peak_current(power, bus, 100.0)) == pytest.approx(
+            peak_ode, rel=1e-6)
+
+
+def test_bcm_relations_symbolically():
+    # [IJ02] energy balance derived with sympy: Pin = L Ipk^2 f / 2,
+    # 1/f = L Ipk / Vin + L Ipk / V_R (no dead time)
+    pin, vin, vr, lm, ipk = sp.symbols("P_in V_in V_R L_m I_pk", positive=True)
+    period = lm * ipk / vin + lm * ipk / vr
+    solution = sp.solve(sp.Eq(pin, lm * ipk**2 / (2 * period)), ipk)
+    assert len(solution) == 1
+    peak_expr = solution[0]
+    frequency_expr = sp.simplify(1 / period.subs(ipk, peak_expr))
+    duty_expr = sp.simplify((lm * ipk / vin / period))
+    numeric = {pin: 7.3, vin: 211.0, vr: 87.0, lm: 1.3e-3}
+    assert float(flyback.bcm_peak_current(7.3, 211.0, 87.0)) == pytest.approx(
+        float(peak_expr.subs(numeric)), rel=1e-12)
+    assert float(flyback.bcm_frequency(7.3, 211.0, 87.0, 1.3e-3)) == pytest.approx(
+        float(frequency_expr.subs(numeric)), rel=1e-12)
+    assert float(flyback.bcm_duty(211.0, 87.0)) == pytest.approx(
+        float(duty_expr.subs(numeric)), rel=1e-12)
+
+
+def test_bcm_trends():
+    # [IJ02]: frequency inversely proportional to power, rising with line
+    power = np.array([2.0, 5.0, 10.0, 20.0])
+    f = flyback.bcm_frequency(power, 300.0, 100.0, 2e-3)
+    np.testing.assert_allclose(f * power, f[0] * power[0], rtol=1e-12)
+    line = np.array([120.0, 200.0, 300.0, 375.0])
+    assert np.all(np.diff(flyback.bcm_frequency(10.0, line, 100.0, 2e-3)) > 0)
+
+
+#: DOMAIN.md DCM row [EM01 ch. 5]: Vg 300 V, D 0.2, L 2 mH, R 1 kohm, Ts 10 us
+DCM_EM01_CASE = dict(duty=0.2, magnetizing_inductance=2e-3, load_resistance=1e3,
+                     switching_period=10e-6)
+
+
+def dcm_output_by_energy_per_cycle(duty, magnetizing_inductance, load_resistance,
+                                   switching_period, source_voltage):
+    """DCM flyback (1:1, primary-referred) output by energy per cycle: the
+    on-time ramp integrated with solve_ivp gives the stored energy
+    L i^2 / 2, all of it delivered each period, equated with V^2/R."""
+    t_on = duty * switching_period
+    sol = solve_ivp(lambda t, y: [source_voltage / magnetizing_inductance],
+                    (0.0, t_on), [0.0], **ODE)
+    peak = sol.y[0, -1]
+    energy = 0.5 * magnetizing_inductance * peak**2
+    return math.sqrt(energy / switching_period * load_resistance), peak
+
+
+def test_dcm_conversion_ratio_domain_values():
+    case = DCM_EM01_CASE
+    k = 2 * case["magnetizing_inductance"] / (case["load_resistance"]
+                                              * case["switching_period"])
+    assert k == pytest.approx(0.4)  # DOMAIN K 0.4
+    assert k < (1 - case["duty"]) ** 2  # DCM: K < K_crit = (1-D)^2 [EM01 Table 5.2]
+    m = float(flyback.dcm_conversion_ratio(**case))
+    assert m == quoted(0.3162, 4)  # DOMAIN M 0.3162
+    assert 300.0 * m == quoted(94.87, 2)  # DOMAIN V 94.87 V
+    # second route: energy per cycle
+    v_out, peak = dcm_output_by_energy_per_cycle(source_voltage=300.0, **case)
+    assert 300.0 * m == pytest.approx(v_out, rel=1e-8)
+    # and the inductor really empties before the next period (it is DCM)
+    t_off = float(flyback.demagnetization_time(case["magnetizing_inductance"], peak, v_out))
+    assert case["duty"] * case["switching_period"] + t_off < case["switching_period"]
+
+
+def test_dcm_ratio_broadcasts():
+    duty = np.array([0.1, 0.2, 0.3])[:, None]
+    resistance = np.array([500.0, 1000.0])[None, :]
+    m = flyback.dcm_conversion_ratio(duty, 2e-3, resistance, 10e-6)
+    assert m.shape == (3, 2)
+    np.testing.assert_allclose(m[:, 1] / m[:, 0], math.sqrt(2.0))  # M ~ sqrt(R)
+
+
+def first_half_period_by_integration(inductance, capacitance):
+    """Free LC ring started at its voltage maximum (i = 0): time until the
+    current returns to zero, i.e. the voltage reaches its valley."""
+    def current_back_to_zero(t, y):
+        return y[1]
+
+    current_back_to_zero.terminal, current_back_to_zero.direction = True, -1
+    # y = (v, i); C dv/dt = -i, L di/dt = v; i rises from 0, peaks a quarter
+    # period later and falls back through zero at the voltage valley
+    sol = solve_ivp(lambda t, y: [-y[1] / capacitance, y[0] / inductance],
+                    (0.0, 1.0), [1.0, 0.0], events=current_back_to_zero,
+                    first_step=1e-12, max_step=1e-7, **ODE)
+    return sol.t_events[0][0]
+
+
+def test_resonant_delay_is_half_ring_period():
+    # half a period of the LC ring, pi sqrt(L C)  # common practice
+    delay = float(flyback.resonant_delay(2e-3, 100e-12))
+    assert delay == pytest.approx(math.pi * math.sqrt(2e-3 * 100e-12), rel=1e-12)
+    assert delay == pytest.approx(first_half_period_by_integration(2e-3, 100e-12), rel=1e-6)
+
+
+def test_blocking_oscillator_domain_values():
+    # DOMAIN row [MT56]: n_b 0.1, hFE 20, R_b 1 kohm, Lp 2 mH -> 4.0 us; at
+    # 300 V, Ipk 0.6 A; t_on independent of Vin, Ipk proportional to Vin
+    t_on = float(flyback.blocking_oscillator_on_time(0.1, 2e-3, 20.0, 1e3))
+    assert t_on == quoted(4.0e-6, 7)
+    for vin, peak in ((300.0, 0.6), (150.0, 0.3)):
+        # second route: ramp the collector current (solve_ivp) until it
+        # reaches hFE times the base current n Vin / R (Vbe neglected)
+        def leaves_saturation(t, y, vin=vin):
+            return y[0] - 20.0 * 0.1 * vin / 1e3
+
+        leaves_saturation.terminal, leaves_saturation.direction = True, 1
+        sol = solve_ivp(lambda t, y, vin=vin: [vin / 2e-3], (0.0, 1e-3), [0.0],
+                        events=leaves_saturation, **ODE)
+        assert t_on == pytest.approx(sol.t_events[0][0], rel=1e-9)
+        assert vin * t_on / 2e-3 == pytest.approx(peak, rel=1e-12)
+
+
+def test_ramp_and_demagnetization_volt_seconds():
+    # volt-second balance in BCM [EM01 ch. 6]: Vin t_on = V_R t_off
+    peak = 0.3
+    t_on = flyback.ramp_time(2e-3, peak, 300.0)
+    t_off = flyback.demagnetization_time(2e-3, peak, 100.0)
+    assert float(300.0 * t_on) == pytest.approx(float(100.0 * t_off))
+    assert float(t_on / (t_on + t_off)) == pytest.approx(float(flyback.bcm_duty(300.0, 100.0)))
+
+
+# ================================================================== stress
+def overshoot_by_lc_integration(peak_current, inductance, capacitance):
+    """Lossless L-C exchange started with the current at its peak and the
+    capacitor voltage at zero: the highest capacitor voltage reached."""
+    def current_zero(t, y):
+        return y[1]
+
+    current_zero.terminal, current_zero.direction = True, -1
+    sol = solve_ivp(lambda t, y: [y[1] / capacitance, -y[0] / inductance],
+                    (0.0, 1.0), [0.0, peak_current], events=current_zero,
+                    max_step=1e-9, **ODE)
+    return sol.y_events[0][0][0]
+
+
+def test_leakage_spike_domain_value():
+    # DOMAIN: 0.3 A, L_lk 20 uH, C 100 pF -> 134.2 V (energy balance)
+    spike = float(stress.leakage_spike(0.3, 20e-6, 100e-12))
+    assert spike == quoted(134.2, 1)
+    assert spike == pytest.approx(overshoot_by_lc_integration(0.3, 20e-6, 100e-12), rel=1e-6)
+
+
+def clamp_energy_per_cycle_by_integration(reflected_voltage, clamp_voltage,
+                                          leakage_inductance, peak_current):
+    """Energy into the clamp capacitor per cycle: the leakage current falls at
+    (Vc - V_R)/L_lk while the clamp holds Vc; integrate Vc i dt."""
+    rate = (clamp_voltage - reflected_voltage) / leakage_inductance
+
+    def current_zero(t, y):
+        return y[0]
+
+    current_zero.terminal, current_zero.direction = True, -1
+    sol = solve_ivp(lambda t, y: [-rate, clamp_voltage * y[0]], (0.0, 1e12),
+                    [peak_current, 0.0], events=current_zero, **ODE)
+    return sol.y_events[0][0][1]
+
+
+@pytest.mark.parametrize(
+    "vr, leakage, peak, frequency, resistance",
+    [(100.0, 20e-6, 0.3, 100e3, 47e3), (96.0, 15e-6, 0.4, 60e3, 100e3),
+     (150.0, 5e-6, 0.2, 120e3, 10e3)],
+)
+def test_rcd_clamp_voltage_power_balance(vr, leakage, peak, frequency, resistance):
+    # defining balance (Basso, *Switch-Mode Power Supplies*, 2008, ch. 7):
+    # Vc^2 / R = f * energy per cycle, energy per cycle from the integrated
+    # clamp current; solved here for Vc by brentq
+    vc = float(stress.rcd_clamp_voltage(vr, leakage, peak, frequency, resistance))
+    assert vc > vr
+
+    def balance(v):
+        return v * v / resistance - frequency * clamp_energy_per_cycle_by_integration(
+            vr, v, leakage, peak)
+
+    reference = brentq(balance, vr * (1 + 1e-9), 1e5, xtol=1e-12)
+    assert vc == pytest.approx(reference, rel=1e-6)
+
+
+def test_rcd_clamp_tends_to_reflected_voltage_with_small_resistance():
+    vc = stress.rcd_clamp_voltage(100.0, 20e-6, 0.3, 100e3, np.array([1.0, 1e3, 1e6]))
+    assert np.all(np.diff(vc) > 0)
+    assert vc[0] == pytest.approx(100.0, rel=1e-3)
+
+
+def test_peak_flux_density_domain_value_and_faraday():
+    # DOMAIN: 2 mH, 0.3 A, 100 turns, 20 mm^2 -> 0.30 T [McL04: N Phi = L I]
+    b = float(stress.peak_flux_density(2e-3, 0.3, 100, 20e-6))
+    assert b == quoted(0.30, 2)
+    # second route, Faraday's law [McL04]: B = (integral of v dt) / (N Ae)
+    # over the ramp that builds 0.3 A at 300 V
+    t_on = 2e-3 * 0.3 / 300.0
+    sol = solve_ivp(lambda t, y: [300.0 / (100 * 20e-6)], (0.0, t_on), [0.0], **ODE)
+    assert b == pytest.approx(sol.y[0, -1], rel=1e-9)
+
+
+def test_storage_overshoot():
+    # dI = Vin t_s / Lp while the stored charge is removed  # common practice
+    value = float(stress.storage_overshoot(375.0, 1e-6, 1.5e-3))
+    assert value == pytest.approx(0.25)
+    sol = solve_ivp(lambda t, y: [375.0 / 1.5e-3], (0.0, 1e-6), [0.0], **ODE)
+    assert value == pytest.approx(sol.y[0, -1], rel=1e-9)
+
+
+def test_switch_peak_voltage_is_series_sum():
+    assert float(stress.switch_peak_voltage(374.8, 100.0, 134.2)) == pytest.approx(609.0)
+
+
+@pytest.mark.parametrize(
+    "values, basis, rating",
+    [({}, "vcev", 700.0), ({"switch.vcev": None, "switch.vcbo": "650 V"}, "vcbo", 650.0),
+     ({"switch.vcev": None}, "vceo", 400.0)],
+)
+def test_rating_basis_order(standby_case, values, basis, rating):
+    # off-state with base reverse-biased: VCEV, else VCBO, else VCEO  # common practice
+    from rcc.design import load_design
+
+    design = load_design(standby_case)
+    data = design.to_dict()
+    for path, value in values.items():
+        section, name = path.split(".")
+        if value is None:
+            data[section].pop(name, None)
+        else:
+            data[section][name] = value
+    from rcc.design import design_from_dict
+
+    assert stress.rating_basis(design_from_dict(data).switch) == (basis, rating)
+
+
+# ================================================================= limiter
+def test_current_limit_domain_values():
+    # DOMAIN: 0.6 V / 1 ohm at 25 degC, -2 mV/K -> 0.60 A, 0.48 A at 85 degC  # common practice
+    assert float(limiter.current_limit(0.6, -2e-3, T25, 1.0)) == quoted(0.60, 2)
+    assert float(limiter.current_limit(0.6, -2e-3, T85, 1.0)) == quoted(0.48, 2)
+    # DOMAIN: delivered power at the limit (L I^2 f / 2, same f) falls about 36 %
+    ratio = float(limiter.current_limit(0.6, -2e-3, T85, 1.0) /
+                  limiter.current_limit(0.6, -2e-3, T25, 1.0)) ** 2
+    assert 1.0 - ratio == pytest.approx(0.36, abs=0.005)
+
+
+def test_current_limit_broadcasts():
+    temperature = np.array([T25, T85])[:, None]
+    sense = np.array([1.0, 1.5, 2.0])[None, :]
+    limit = limiter.current_limit(0.6, -2e-3, temperature, sense)
+    assert limit.shape == (2, 3)
+    np.testing.assert_allclose(limit * sense, [[0.6] * 3, [0.48] * 3])
+
+
+def test_trip_current_superposition():
+    # Vbe = I Rs + I_reg R_lb at the limiter base  # common practice
+    assert float(limiter.trip_current(0.6, 0.0, 1e3, 1.5)) == pytest.approx(0.4)
+    assert float(limiter.trip_current(0.6, 0.3e-3, 1e3, 1.5)) == pytest.approx(0.2)
+    assert float(limiter.trip_current(0.6, 1e-3, 1e3, 1.5)) == 0.0
+
+
+def test_auxiliary_voltage_volts_per_turn():
+    # all windings carry the same volts per turn on the flyback plateau
+    # [EM01 ch. 6]: 8 turns vs 10 turns at 12.5 V -> 10 V, minus 0.7 V
+    assert float(limiter.auxiliary_voltage(12.0, 0.5, 8, 10, 0.7)) == pytest.approx(9.3)
+
+
+def test_regulation_gain_feedback_winding(standby_case):
+    # finite regulation gain dI_trip/dVo = -(Nf/Ns) R_lb / (R_series Rs)
+    # (differentiating the superposition law above; notes/circuit.md)
+    from rcc.design import load_design
+
+    design = load_design(standby_case)
+    vo = np.array([12.6, 12.65])  # above the zener knee, below full trip
+    vbe = devices.base_emitter_voltage(design.limiter.vbe, design.limiter.vbe_tempco, T25)
+    injected = limiter.regulation_current(design, vo, T25)
+    assert np.all(injected > 0)
+    trip = limiter.trip_current(vbe, injected, design.limiter.base_resistance,
+                                design.limiter.sense_resistance)
+    assert np.all(trip > 0)  # not clipped: the law is linear here
+    gain = (trip[1] - trip[0]) / (vo[1] - vo[0])
+    expected = -(8 / 10) * 1e3 / (470.0 * 1.5)
+    assert gain == pytest.approx(expected, rel=1e-9)
+
+
+def test_regulation_current_none_and_optocoupler(minimal_design_dict):
+    from rcc.design import design_from_dict
+
+    none = design_from_dict(minimal_design_dict)
+    assert np.all(limiter.regulation_current(none, np.array([5.0, 20.0]), T25) == 0.0)
+    minimal_design_dict["regulation"] = {"method": "optocoupler", "reference_voltage": "2.5 V",
+                                         "ctr": 0.5, "series_resistance": "1 kohm",
+                                         "led_drop": "1.1 V"}
+    opto = design_from_dict(minimal_design_dict)
+    # I = CTR (Vo - Vref - V_LED) / R: 0.5 * (12 - 3.6) / 1000 = 4.2 mA
+    assert float(limiter.regulation_current(opto, 12.0, T25)) == pytest.approx(4.2e-3)
+    assert float(limiter.regulation_current(opto, 3.0, T25)) == 0.0
