@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import typer
 
-from rcc.cli import app, load_or_exit
+from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, load_or_exit
 
 
 @app.command()
@@ -14,6 +15,18 @@ def check(
     design_file: Path = typer.Argument(..., help="TOML design file."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
-    """Operating points at min/nominal/max line and load, stresses and findings."""
+    """Operating points at min/nominal/max line and load, stresses and findings.
+
+    Exit code 0 when no finding fails, 1 when one does, 2 on bad input.
+    """
+    from rcc.analysis import full_check
+    from rcc.report import format_check_report
+
     design = load_or_exit(design_file)
-    typer.echo(design.title)
+    report = full_check(design)
+    data = report.to_json()
+    if json_output:
+        typer.echo(json.dumps(data, indent=2))
+    else:
+        typer.echo(format_check_report(data))
+    raise typer.Exit(EXIT_FINDING_FAILED if report.verdict == "fail" else EXIT_OK)

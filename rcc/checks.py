@@ -1,0 +1,448 @@
+"""Stress and limit checks: from a design to findings.
+
+:func:`check_design` evaluates the cycle model on the report grid (min /
+nominal / max line x min / nominal / max load at 25 degC clipped into the
+design's range) and runs every check over the whole temperature range and
+the current-gain spread.  The result is a frozen :class:`CheckReport`.
+
+The checks compare computed values with ratings and limits; they never
+claim that a design is safe.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from rcc import cycle, stress
+from rcc.design import Design
+from rcc.devices import base_emitter_voltage
+from rcc.findings import Finding, verdict
+from rcc.limiter import current_limit
+from rcc.mains import bus_voltage_range
+
+__all__ = ["Stress", "CheckReport", "check_design", "SAFETY_CAUTION",
+           "STORAGE_PERIOD_FRACTION", "DRIVE_MARGIN_WARN"]
+
+#: Printed with every report.
+SAFETY_CAUTION = (
+    "CAUTION: supplies of this kind run from rectified mains. The primary side "
+    "carries lethal voltages and the bulk capacitor holds a dangerous charge after "
+    "switch-off. These results are computed estimates from a model, not a safety "
+    "evaluation: the applicable safety standards (e.g. IEC 62368-1), local codes and "
+    "licensed practice govern any work on or qualification of a real supply."
+)
+
+#: The storage time should stay below this fraction of the switching period
+#: so the limiter keeps control of the peak current  # common practice
+STORAGE_PERIOD_FRACTION = 0.1
+#: Base-drive margin (hFE I_B / I_C at turn-off) below which a warning is
+#: raised: hFE spread with current and ageing  # common practice
+DRIVE_MARGIN_WARN = 1.25
+#: Fraction of its rating the start-up resistor may dissipate  # common practice
+RESISTOR_POWER_DERATING = 0.5
+#: Margin of current-limit power over the heaviest load before a warning  # common practice
+OVERLOAD_MARGIN_WARN = 1.1
+
+
+@dataclass(frozen=True)
+class Stress:
+    """Worst-case stresses.
+
+    Attributes
+    ----------
+    switch_peak_v : float
+        Peak collector voltage at the highest bus [V].
+    switch_rating_v : float
+        Rating it is compared with (before derating) [V].
+    rating_basis : str
+        ``"vcev"``, ``"vcbo"`` or ``"vceo"``.
+    reflected_v : float
+        Highest reflected voltage [V].
+    spike_v : float
+        Leakage spike or clamp voltage above bus plus reflected voltage [V].
+    core_peak_flux_t : float
+        Worst-case peak flux density [T].
+    core_limit_t : float
+        Allowed flux density (saturation times margin) [T].
+    worst_peak_current_a : float
+        Current limit (coldest) plus storage overshoot at the highest bus [A].
+    """
+
+    switch_peak_v: float
+    switch_rating_v: float
+    rating_basis: str
+    reflected_v: float
+    spike_v: float
+    core_peak_flux_t: float
+    core_limit_t: float
+    worst_peak_current_a: float
+
+    def to_json(self) -> dict:
+        return {name: (float(value) if isinstance(value, (float, np.floating)) else value)
+                for name, value in self.__dict__.items()}
+
+
+@dataclass(frozen=True)
+class CheckReport:
+    """Result of :func:`check_design`.
+
+    Attributes
+    ----------
+    design : Design
+        The design checked.
+    points : rcc.cycle.OperatingPoints
+        Report grid, shape (3 lines, 3 loads).
+    stress : Stress
+        Worst-case stresses.
+    findings : tuple of Finding
+        All findings, worst first.
+    extra : dict
+        JSON-ready sections added by other analyses (e.g. ``"startup"``).
+    """
+
+    design: Design
+    points: cycle.OperatingPoints
+    stress: Stress
+    findings: tuple[Finding, ...]
+    extra: dict
+
+    @property
+    def verdict(self) -> str:
+        """``pass``, ``warn`` or ``fail``."""
+        return verdict(self.findings)
+
+    def to_json(self) -> dict:
+        result = {
+            "title": self.design.title,
+            "source": self.design.source,
+            "verdict": self.verdict,
+            "caution": SAFETY_CAUTION,
+            "findings": [finding.to_json() for finding in self.findings],
+            "operating_points": self.points.records(),
+            "stress": self.stress.to_json(),
+        }
+        result.update(self.extra)
+        return result
+
+
+def report_grid(design: Design):
+    """Lines (3,1) and loads for the report grid."""
+    lines = np.array(design.input.line_voltages, dtype=float)[:, None]
+    return lines
+
+
+def _grid_points(design: Design, temperature=None, hfe=None) -> cycle.OperatingPoints:
+    lines = report_grid(design)
+    output = design.output
+    columns = [cycle.operating_points(design, lines[:, 0], load, temperature, hfe)
+               for load in (output.load_min, output.load_nominal, output.load_max)]
+    return _stack(columns)
+
+
+def _stack(columns) -> cycle.OperatingPoints:
+    """Stack per-load results (each over lines) into a (lines, loads) grid."""
+    from dataclasses import fields
+
+    def stack(values):
+        return np.stack(values, axis=-1)
+
+    kwargs = {}
+    for item in fields(cycle.OperatingPoints):
+        if item.name == "losses":
+            kwargs["losses"] = cycle.Losses(**{
+                loss.name: stack([getattr(c.losses, loss.name) for c in columns])
+                for loss in fields(cycle.Losses)})
+        else:
+            kwargs[item.name] = stack([getattr(c, item.name) for c in columns])
+    return cycle.OperatingPoints(**kwargs)
+
+
+def _corner_points(design: Design, line, loads, temperatures, gains):
+    """Operating points over temperatures x gains for several loads at one line."""
+    temperatures = np.asarray(temperatures, dtype=float)[:, None]
+    gains = np.asarray(gains, dtype=float)[None, :]
+    return [cycle.operating_points(design, line, load, temperatures, gains) for load in loads]
+
+
+def check_design(design: Design) -> CheckReport:
+    """Run the cycle model and every stress and limit check.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+
+    Returns
+    -------
+    CheckReport
+        Operating points, stresses and findings.
+
+    Notes
+    -----
+    Checks and their bases: switch voltage (bus + reflected + spike or
+    clamp) against the off-state rating with ``limits.voltage_derating``;
+    core flux at the current limit plus storage overshoot against
+    ``saturation_flux_density * limits.flux_margin``; base drive at lowest
+    line, coldest, ``hfe_min``; current-limit power at lowest line, hottest,
+    against ``load_max``; highest frequency against the storage time;
+    start-up resistor dissipation at the highest line; output voltage
+    against ``voltage_target``.  See :mod:`rcc.stress`, :mod:`rcc.cycle`.
+    """
+    env, sw, tr, out = design.environment, design.switch, design.transformer, design.output
+    temperatures = np.array([env.temperature_min, cycle.reference_temperature(design),
+                             env.temperature_max])
+    gains = np.array([sw.hfe_min, sw.hfe_typ, sw.hfe_max])
+    lines = np.array(design.input.line_voltages, dtype=float)
+    points = _grid_points(design)
+    loads = (out.load_min, out.load_nominal, out.load_max)
+    high_line = _corner_points(design, lines[2], loads, temperatures, gains)
+    low_line = _corner_points(design, lines[0], loads, temperatures, gains)
+
+    findings: list[Finding] = []
+    stress_result = _switch_and_core(design, high_line, findings)
+    _drive(design, low_line, findings)
+    _current_rating(design, high_line + low_line, stress_result, findings)
+    _overload(design, findings)
+    _light_load(design, high_line + [points], findings)
+    _startup_resistor(design, findings)
+    _output(design, points, low_line + high_line, findings)
+    _not_running(design, points, findings)
+    order = {"fail": 0, "warn": 1, "info": 2}
+    findings.sort(key=lambda f: order[f.severity])
+    return CheckReport(design=design, points=points, stress=stress_result,
+                       findings=tuple(findings), extra={})
+
+
+# ---------------------------------------------------------------- checks
+def _max(arrays, attribute):
+    return float(max(np.max(getattr(a, attribute)) for a in arrays))
+
+
+def _switch_and_core(design, high_line, findings) -> Stress:
+    sw, tr, env, limits = design.switch, design.transformer, design.environment, design.limits
+    bus_max = float(bus_voltage_range(design)[2])
+    reflected = _max(high_line, "reflected_voltage")
+    coldest = min(env.temperature_min, env.temperature_max)
+    limit_current = float(current_limit(design.limiter.vbe, design.limiter.vbe_tempco,
+                                        coldest, design.limiter.sense_resistance))
+    overshoot = float(stress.storage_overshoot(bus_max, sw.storage_time,
+                                               tr.magnetizing_inductance + tr.leakage_inductance))
+    worst_current = limit_current + overshoot
+    clamp = design.clamp
+    if clamp.type == "zener":
+        above_bus = clamp.voltage
+        spike = max(above_bus - reflected, 0.0)
+        how = f"zener clamp at {clamp.voltage:.0f} V above the bus"
+    elif clamp.type == "rcd":
+        energy_rate = max(float(np.max(a.peak_current**2 * a.frequency)) for a in high_line)
+        clamp_voltage = float(stress.rcd_clamp_voltage(
+            reflected, tr.leakage_inductance, 1.0, energy_rate, clamp.resistance))
+        spike = clamp_voltage - reflected
+        how = f"RCD clamp settling at {clamp_voltage:.0f} V above the bus"
+    else:
+        spike = float(stress.leakage_spike(worst_current, tr.leakage_inductance,
+                                           design.node_capacitance))
+        how = "no clamp: leakage energy rings into the node capacitance"
+    peak = float(stress.switch_peak_voltage(bus_max, reflected, spike))
+    basis, rating = stress.rating_basis(sw)
+    allowed = rating * limits.voltage_derating
+    if peak > allowed:
+        findings.append(Finding(
+            "switch-overvoltage", "fail",
+            f"Peak collector voltage {peak:.0f} V (bus {bus_max:.0f} V + reflected "
+            f"{reflected:.0f} V + spike {spike:.0f} V; {how}) exceeds "
+            f"{limits.voltage_derating:.0%} of {basis.upper()} = {rating:.0f} V.",
+            peak, allowed, "V",
+            "Use a switch with a higher off-state rating, lower the reflected voltage "
+            "(fewer primary turns per output turn), or clamp lower (zener clamp, smaller "
+            "RCD resistor) and reduce leakage inductance."))
+    if basis != "vceo" and peak > sw.vceo:
+        findings.append(Finding(
+            "switch-vceo-exceeded", "warn",
+            f"Peak collector voltage {peak:.0f} V is above VCEO = {sw.vceo:.0f} V and "
+            f"relies on the {basis.upper()} rating: the feedback winding must hold the "
+            "base reverse-biased through the whole flyback plateau. At start-up, before "
+            "the feedback builds up, and with the base open (failed drive), only VCEO applies.",
+            peak, sw.vceo, "V",
+            "Keep the base-emitter path low-impedance during the off-time, or choose a "
+            "part whose VCEO covers the peak."))
+    flux = float(stress.peak_flux_density(tr.magnetizing_inductance, worst_current,
+                                          tr.primary_turns, tr.core_area))
+    flux_limit = tr.saturation_flux_density * limits.flux_margin
+    if flux > flux_limit:
+        findings.append(Finding(
+            "core-saturation", "fail",
+            f"Worst-case peak flux density {flux:.3f} T at current limit plus storage "
+            f"overshoot ({worst_current:.3f} A at the highest bus, coldest limiter) exceeds "
+            f"{limits.flux_margin:.0%} of the saturation flux density "
+            f"{tr.saturation_flux_density:.3f} T.",
+            flux, flux_limit, "T",
+            "Raise the sense resistor (lower current limit), add primary turns or use a "
+            "larger core; a shorter storage time also lowers the overshoot."))
+    return Stress(switch_peak_v=peak, switch_rating_v=rating, rating_basis=basis,
+                  reflected_v=reflected, spike_v=spike, core_peak_flux_t=flux,
+                  core_limit_t=flux_limit, worst_peak_current_a=worst_current)
+
+
+def _drive(design, low_line, findings):
+    """Base drive at the lowest line, coldest temperature, hfe_min, heaviest load."""
+    heavy = low_line[2]
+    # index [0, 0]: coldest temperature (row 0), hfe_min (column 0)
+    capability = float(heavy.drive_capability[0, 0])
+    peak = float(heavy.peak_current[0, 0])
+    ended_by_drive = str(heavy.on_end[0, 0]) == "drive"
+    if not heavy.running[0, 0] or peak <= 0:
+        return
+    needed = float(heavy.trip_current[0, 0]) if ended_by_drive else peak
+    margin = capability / max(needed, 1e-12)
+    if ended_by_drive:
+        findings.append(Finding(
+            "weak-drive", "fail",
+            f"At the lowest line, coldest and hfe_min the switch leaves saturation at "
+            f"{peak:.3f} A before the limiter's {needed:.3f} A: the on-time is ended by "
+            "the base drive, the switch desaturates at full current and dissipates.",
+            margin, 1.0, "",
+            "Increase the base drive: more feedback turns, a smaller drive resistor, a "
+            "larger drive capacitor, or a switch with higher hFE."))
+    elif margin < DRIVE_MARGIN_WARN:
+        findings.append(Finding(
+            "weak-drive", "warn",
+            f"Base-drive margin hFE*Ib/Ic = {margin:.2f} at turn-off (lowest line, coldest, "
+            f"hfe_min, heaviest load): little reserve for hFE spread and ageing.",
+            margin, DRIVE_MARGIN_WARN, "",
+            "Increase the base drive (feedback turns, drive resistor, drive capacitor)."))
+
+
+def _current_rating(design, corner_sets, stress_result, findings):
+    peak = max(stress_result.worst_peak_current_a, _max(corner_sets, "peak_current"))
+    if peak > design.switch.ic_max:
+        findings.append(Finding(
+            "switch-overcurrent", "fail",
+            f"Worst-case collector current {peak:.3f} A exceeds the rating "
+            f"IC(max) = {design.switch.ic_max:.3f} A.",
+            peak, design.switch.ic_max, "A",
+            "Lower the current limit (larger sense resistor) or use a higher-current switch."))
+
+
+def _overload(design, findings):
+    env, out = design.environment, design.output
+    hottest = max(env.temperature_min, env.temperature_max)
+    line = design.input.line_voltages[0]
+    capability = float(cycle.limit_power_capability(design, line, hottest))
+    target = out.voltage_target
+    if target is None:
+        target = float(cycle.hold_output_voltage(design, hottest) or 0.0)
+    demand = float(out.load_max.current(target) * target) if target > 0 else 0.0
+    if demand <= 0:
+        return
+    limit_text = (f"the current limit delivers {capability:.2f} W at the lowest line, "
+                  f"hottest (limiter Vbe lowest), hfe_min")
+    if capability < demand:
+        findings.append(Finding(
+            "overload", "fail",
+            f"Heaviest load needs {demand:.2f} W at {target:.2f} V but {limit_text}: the "
+            "output falls at full load.",
+            demand, capability, "W",
+            "Lower the sense resistor (higher current limit), raise the magnetizing "
+            "inductance or reflected voltage, or reduce load_max."))
+    elif capability < OVERLOAD_MARGIN_WARN * demand:
+        findings.append(Finding(
+            "overload", "warn",
+            f"Heaviest load needs {demand:.2f} W; {limit_text}: less than "
+            f"{OVERLOAD_MARGIN_WARN - 1:.0%} reserve.",
+            demand, capability, "W",
+            "Raise the current limit slightly or reduce load_max."))
+
+
+def _light_load(design, corner_sets, findings):
+    frequency = _max(corner_sets, "frequency")
+    limit = STORAGE_PERIOD_FRACTION / design.switch.storage_time
+    burst = any(np.any(a.mode == "burst") for a in corner_sets)
+    if frequency > limit:
+        findings.append(Finding(
+            "light-load-frequency", "warn",
+            f"Switching frequency reaches {frequency / 1e3:.0f} kHz at light load; the "
+            f"storage time {design.switch.storage_time * 1e6:.2f} us would exceed "
+            f"{STORAGE_PERIOD_FRACTION:.0%} of the period above {limit / 1e3:.0f} kHz, "
+            "where the limiter loses control of the peak current.",
+            frequency, limit, "Hz",
+            "Add a minimum load, raise the magnetizing inductance, or use a faster switch "
+            "(shorter storage time)."))
+    if burst:
+        findings.append(Finding(
+            "light-load-burst", "info",
+            "At the lightest load the storage-time-limited minimum energy per cycle "
+            "exceeds the demand: the regulation path holds the limiter on and the "
+            "supply runs in bursts (audible noise, higher output ripple).",
+            None, None, "",
+            "Acceptable for many standby rails; otherwise add a minimum load or use a "
+            "faster switch."))
+
+
+def _startup_resistor(design, findings):
+    bus_max = float(bus_voltage_range(design)[2])
+    vbe = float(base_emitter_voltage(design.switch.vbe, design.switch.vbe_tempco,
+                                     design.environment.temperature_min))
+    power = (bus_max - vbe) ** 2 / design.startup.resistance
+    allowed = RESISTOR_POWER_DERATING * design.startup.power_rating
+    if power > allowed:
+        findings.append(Finding(
+            "startup-resistor-power", "fail" if power > design.startup.power_rating else "warn",
+            f"Start-up resistor dissipates {power:.3f} W at the highest bus "
+            f"({bus_max:.0f} V), more than {RESISTOR_POWER_DERATING:.0%} of its "
+            f"{design.startup.power_rating:.2f} W rating.",
+            power, allowed, "W",
+            "Use a higher-rated resistor or split it into several in series (which also "
+            "shares the voltage); a larger value lowers the dissipation but slows start-up."))
+
+
+def _output(design, points, corner_sets, findings):
+    target = design.output.voltage_target
+    if target is None:
+        return
+    tolerance = design.limits.output_tolerance
+    running = points.running
+    nominal = float(points.output_voltage[1, 1])
+    deviation = (nominal - target) / target
+    if abs(deviation) > tolerance:
+        findings.append(Finding(
+            "output-off-target", "fail",
+            f"Output at nominal line and load is {nominal:.3f} V, {deviation:+.1%} from the "
+            f"target {target:.3f} V (allowed +/-{tolerance:.0%}).",
+            nominal, target * (1 + np.sign(deviation) * tolerance), "V",
+            "Adjust the regulation set point (zener voltage, reference or divider) or the "
+            "output-to-feedback turns ratio."))
+    outputs = np.concatenate([np.ravel(points.output_voltage[running])] + [
+        np.ravel(a.output_voltage[a.running]) for a in corner_sets])
+    if outputs.size == 0:
+        return
+    low, high = float(outputs.min()), float(outputs.max())
+    worst = low if (target - low) > (high - target) else high
+    worst_deviation = (worst - target) / target
+    if abs(worst_deviation) > tolerance and abs(deviation) <= tolerance:
+        findings.append(Finding(
+            "output-off-target", "warn",
+            f"Across line, load, temperature and hFE the output spans {low:.3f} to "
+            f"{high:.3f} V; the worst is {worst_deviation:+.1%} from the target "
+            f"{target:.3f} V (allowed +/-{tolerance:.0%}): finite regulation gain or "
+            "overload.",
+            worst, target * (1 + np.sign(worst_deviation) * tolerance), "V",
+            "Raise the regulation gain (smaller zener/LED series resistor, larger limiter "
+            "base resistor) or compensate the zener tempco."))
+
+
+def _not_running(design, points, findings):
+    if design.transformer.feedback_phase != "regenerative":
+        return  # reported by the start-up analysis as feedback-phase
+    if not np.all(points.running):
+        findings.append(Finding(
+            "no-restart", "fail",
+            "After the first cycle the drive capacitor holds the base below its "
+            "threshold and neither the ring nor the start-up current can turn the switch "
+            "on again (the base-emitter resistor bleeds more than the start-up resistor "
+            "supplies).",
+            None, None, "",
+            "Lower the start-up resistor, raise the base-emitter resistor, or shorten "
+            "the drive time constant."))

@@ -1,0 +1,89 @@
+"""Plain-text rendering of reports (display only: SI values scaled for reading).
+
+Functions here return strings; the command line prints them.
+"""
+
+from __future__ import annotations
+
+import textwrap
+
+import numpy as np
+
+from rcc.units import format_si
+
+__all__ = ["format_table", "format_check_report", "format_points_table"]
+
+
+def format_table(headers, rows) -> str:
+    """Left-aligned text table from headers and rows of strings."""
+    widths = [max(len(str(h)), *(len(str(r[i])) for r in rows)) if rows else len(str(h))
+              for i, h in enumerate(headers)]
+    line = "  ".join(str(h).ljust(w) for h, w in zip(headers, widths))
+    rule = "  ".join("-" * w for w in widths)
+    body = ["  ".join(str(c).ljust(w) for c, w in zip(row, widths)) for row in rows]
+    return "\n".join([line, rule, *body])
+
+
+def format_points_table(records) -> str:
+    """Operating points (``OperatingPoints.records()``) as a table."""
+    headers = ["line", "bus", "load", "T", "Vout", "freq", "t_on", "t_off", "duty",
+               "Ipk", "mode", "on ends by", "off ends by"]
+    rows = [[format_si(r["line_v"], "V", 3), format_si(r["bus_v"], "V", 3),
+             format_si(r["load_a"], "A", 3), f"{r['temperature_c']:.0f} degC",
+             format_si(r["output_v"], "V", 4), format_si(r["frequency_hz"], "Hz", 3),
+             format_si(r["on_time_s"], "s", 3), format_si(r["off_time_s"], "s", 3),
+             f"{r['duty']:.3f}", format_si(r["peak_current_a"], "A", 3), r["mode"],
+             r["on_end"], r["off_end"]] for r in records]
+    return format_table(headers, rows)
+
+
+def _wrap(text, indent="    "):
+    return textwrap.fill(text, width=92, initial_indent=indent, subsequent_indent=indent)
+
+
+def format_check_report(data: dict) -> str:
+    """The ``rcc check`` report from its JSON form."""
+    out = [data["title"], "=" * len(data["title"]), "", _wrap(data["caution"], ""), ""]
+    out += ["Operating points (25 degC clipped into the temperature range, hfe_typ)", ""]
+    out += [format_points_table(data["operating_points"]), ""]
+    s = data["stress"]
+    out += ["Stresses (worst case over line, load, temperature, hFE)", ""]
+    out += [format_table(["quantity", "value", "limit", "basis"], [
+        ["switch peak voltage", format_si(s["switch_peak_v"], "V", 4),
+         format_si(s["switch_rating_v"], "V", 4), s["rating_basis"].upper()],
+        ["core peak flux density", f"{s['core_peak_flux_t']:.3f} T",
+         f"{s['core_limit_t']:.3f} T", "saturation x margin"],
+        ["worst peak current", format_si(s["worst_peak_current_a"], "A", 3), "",
+         "limit + storage overshoot"],
+    ]), ""]
+    startup = data.get("startup")
+    if startup:
+        out += ["Start-up", ""]
+        verdict = "starts" if startup.get("starts") else "does NOT start"
+        out.append(f"    {verdict}; holding element: {startup.get('holding_element')}")
+        for key, unit in (("min_start_bus_v", "V"), ("min_start_line_v", "V"),
+                          ("start_time_s", "s"), ("growth_rate_per_s", "1/s"),
+                          ("growth_frequency_hz", "Hz")):
+            if startup.get(key) is not None:
+                out.append(f"    {key}: {format_si(startup[key], unit, 4)}")
+        out.append("")
+    out += [f"Findings: verdict {data['verdict'].upper()}", ""]
+    if not data["findings"]:
+        out.append("    none")
+    for f in data["findings"]:
+        margin = ""
+        if f["value"] is not None and f["limit"] is not None and f["limit"] != 0:
+            margin = f" (value {f['value']:.4g} {f['unit']}, limit {f['limit']:.4g} " \
+                     f"{f['unit']}, margin {(f['limit'] - f['value']) / abs(f['limit']):+.1%})"
+        out.append(f"  [{f['severity'].upper()}] {f['code']}{margin}")
+        out.append(_wrap(f["message"]))
+        if f["advice"]:
+            out.append(_wrap("What to change: " + f["advice"]))
+        out.append("")
+    if data.get("verification"):
+        out += ["Verification against the periodic-steady-state engine", ""]
+        out.append(format_table(list(data["verification"][0].keys()),
+                                [[f"{v:.4g}" if isinstance(v, float) else str(v)
+                                  for v in row.values()] for row in data["verification"]]))
+        out.append("")
+    return "\n".join(out).rstrip() + "\n"
