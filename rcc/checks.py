@@ -209,6 +209,7 @@ def check_design(design: Design) -> CheckReport:
     _startup_resistor(design, findings)
     _output(design, points, low_line + high_line, findings)
     _not_running(design, points, findings)
+    _squegging(design, [points] + low_line + high_line, findings)
     order = {"fail": 0, "warn": 1, "info": 2}
     findings.sort(key=lambda f: order[f.severity])
     return CheckReport(design=design, points=points, stress=stress_result,
@@ -446,3 +447,20 @@ def _not_running(design, points, findings):
             None, None, "",
             "Lower the start-up resistor, raise the base-emitter resistor, or shorten "
             "the drive time constant."))
+
+
+def _squegging(design, corner_sets, findings):
+    unsettled = sum(int(np.sum(~a.settled & a.running)) for a in corner_sets)
+    total = sum(int(np.sum(a.running)) for a in corner_sets)
+    if unsettled:
+        findings.append(Finding(
+            "drive-ratchet", "warn",
+            f"At {unsettled} of {total} evaluated operating points the drive capacitor "
+            "charges more during the on-time than the off-time resets: its voltage "
+            "ratchets up until a long drive-timed off-time resets it (squegging, "
+            "irregular cycles). The cycle-model values there describe one cycle of that "
+            "pattern; check with `rcc cycle`/`rcc waveforms`.",
+            float(unsettled), 0.0, "",
+            "Give the drive capacitor a reset path in the off-time: a base-emitter resistor "
+            "of lower value, a diode across the base-emitter junction, or more feedback "
+            "turns so the base is clamped during the flyback plateau."))

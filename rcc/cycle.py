@@ -156,6 +156,11 @@ class OperatingPoints:
         One of :data:`ON_END`.
     off_end : ndarray of str
         One of :data:`OFF_END`.
+    settled : ndarray of bool
+        False where the drive-capacitor voltage does not settle from cycle to
+        cycle (it ratchets up while the reset in the off-time is too weak, then
+        a long drive-timed off-time resets it: squegging); the values are
+        those of one cycle of that pattern.
     running : ndarray of bool
         False where the switch cannot turn on again after the first cycle
         (the base is held off for good), or the feedback winding is
@@ -186,6 +191,7 @@ class OperatingPoints:
     mode: np.ndarray
     on_end: np.ndarray
     off_end: np.ndarray
+    settled: np.ndarray
     running: np.ndarray
     input_power: np.ndarray
     output_power: np.ndarray
@@ -617,6 +623,10 @@ def _solve_output(design: Design, bus, temperature, gain, load):
         state = cycle.evaluate(output, vc, i0)
         vc, i0 = state["vc_next"], state["residual"]
     state = cycle.evaluate(output, vc, i0, losses=True)
+    # the drive-capacitor map must have reached its fixed point; where it
+    # ratchets (charge in per on-time exceeds the reset per off-time) the
+    # circuit alternates between ring- and drive-timed cycles
+    settled = np.abs(state["vc_next"] - vc) <= 1e-3 * (1.0 + np.abs(vc))
     state["output"] = output
     state["burst"] = burst
     load_power = _load_power(load, output)
@@ -632,7 +642,7 @@ def _solve_output(design: Design, bus, temperature, gain, load):
         item.name: getattr(losses, item.name) * (running if item.name == "startup" else scale)
         for item in fields(Losses)})
     output_power = np.where(running, load_power, 0.0)
-    state.update(scale=scale, running=running, losses=scaled, output_power=output_power,
+    state.update(scale=scale, running=running, settled=settled, losses=scaled, output_power=output_power,
                  input_power=output_power + scaled.total)
     return state
 
@@ -671,6 +681,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         mode=mode_names,
         on_end=np.array(ON_END)[state["on_end"]],
         off_end=np.array(OFF_END)[state["off_end"]],
+        settled=state["settled"],
         running=running,
         input_power=state["input_power"],
         output_power=state["output_power"],
