@@ -82,14 +82,6 @@ def test_worked_case_values_in_si(worked_cases):
         assert checked > 30, path.name
 
 
-def test_standby_case_structure(standby_case):
-    design = load_design(standby_case)
-    assert design.input.is_ac
-    assert design.output.load_max == Load("current", 0.5)
-    assert design.regulation.method == "feedback-winding"
-    assert design.clamp.type == "rcd"
-
-
 def test_design_from_dict_minimal(minimal_design_dict):
     design = design_from_dict(minimal_design_dict)
     assert design.source == "<dict>"
@@ -325,13 +317,15 @@ def test_not_a_mapping():
 # ------------------------------------------------------------- with_values
 def test_with_values_changes_only_the_named_key(standby_case):
     design = load_design(standby_case)
+    before = design.switch.hfe_min
+    assert before != 10.0
     variant = design.with_values({"switch.hfe_min": 10})
     assert variant.switch.hfe_min == 10.0
     assert variant.switch == dataclasses.replace(design.switch, hfe_min=10.0)
     for section in SECTIONS:
         if section != "switch":
             assert getattr(variant, section) == getattr(design, section), section
-    assert design.switch.hfe_min == 20.0  # the original is untouched
+    assert design.switch.hfe_min == before  # the original is untouched
 
 
 def test_with_values_accepts_unit_strings(standby_case):
