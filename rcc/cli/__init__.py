@@ -58,6 +58,7 @@ def main() -> None:  # console-script entry point
 # Command modules register on `app` when imported.
 from rcc.cli import check as _check  # noqa: E402,F401
 from rcc.cli import sweep as _sweep  # noqa: E402,F401
+from rcc.cli import startup as _startup  # noqa: E402,F401
 
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
