@@ -1,0 +1,23 @@
+"""Time-domain engine: exact event-driven simulation of the piecewise-linear circuit.
+
+Public API
+----------
+:func:`build_circuit` builds the circuit of a design at one operating
+condition (:mod:`rcc.engine.circuit`); :func:`simulate` integrates it from
+an initial state (:func:`dc_initial_state`, :func:`power_on_state`) and
+returns a :class:`Trace`; :func:`advance_cycle` advances one switching
+cycle turn-on to turn-on and returns what a periodic-steady-state solver
+needs (segment transition matrices, saltation matrices, monodromy).
+"""
+
+from rcc.engine.circuit import (SIGNAL_NAMES, SWITCH_STATES, Circuit, EngineError, Topology,
+                                build_circuit)
+from rcc.engine.simulate import (CycleResult, EventData, Segment, Trace, advance_cycle,
+                                 dc_initial_state, power_on_state, segment_energy,
+                                 settle_topology, simulate)
+
+__all__ = [
+    "Circuit", "Topology", "EngineError", "build_circuit", "SIGNAL_NAMES", "SWITCH_STATES",
+    "Trace", "Segment", "EventData", "CycleResult", "simulate", "advance_cycle",
+    "dc_initial_state", "power_on_state", "segment_energy", "settle_topology",
+]

@@ -1,0 +1,797 @@
+"""Piecewise-linear model of the free-running flyback, built by modified nodal analysis.
+
+The circuit of ``notes/circuit.md`` is written once as an element list
+(resistors, capacitors, inductors, resistive voltage sources, current
+sources, an ideal multi-winding transformer) plus a set of *devices* whose
+state (cut-off / active / saturated transistor, conducting or blocking
+diode, load region) switches elements in and out.  For every combination of
+device states (a *topology*) the resistive network that remains after
+replacing each capacitor by a voltage source of its state voltage and each
+inductor by a current source of its state current is solved by modified
+nodal analysis; the capacitor currents and inductor voltages then give the
+affine state equation ``dx/dt = A x + b`` of that topology.  Topologies are
+built lazily, when the engine first visits them, and cached.
+
+State vector order (see :attr:`Circuit.state_names`)::
+
+    0  i_leakage            primary current, bus -> primary (leakage inductance) [A]
+    1  i_magnetizing        magnetizing current referred to the primary [A]
+    2  v_node               collector-node capacitor voltage, collector to ground [V]
+    3  v_drive              drive capacitor voltage, feedback winding side minus base side [V]
+    4  q_base               stored base charge of the switch [C]
+    5  v_output_capacitor   output capacitor voltage (behind its ESR) [V]
+    6  v_aux                regulation filter capacitor (feedback-winding method only) [V]
+    6/7 v_clamp             RCD clamp capacitor, clamp node minus bus (RCD clamp only) [V]
+
+Device models
+-------------
+*Switch* (NPN): charge-control model with one state, the stored base charge
+``q`` (Moll 1954; Beaufoy & Sparkes 1957).  Cut-off: no junction current,
+``dq/dt = -q / tau_BF``.  Active: base-emitter junction as ``Vbe(T)`` plus a
+base resistance, collector current ``q / tau_F`` with ``tau_F = 1 / (2 pi fT)``
+and ``dq/dt = i_B - q / tau_BF``, ``tau_BF = hFE tau_F`` (so ``i_C = hFE i_B``
+in steady state).  Saturated: collector-emitter ``Vce,sat`` plus a
+resistance, ``dq/dt = i_B - i_C / hFE - (q - tau_F i_C) / tau_S``; the
+transistor leaves saturation when the excess charge ``q - tau_F i_C`` is
+gone, which puts the storage time in the model.  ``tau_S`` is chosen so
+that the storage time at the datasheet drive ``I_B1 = I_B2`` with hard
+overdrive equals ``switch.storage_time``: ``tau_S = t_s / ln 2``.
+Base-emitter reverse breakdown at ``switch.vebo``.
+
+*Limiter* (NPN): cut-off, active (``i_C = hFE i_B``), saturated; no charge
+storage (a small-signal transistor, much faster than the switch).
+
+*Diodes and zeners*: forward drop plus resistance, blocking otherwise.
+
+*Transformer*: magnetizing inductance (with the core-loss resistance in
+parallel) and a leakage inductance in series on the primary side, then an
+ideal transformer with the feedback, output and auxiliary windings.  This
+magnetizing-plus-leakage form stays well conditioned for coupling near 1.
+The feedback winding sees the magnetizing voltage only, so the leakage ring
+at turn-off cannot reach the base: that is how the false turn-on from the
+leakage ring is kept out of the model (a real winding couples part of it).
+
+*Load*: a resistance; a constant current (below ``LOAD_KNEE_FRACTION`` of
+the expected output voltage it behaves as a resistance through the origin,
+as an electronic load does near zero volts); a constant power, approximated
+by secants of the hyperbola ``i = P / v`` between geometrically spaced
+breakpoints (relative current error below 0.3 %), a resistance through the
+origin below the first breakpoint and a constant current above the last.
+
+A conductance ``GMIN`` from every node to ground keeps the nodal matrix
+regular in every topology  # common practice in circuit simulators
+
+References
+----------
+.. [1] C.-W. Ho, A. E. Ruehli, P. A. Brennan, "The modified nodal approach
+   to network analysis", IEEE Trans. Circuits and Systems 22(6), 1975.
+.. [2] J. L. Moll, "Large-signal transient response of junction
+   transistors", Proc. IRE 42(12), 1954.
+.. [3] R. Beaufoy, J. J. Sparkes, "The junction transistor as a
+   charge-controlled device", ATE Journal 13, 1957.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from rcc import devices
+from rcc.design import Design, Load
+
+__all__ = [
+    "Circuit",
+    "Topology",
+    "EngineError",
+    "build_circuit",
+    "SIGNAL_NAMES",
+    "SWITCH_STATES",
+]
+
+#: Conductance from every node to ground [S]  # common practice (gmin)
+GMIN = 1e-12
+#: Base spreading resistance of the switch [ohm]  # from memory: a few ohms for power BJTs
+SWITCH_BASE_RESISTANCE = 2.0
+#: Collector-emitter resistance added to Vce,sat in saturation [ohm]  # common practice
+SWITCH_SATURATION_RESISTANCE = 0.2
+#: Series resistance of the base-emitter reverse breakdown [ohm]  # common practice
+BREAKDOWN_RESISTANCE = 5.0
+#: Limiter base resistance, saturation voltage and resistance  # common practice
+LIMITER_BASE_RESISTANCE = 10.0
+LIMITER_SATURATION_VOLTAGE = 0.1
+LIMITER_SATURATION_RESISTANCE = 5.0
+#: Diode on-resistances [ohm]  # common practice for small rectifiers
+OUTPUT_RECTIFIER_RESISTANCE = 0.05
+AUX_RECTIFIER_RESISTANCE = 1.0
+CLAMP_DIODE_DROP = 1.0
+CLAMP_DIODE_RESISTANCE = 1.0
+CLAMP_ZENER_RESISTANCE = 2.0
+REGULATION_ZENER_RESISTANCE = 10.0
+#: Constant-current load: resistive below this fraction of the expected output voltage
+LOAD_KNEE_FRACTION = 0.2
+#: Constant-power load: breakpoints from 0.25x to 2x the expected voltage
+POWER_LOAD_SEGMENTS = 16
+#: Floor on the leakage inductance relative to the magnetizing inductance for
+#: a coupling of exactly 1 (no wound transformer comes closer)  # common practice
+MIN_LEAKAGE_FRACTION = 1e-4
+
+#: Named signals every trace carries.
+SIGNAL_NAMES = (
+    "collector_voltage",
+    "primary_current",
+    "base_current",
+    "limiter_current",
+    "feedback_voltage",
+    "output_voltage",
+    "collector_current",
+    "emitter_voltage",
+    "base_voltage",
+    "output_rectifier_current",
+    "clamp_current",
+    "bus_current",
+)
+
+#: States of the switch device, in index order.
+SWITCH_STATES = ("off", "active", "saturated", "breakdown")
+
+
+class EngineError(RuntimeError):
+    """The time-domain engine cannot continue (event storm, no consistent
+    topology, singular network, step limit)."""
+
+
+# --------------------------------------------------------------- elements
+@dataclass(frozen=True)
+class _Element:
+    kind: str            # "R", "C", "L", "V", "Istate", "CCCS", "W"
+    name: str
+    a: str
+    b: str
+    value: float = 0.0   # R [ohm], C [F], L [H], V0 [V], gain [1], ratio [1]
+    resistance: float = 0.0  # series resistance of a V element [ohm]
+    state: str = ""      # state variable (C, L, Istate)
+    control: str = ""    # controlling branch (CCCS)
+
+
+@dataclass(frozen=True)
+class _Guard:
+    terms: tuple         # ((kind, key, coefficient), ...)
+    target: int
+    tolerance: float
+    name: str
+
+
+@dataclass(frozen=True)
+class _DeviceState:
+    name: str
+    elements: tuple
+    guards: tuple
+    charge_law: tuple = ()   # terms of dq/dt (switch only)
+
+
+@dataclass(frozen=True)
+class _Device:
+    name: str
+    states: tuple
+
+
+@dataclass(frozen=True)
+class Topology:
+    """Affine state equation and event guards of one topology.
+
+    Attributes
+    ----------
+    code : int
+        Mixed-radix code of the device states.
+    device_states : tuple of int
+        State index of every device.
+    label : str
+        Readable ``device=state`` list.
+    A : ndarray, shape (n, n)
+        State matrix [1/s].
+    b : ndarray, shape (n,)
+        Constant input [state unit / s].
+    guard_gradients : ndarray, shape (g, n)
+        Gradient of every guard function with respect to the state.
+    guard_offsets : ndarray, shape (g,)
+        Constant of every guard; the topology holds while
+        ``guard_gradients @ x + guard_offsets > 0``.
+    guard_devices, guard_targets : ndarray of int, shape (g,)
+        Device a guard belongs to and the state it switches to.
+    guard_tolerances : ndarray, shape (g,)
+        Crossing tolerance of every guard (its own unit).
+    guard_names : tuple of str
+    signal_matrix : ndarray, shape (s, n)
+    signal_offset : ndarray, shape (s,)
+        ``signals = signal_matrix @ x + signal_offset`` in the order of
+        :data:`SIGNAL_NAMES`.
+    power_forms : dict of str to ndarray, shape (n+1, n+1)
+        Symmetric quadratic forms in ``[x, 1]`` of the power delivered by
+        the bus (``"input"``), taken by the load (``"output"``), dissipated
+        in all other elements (``"loss"``) and flowing into the reactive
+        elements (``"stored"``) [W].
+    """
+
+    code: int
+    device_states: tuple
+    label: str
+    A: np.ndarray
+    b: np.ndarray
+    guard_gradients: np.ndarray
+    guard_offsets: np.ndarray
+    guard_devices: np.ndarray
+    guard_targets: np.ndarray
+    guard_tolerances: np.ndarray
+    guard_names: tuple
+    signal_matrix: np.ndarray
+    signal_offset: np.ndarray
+    power_forms: dict = field(repr=False)
+
+    def signals(self, x):
+        """Named signals at state(s) ``x`` (shape (n,) or (k, n))."""
+        return np.asarray(x) @ self.signal_matrix.T + self.signal_offset
+
+    def vector_field(self, x):
+        """``A x + b`` at state ``x`` [state unit / s]."""
+        return self.A @ np.asarray(x) + self.b
+
+
+# ---------------------------------------------------------------- circuit
+@dataclass(frozen=True)
+class Circuit:
+    """The piecewise-linear circuit of one design at one operating condition.
+
+    Attributes
+    ----------
+    design : Design
+    bus_voltage : float
+        DC bus voltage [V].
+    load : Load
+    temperature : float
+        Junction temperature of all devices [K].
+    hfe : float
+        Switch current gain used (at ``temperature``) [1].
+    state_names : tuple of str
+        Order of the state vector.
+    device_names : tuple of str
+    device_state_names : tuple of tuple of str
+    parameters : dict
+        Device thresholds and time constants in SI units: ``vbe``,
+        ``vce_sat``, ``vebo``, ``tau_forward``, ``tau_storage``, ``hfe``,
+        ``limiter_vbe``, ``zener_voltage``, ``expected_output_voltage`` ...
+    """
+
+    design: Design
+    bus_voltage: float
+    load: Load
+    temperature: float
+    hfe: float
+    state_names: tuple
+    device_names: tuple
+    device_state_names: tuple
+    parameters: dict
+    _elements: tuple = field(repr=False)
+    _devices: tuple = field(repr=False)
+    _nodes: tuple = field(repr=False)
+    _signals: dict = field(repr=False)
+    _cache: dict = field(default_factory=dict, repr=False, compare=False)
+
+    # -------------------------------------------------------------- codes
+    @property
+    def n_states(self) -> int:
+        """Length of the state vector."""
+        return len(self.state_names)
+
+    @property
+    def radices(self) -> tuple:
+        """Number of states of every device."""
+        return tuple(len(device.states) for device in self._devices)
+
+    @property
+    def weights(self) -> tuple:
+        """Mixed-radix weight of every device in a topology code."""
+        weights, running = [], 1
+        for radix in self.radices:
+            weights.append(running)
+            running *= radix
+        return tuple(weights)
+
+    @property
+    def n_codes(self) -> int:
+        """Number of possible topology codes."""
+        return int(np.prod(self.radices))
+
+    def encode(self, device_states) -> int:
+        """Topology code of a tuple of device state indices."""
+        return int(sum(s * w for s, w in zip(device_states, self.weights)))
+
+    def decode(self, code: int) -> tuple:
+        """Device state indices of a topology code."""
+        return tuple((int(code) // w) % r for w, r in zip(self.weights, self.radices))
+
+    def state_index(self, name: str) -> int:
+        """Position of a state variable in the state vector."""
+        return self.state_names.index(name)
+
+    def device_index(self, name: str) -> int:
+        """Position of a device in the device list."""
+        return self.device_names.index(name)
+
+    # ----------------------------------------------------------- topology
+    def topology(self, code: int) -> Topology:
+        """The affine system and guards of one topology (built once, cached)."""
+        code = int(code)
+        if code not in self._cache:
+            self._cache[code] = _build_topology(self, code)
+        return self._cache[code]
+
+    def label(self, code: int) -> str:
+        """Readable description of a topology code."""
+        states = self.decode(code)
+        return ", ".join(f"{device.name}={device.states[s].name}"
+                         for device, s in zip(self._devices, states))
+
+
+# ------------------------------------------------------------- the builder
+def _expected_output_voltage(design: Design, temperature: float) -> float:
+    """Output voltage the regulation aims at, for load breakpoints only [V]."""
+    if design.output.voltage_target is not None:
+        return design.output.voltage_target
+    reg = design.regulation
+    if reg.method == "feedback-winding":
+        vz = float(devices.zener_voltage(reg.zener_voltage, reg.zener_tempco, temperature))
+        return (design.transformer.output_turns / design.transformer.feedback_turns) * (
+            vz + design.limiter.vbe + reg.rectifier_drop) - design.output.rectifier_drop
+    if reg.method == "optocoupler":
+        return reg.reference_voltage + reg.led_drop
+    return 12.0  # no regulation and no target: breakpoints only  # common practice
+
+
+def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: float,
+                  hfe: float | None = None) -> Circuit:
+    """Build the piecewise-linear circuit of a design at one operating condition.
+
+    Parameters
+    ----------
+    design : Design
+        The validated design.
+    bus_voltage : float
+        DC bus voltage [V].
+    load : Load
+        Output load (current, resistance or power).
+    temperature : float
+        Junction temperature of all semiconductors [K].
+    hfe : float, optional
+        Switch current gain at 25 degC [1]; default ``switch.hfe_typ``.  The
+        temperature law of :func:`rcc.devices.current_gain` is applied.
+
+    Returns
+    -------
+    Circuit
+
+    Notes
+    -----
+    Element values come from the design keys listed in ``notes/circuit.md``;
+    temperature laws from :mod:`rcc.devices`.  Model constants not in the
+    design file (junction resistances, limiter saturation voltage) are module
+    constants, marked as common practice.
+
+    References
+    ----------
+    .. [1] C.-W. Ho, A. E. Ruehli, P. A. Brennan, "The modified nodal
+       approach to network analysis", IEEE Trans. Circuits and Systems 22(6),
+       504-509, 1975.
+    """
+    if not (bus_voltage > 0 and math.isfinite(bus_voltage)):
+        raise ValueError(f"bus_voltage = {bus_voltage!r}: expected a positive voltage [V]")
+    if load.kind not in ("current", "resistance", "power"):
+        raise ValueError(f"load kind {load.kind!r}: expected current, resistance or power")
+    sw, tr, dr, lim = design.switch, design.transformer, design.drive, design.limiter
+    reg, out, clamp = design.regulation, design.output, design.clamp
+    hfe25 = sw.hfe_typ if hfe is None else float(hfe)
+    gain = float(devices.current_gain(hfe25, sw.hfe_tempco, temperature))
+    vbe = float(devices.base_emitter_voltage(sw.vbe, sw.vbe_tempco, temperature))
+    limiter_vbe = float(devices.base_emitter_voltage(lim.vbe, lim.vbe_tempco, temperature))
+    tau_f = 1.0 / (2.0 * math.pi * sw.transition_frequency)
+    tau_bf = gain * tau_f
+    tau_s = sw.storage_time / math.log(2.0)
+    expected = _expected_output_voltage(design, temperature)
+    leakage = max(tr.leakage_inductance, MIN_LEAKAGE_FRACTION * tr.magnetizing_inductance)
+    sign = 1.0 if tr.feedback_phase == "regenerative" else -1.0
+    np_turns = tr.primary_turns
+    has_aux = reg.method == "feedback-winding"
+    has_rcd = clamp.type == "rcd"
+
+    states = ["i_leakage", "i_magnetizing", "v_node", "v_drive", "q_base",
+              "v_output_capacitor"]
+    if has_aux:
+        states.append("v_aux")
+    if has_rcd:
+        states.append("v_clamp")
+
+    E = _Element
+    els = [E("V", "bus", "bus", "0", bus_voltage)]
+    primary_top = "bus"
+    if tr.primary_resistance > 0:
+        els.append(E("R", "primary_resistance", "bus", "p1", tr.primary_resistance))
+        primary_top = "p1"
+    els += [
+        E("L", "leakage", primary_top, "m", leakage, state="i_leakage"),
+        E("L", "magnetizing", "m", "c", tr.magnetizing_inductance, state="i_magnetizing"),
+        E("R", "core_loss", "m", "c", tr.core_loss_resistance),
+        E("C", "node", "c", "0", design.node_capacitance, state="v_node"),
+        E("W", "feedback_winding", "f", "0", sign * tr.feedback_turns / np_turns),
+        E("W", "output_winding", "s", "0", -tr.output_turns / np_turns),
+        E("R", "startup", "bus", "b", design.startup.resistance),
+        E("C", "drive", "f", "d", dr.capacitance, state="v_drive"),
+        E("R", "drive", "d", "b", dr.resistance),
+        E("R", "sense", "e", "0", lim.sense_resistance),
+        E("R", "limiter_base", "e", "l", lim.base_resistance),
+    ]
+    if dr.base_emitter_resistance is not None:
+        els.append(E("R", "base_emitter", "b", "e", dr.base_emitter_resistance))
+    output_node = "o"
+    if out.esr > 0:
+        els.append(E("R", "esr", "o", "oc", out.esr))
+        output_node = "oc"
+    els.append(E("C", "output", output_node, "0", out.capacitance, state="v_output_capacitor"))
+    if has_aux:
+        els += [E("W", "aux_winding", "w", "0", -tr.feedback_turns / np_turns),
+                E("C", "aux", "a", "0", reg.filter_capacitance, state="v_aux")]
+    if has_rcd:
+        els += [E("C", "clamp", "k", "bus", clamp.capacitance, state="v_clamp"),
+                E("R", "clamp", "k", "bus", clamp.resistance)]
+    if load.kind == "resistance":
+        els.append(E("R", "load", "o", "0", load.value if load.value > 0 else 1e12))
+
+    G = _Guard
+    DS = _DeviceState
+    devs = []
+    # ----- switch
+    be_on = E("V", "q1_be", "b", "e", vbe, SWITCH_BASE_RESISTANCE)
+    v_tol, i_tol = 1e-9, 1e-12
+    q_tol = tau_f * 1e-9
+    vbe_open = (("v", "b", 1.0), ("v", "e", -1.0))
+    devs.append(_Device("switch", (
+        DS("off", (), (
+            G((("c", "", vbe),) + _scale(vbe_open, -1.0), 1, v_tol, "switch base reaches Vbe"),
+            G((("c", "", sw.vebo),) + vbe_open, 3, v_tol, "switch base-emitter breakdown"),
+        ), (("x", "q_base", -1.0 / tau_bf),)),
+        DS("active", (be_on, E("Istate", "q1_collector", "c", "e", 1.0 / tau_f, state="q_base")), (
+            G((("x", "q_base", 1.0),), 0, q_tol, "switch stored charge gone"),
+            G((("v", "c", 1.0), ("v", "e", -1.0), ("c", "", -sw.vce_sat)), 2, v_tol,
+              "switch saturates"),
+        ), (("i", "q1_be", 1.0), ("x", "q_base", -1.0 / tau_bf))),
+        DS("saturated", (be_on, E("V", "q1_ce", "c", "e", sw.vce_sat,
+                                  SWITCH_SATURATION_RESISTANCE)), (
+            G((("x", "q_base", 1.0), ("i", "q1_ce", -tau_f)), 1, q_tol,
+              "switch excess charge gone (end of storage)"),
+        ), (("i", "q1_be", 1.0), ("i", "q1_ce", -1.0 / gain), ("x", "q_base", -1.0 / tau_s),
+            ("i", "q1_ce", tau_f / tau_s))),
+        DS("breakdown", (E("V", "q1_eb", "e", "b", sw.vebo, BREAKDOWN_RESISTANCE),), (
+            G((("i", "q1_eb", 1.0),), 0, i_tol, "base-emitter breakdown ends"),
+        ), (("x", "q_base", -1.0 / tau_bf),)),
+    )))
+    # ----- limiter
+    q2_be = E("V", "q2_be", "l", "0", limiter_vbe, LIMITER_BASE_RESISTANCE)
+    devs.append(_Device("limiter", (
+        DS("off", (), (G((("c", "", limiter_vbe), ("v", "l", -1.0)), 1, v_tol,
+                         "limiter base reaches Vbe"),)),
+        DS("active", (q2_be, E("CCCS", "q2_collector", "b", "0", lim.hfe, control="q2_be")), (
+            G((("i", "q2_be", 1.0),), 0, i_tol, "limiter base current ends"),
+            G((("v", "b", 1.0), ("c", "", -LIMITER_SATURATION_VOLTAGE)), 2, v_tol,
+              "limiter saturates"),
+        )),
+        DS("saturated", (q2_be, E("V", "q2_ce", "b", "0", LIMITER_SATURATION_VOLTAGE,
+                                  LIMITER_SATURATION_RESISTANCE)), (
+            G((("i", "q2_be", lim.hfe), ("i", "q2_ce", -1.0)), 1, i_tol,
+              "limiter leaves saturation"),
+            G((("i", "q2_be", 1.0),), 0, i_tol, "limiter base current ends"),
+        )),
+    )))
+    devs.append(_diode("output_rectifier", "s", "o", out.rectifier_drop,
+                       OUTPUT_RECTIFIER_RESISTANCE))
+    zener_v = None
+    if has_aux:
+        devs.append(_diode("aux_rectifier", "w", "a", reg.rectifier_drop,
+                           AUX_RECTIFIER_RESISTANCE))
+        zener_v = float(devices.zener_voltage(reg.zener_voltage, reg.zener_tempco, temperature))
+        devs.append(_diode("regulation_zener", "a", "l", zener_v,
+                           reg.series_resistance + REGULATION_ZENER_RESISTANCE))
+    elif reg.method == "optocoupler":
+        devs.append(_diode("optocoupler_led", "o", "0", reg.reference_voltage + reg.led_drop,
+                           reg.series_resistance,
+                           extra=(E("CCCS", "phototransistor", "0", "l", reg.ctr,
+                                    control="optocoupler_led"),)))
+    if clamp.type == "zener":
+        devs.append(_diode("clamp_zener", "c", "bus", clamp.voltage, CLAMP_ZENER_RESISTANCE))
+    elif has_rcd:
+        devs.append(_diode("clamp_diode", "c", "k", CLAMP_DIODE_DROP, CLAMP_DIODE_RESISTANCE))
+    if load.kind in ("current", "power"):
+        devs.append(_load_device(load, expected))
+
+    signals = {
+        "collector_voltage": lambda on: (("v", "c", 1.0),),
+        "primary_current": lambda on: (("x", "i_leakage", 1.0),),
+        "base_current": lambda on: (("i", "q1_be", 1.0), ("i", "q1_eb", -1.0)),
+        "limiter_current": lambda on: (
+            ("i", "q2_be", lim.hfe) if on["limiter"] == "active" else ("i", "q2_ce", 1.0),),
+        "feedback_voltage": lambda on: (("v", "f", 1.0),),
+        "output_voltage": lambda on: (("v", "o", 1.0),),
+        "collector_current": lambda on: (
+            ("x", "q_base", 1.0 / tau_f) if on["switch"] == "active" else ("i", "q1_ce", 1.0),),
+        "emitter_voltage": lambda on: (("v", "e", 1.0),),
+        "base_voltage": lambda on: (("v", "b", 1.0),),
+        "output_rectifier_current": lambda on: (("i", "output_rectifier", 1.0),),
+        "clamp_current": lambda on: (("i", "clamp_zener", 1.0), ("i", "clamp_diode", 1.0)),
+        "bus_current": lambda on: (("i", "bus", -1.0),),
+    }
+
+    nodes = {"0"}
+    for element in els:
+        nodes.update((element.a, element.b))
+    for device in devs:
+        for state in device.states:
+            for element in state.elements:
+                nodes.update((element.a, element.b))
+    node_list = ("0",) + tuple(sorted(nodes - {"0"}))
+
+    parameters = {
+        "vbe": vbe, "vce_sat": sw.vce_sat, "vebo": sw.vebo, "hfe": gain,
+        "tau_forward": tau_f, "tau_base": tau_bf, "tau_storage": tau_s,
+        "limiter_vbe": limiter_vbe, "limiter_hfe": lim.hfe,
+        "zener_voltage": zener_v, "leakage_inductance": leakage,
+        "magnetizing_inductance": tr.magnetizing_inductance,
+        "node_capacitance": design.node_capacitance,
+        "expected_output_voltage": expected,
+        "feedback_ratio": sign * tr.feedback_turns / np_turns,
+        "output_ratio": tr.output_turns / np_turns,
+    }
+    return Circuit(
+        design=design, bus_voltage=float(bus_voltage), load=load,
+        temperature=float(temperature), hfe=gain,
+        state_names=tuple(states),
+        device_names=tuple(d.name for d in devs),
+        device_state_names=tuple(tuple(s.name for s in d.states) for d in devs),
+        parameters=parameters,
+        _elements=tuple(els), _devices=tuple(devs), _nodes=node_list, _signals=signals,
+    )
+
+
+def _scale(terms, factor):
+    return tuple((kind, key, coefficient * factor) for kind, key, coefficient in terms)
+
+
+def _diode(name, anode, cathode, drop, resistance, extra=()):
+    """Diode or zener (breakdown direction given as anode -> cathode):
+    forward drop plus resistance when conducting, open when blocking."""
+    on = _Element("V", name, anode, cathode, drop, resistance)
+    return _Device(name, (
+        _DeviceState("off", (), (
+            _Guard((("c", "", drop), ("v", anode, -1.0), ("v", cathode, 1.0)), 1, 1e-9,
+                   f"{name} starts conducting"),)),
+        _DeviceState("on", (on,) + tuple(extra), (
+            _Guard((("i", name, 1.0),), 0, 1e-12, f"{name} current ends"),)),
+    ))
+
+
+def _load_device(load: Load, expected: float) -> _Device:
+    """Constant-current or constant-power load as piecewise-linear regions."""
+    if load.kind == "current":
+        knee = LOAD_KNEE_FRACTION * expected
+        current = load.value
+        regions = [(current / knee, 0.0), (0.0, current)]
+        breaks = [knee]
+    else:
+        power = load.value
+        breaks = list(expected * np.geomspace(0.25, 2.0, POWER_LOAD_SEGMENTS + 1))
+        regions = [(power / breaks[0] ** 2, 0.0)]
+        for low, high in zip(breaks[:-1], breaks[1:]):
+            slope = (power / high - power / low) / (high - low)
+            regions.append((slope, power / low - slope * low))
+        regions.append((0.0, power / breaks[-1]))
+    states = []
+    for k, (conductance, current) in enumerate(regions):
+        elements = []
+        if conductance != 0.0:
+            elements.append(_Element("R", f"load_r{k}", "o", "0", 1.0 / conductance)
+                            if conductance > 0 else
+                            _Element("Rneg", f"load_r{k}", "o", "0", 1.0 / conductance))
+        if current != 0.0:
+            elements.append(_Element("I", f"load_i{k}", "o", "0", current))
+        guards = []
+        if k > 0:
+            guards.append(_Guard((("v", "o", 1.0), ("c", "", -breaks[k - 1])), k - 1, 1e-9,
+                                 "load region down"))
+        if k < len(regions) - 1:
+            guards.append(_Guard((("c", "", breaks[k]), ("v", "o", -1.0)), k + 1, 1e-9,
+                                 "load region up"))
+        states.append(_DeviceState(f"region{k}", tuple(elements), tuple(guards)))
+    return _Device("load", tuple(states))
+
+
+def _build_topology(circuit: Circuit, code: int) -> Topology:
+    """Modified nodal analysis of the resistive network of one topology."""
+    device_states = circuit.decode(code)
+    elements = list(circuit._elements)
+    active = {}
+    charge_law = ()
+    for device, s in zip(circuit._devices, device_states):
+        state = device.states[s]
+        active[device.name] = state.name
+        elements.extend(state.elements)
+        if state.charge_law:
+            charge_law = state.charge_law
+    nodes = {name: k - 1 for k, name in enumerate(circuit._nodes)}  # ground -> -1
+    n_nodes = len(circuit._nodes) - 1
+    branches = [el for el in elements if el.kind in ("V", "C", "W")]
+    branch_index = {el.name: n_nodes + k for k, el in enumerate(branches)}
+    size = n_nodes + len(branches)
+    states = circuit.state_names
+    n = len(states)
+    sidx = {name: k for k, name in enumerate(states)}
+    G = np.zeros((size, size))
+    Bx = np.zeros((size, n))
+    B0 = np.zeros(size)
+    G[np.arange(n_nodes), np.arange(n_nodes)] += GMIN
+    primary = ("m", "c")
+
+    def add(row, col, value):
+        if row >= 0 and col >= 0:
+            G[row, col] += value
+
+    for el in elements:
+        a, b = nodes[el.a], nodes[el.b]
+        if el.kind in ("R", "Rneg"):
+            g = 1.0 / el.value
+            add(a, a, g), add(b, b, g), add(a, b, -g), add(b, a, -g)
+        elif el.kind in ("V", "C", "W"):
+            k = branch_index[el.name]
+            add(a, k, 1.0), add(b, k, -1.0), add(k, a, 1.0), add(k, b, -1.0)
+            if el.kind == "V":
+                G[k, k] -= el.resistance
+                B0[k] += el.value
+            elif el.kind == "C":
+                Bx[k, sidx[el.state]] += 1.0
+            else:  # ideal winding: v_a - v_b = ratio * (v_m - v_c)
+                p, q = nodes[primary[0]], nodes[primary[1]]
+                add(k, p, -el.value), add(k, q, el.value)
+                add(p, k, -el.value), add(q, k, el.value)
+        elif el.kind == "L":
+            s = sidx[el.state]
+            if a >= 0:
+                Bx[a, s] -= 1.0
+            if b >= 0:
+                Bx[b, s] += 1.0
+        elif el.kind == "Istate":
+            s = sidx[el.state]
+            if a >= 0:
+                Bx[a, s] -= el.value
+            if b >= 0:
+                Bx[b, s] += el.value
+        elif el.kind == "I":
+            if a >= 0:
+                B0[a] -= el.value
+            if b >= 0:
+                B0[b] += el.value
+        elif el.kind == "CCCS":
+            k = branch_index[el.control]
+            add(a, k, el.value), add(b, k, -el.value)
+        else:  # pragma: no cover - builder bug
+            raise AssertionError(el.kind)
+    try:
+        solution = np.linalg.solve(G, np.column_stack([Bx, B0]))
+    except np.linalg.LinAlgError:
+        raise EngineError(f"singular network in topology {circuit.label(code)}") from None
+    Zx, z0 = solution[:, :n], solution[:, n]
+
+    def linear(terms):
+        """Affine function of x for a term list: (gradient, offset)."""
+        grad = np.zeros(n)
+        offset = 0.0
+        for kind, key, coefficient in terms:
+            if kind == "v":
+                row = nodes[key]
+                if row >= 0:
+                    grad += coefficient * Zx[row]
+                    offset += coefficient * z0[row]
+            elif kind == "i":
+                if key in branch_index:
+                    row = branch_index[key]
+                    grad += coefficient * Zx[row]
+                    offset += coefficient * z0[row]
+            elif kind == "x":
+                grad[sidx[key]] += coefficient
+            else:
+                offset += coefficient
+        return grad, offset
+
+    A = np.zeros((n, n))
+    bvec = np.zeros(n)
+    for el in elements:
+        if el.kind == "C":
+            grad, offset = linear((("i", el.name, 1.0 / el.value),))
+        elif el.kind == "L":
+            grad, offset = linear((("v", el.a, 1.0 / el.value), ("v", el.b, -1.0 / el.value)))
+        else:
+            continue
+        A[sidx[el.state]], bvec[sidx[el.state]] = grad, offset
+    grad, offset = linear(charge_law)
+    A[sidx["q_base"]], bvec[sidx["q_base"]] = grad, offset
+
+    guards = [(di, guard) for di, (device, s) in enumerate(zip(circuit._devices, device_states))
+              for guard in device.states[s].guards]
+    gg = np.zeros((len(guards), n))
+    go = np.zeros(len(guards))
+    for row, (_, guard) in enumerate(guards):
+        gg[row], go[row] = linear(guard.terms)
+    sm = np.zeros((len(SIGNAL_NAMES), n))
+    so = np.zeros(len(SIGNAL_NAMES))
+    for row, name in enumerate(SIGNAL_NAMES):
+        sm[row], so[row] = linear(circuit._signals[name](active))
+
+    power_forms = _power_forms(circuit, elements, nodes, branch_index, linear, n)
+    return Topology(
+        code=code, device_states=device_states, label=circuit.label(code),
+        A=A, b=bvec,
+        guard_gradients=gg, guard_offsets=go,
+        guard_devices=np.array([di for di, _ in guards], dtype=np.int64),
+        guard_targets=np.array([g.target for _, g in guards], dtype=np.int64),
+        guard_tolerances=np.array([g.tolerance for _, g in guards]),
+        guard_names=tuple(g.name for _, g in guards),
+        signal_matrix=sm, signal_offset=so, power_forms=power_forms,
+    )
+
+
+def _power_forms(circuit, elements, nodes, branch_index, linear, n):
+    """Quadratic forms in [x, 1] of input, output, loss and stored power.
+
+    Every element's absorbed power is (voltage across) x (current through),
+    both affine in x; Tellegen's theorem makes their sum zero, so input =
+    output + loss + stored holds pointwise and integrates exactly along the
+    true trajectory.
+    """
+    def aug(terms):
+        grad, offset = linear(terms)
+        return np.append(grad, offset)
+
+    def product(u, w):
+        form = np.outer(u, w)
+        return 0.5 * (form + form.T)
+
+    forms = {key: np.zeros((n + 1, n + 1)) for key in ("input", "output", "loss", "stored")}
+    for el in elements:
+        voltage = aug((("v", el.a, 1.0), ("v", el.b, -1.0)))
+        if el.kind in ("R", "Rneg"):
+            current = voltage / el.value
+        elif el.kind in ("V", "C", "W"):
+            current = aug((("i", el.name, 1.0),))
+        elif el.kind in ("L",):
+            current = aug((("x", el.state, 1.0),))
+        elif el.kind == "Istate":
+            current = aug((("x", el.state, el.value),))
+        elif el.kind == "I":
+            current = aug((("c", "", el.value),))
+        elif el.kind == "CCCS":
+            current = aug((("i", el.control, el.value),))
+        else:  # pragma: no cover
+            raise AssertionError(el.kind)
+        absorbed = product(voltage, current)
+        if el.name == "bus":
+            forms["input"] -= absorbed
+        elif el.name.startswith("load"):
+            forms["output"] += absorbed
+        elif el.kind in ("C", "L"):
+            forms["stored"] += absorbed
+        else:
+            forms["loss"] += absorbed
+    # ideal transformer primary (current -sum ratio_k i_k from m to c)
+    primary_voltage = aug((("v", "m", 1.0), ("v", "c", -1.0)))
+    current = np.zeros(n + 1)
+    for el in elements:
+        if el.kind == "W":
+            current -= el.value * aug((("i", el.name, 1.0),))
+    forms["loss"] += product(primary_voltage, current)
+    return forms

@@ -1,0 +1,964 @@
+"""Event-driven exact integration of the piecewise-linear circuit.
+
+Inside one topology the state obeys ``dx/dt = A x + b`` and its exact
+solution over a step ``h`` is one matrix-vector product with the
+exponential of the augmented matrix ``[[A, b], [0, 0]] h`` (Van Loan 1978;
+Moler & Van Loan 2003, method 2 with the "augmented" form).  For every
+topology the engine precomputes these exponentials for a dyadic ladder of
+step lengths ``h_top, h_top/2, ..., >= MIN_STEP``; any instant in a step is
+then reached exactly by a product of ladder matrices, so a switching
+instant is found by bisection on the exact segment solution, never by a
+low-order interpolation.  ``h_top`` resolves every lightly damped
+oscillation of the topology (at most a third of a half period), so a guard
+cannot cross and recross unseen between samples; a cubic Hermite test on
+guard values and slopes refines the step where a guard dips between samples.
+
+Pitfalls and how they are handled:
+
+* *root finder just before a crossing*: the bisection keeps a bracket and
+  commits to its upper end, the exact state just past the crossing (within
+  ``MIN_STEP``);
+* *zero-length segments*: after every switch all guards of the new topology
+  are checked at the same instant (value and slope) and further switches
+  are applied before time advances; more than ``MAX_CHAIN`` in a row is an
+  error (no consistent topology);
+* *event storms / Zeno behaviour*: more than ``STORM_EVENTS`` events within
+  ``STORM_WINDOW`` raise :class:`EngineError`, as does exceeding
+  ``max_events``.
+
+The hot loop is compiled with numba (``cache=True``).
+
+References
+----------
+.. [1] C. F. Van Loan, "Computing integrals involving the matrix
+   exponential", IEEE Trans. Automatic Control 23(3), 395-404, 1978.
+.. [2] C. Moler, C. Van Loan, "Nineteen dubious ways to compute the
+   exponential of a matrix, twenty-five years later", SIAM Review 45(1),
+   3-49, 2003.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg
+from numba import njit
+
+from rcc.engine.circuit import SIGNAL_NAMES, Circuit, EngineError, Topology
+
+__all__ = [
+    "Trace",
+    "CycleResult",
+    "Segment",
+    "EventData",
+    "simulate",
+    "dc_initial_state",
+    "advance_cycle",
+    "power_on_state",
+    "segment_energy",
+    "MIN_STEP",
+]
+
+#: Finest step of the ladder: resolution of switching instants [s].
+MIN_STEP = 1e-15
+#: Longest step in any topology [s].
+MAX_STEP = 1e-4
+#: Most ladder levels.
+MAX_LEVELS = 40
+#: Event-storm guard: this many events within STORM_WINDOW is an error.
+STORM_EVENTS = 200
+STORM_WINDOW = 1e-9
+#: Most switches at one instant (zero-length segments in a row).
+MAX_CHAIN = 64
+
+# kernel status codes
+_DONE, _NEED, _FULL, _STOP, _STORM, _CHAIN, _EVENTS = 0, 1, 2, 3, 4, 5, 6
+
+
+# ---------------------------------------------------------------- results
+@dataclass(frozen=True)
+class Trace:
+    """Simulated waveforms.
+
+    Attributes
+    ----------
+    times : ndarray, shape (k,)
+        Sample instants [s]; an event appears twice (before and after the
+        switch, same instant).
+    states : ndarray, shape (k, n)
+        State vector at each sample (order: ``circuit.state_names``).
+    topologies : ndarray of int, shape (k,)
+        Topology code at each sample.
+    signals : dict of str to ndarray
+        Named signals (:data:`rcc.engine.circuit.SIGNAL_NAMES`): collector
+        voltage [V], primary current [A], base current [A], limiter
+        collector current [A], feedback winding voltage [V], output voltage
+        [V], switch collector current [A], emitter voltage [V], base
+        voltage [V], output rectifier current [A], clamp current [A], bus
+        current [A].
+    event_times : ndarray, shape (m,)
+        Switching instants [s].
+    event_from, event_to : ndarray of int, shape (m,)
+        Topology codes before and after each switch.
+    event_devices : ndarray of int, shape (m,)
+        Device that switched (index into ``circuit.device_names``).
+    final_state : ndarray, shape (n,)
+        State at the end [state units].
+    final_topology : int
+        Topology code at the end.
+    final_time : float
+        Time reached [s].
+    stopped : bool
+        True if the run ended on a requested stop event.
+    """
+
+    times: np.ndarray
+    states: np.ndarray
+    topologies: np.ndarray
+    signals: dict
+    event_times: np.ndarray
+    event_from: np.ndarray
+    event_to: np.ndarray
+    event_devices: np.ndarray
+    final_state: np.ndarray
+    final_topology: int
+    final_time: float
+    stopped: bool
+
+    def __getitem__(self, name: str) -> np.ndarray:
+        return self.signals[name]
+
+
+@dataclass(frozen=True)
+class Segment:
+    """One smooth piece of a trajectory (one topology).
+
+    Attributes
+    ----------
+    topology : int
+        Topology code.
+    start, duration : float
+        Start time and length [s] (length may be zero).
+    start_state : ndarray, shape (n,)
+        State at the start.
+    transition : ndarray, shape (n, n)
+        Exact state-transition matrix ``expm(A * duration)`` [1].
+    """
+
+    topology: int
+    start: float
+    duration: float
+    start_state: np.ndarray
+    transition: np.ndarray
+
+
+@dataclass(frozen=True)
+class EventData:
+    """One switching event, with what a saltation matrix needs.
+
+    Attributes
+    ----------
+    time : float
+        Instant [s].
+    state : ndarray, shape (n,)
+        State at the event (continuous across it).
+    topology_before, topology_after : int
+        Codes before and after.
+    device : int
+        Switching device index.
+    guard_gradient : ndarray, shape (n,)
+        Gradient of the guard function that fired (in the topology before).
+    field_before, field_after : ndarray, shape (n,)
+        Vector fields ``A x + b`` before and after [state unit / s].
+    saltation : ndarray, shape (n, n)
+        ``I + (f+ - f-) grad^T / (grad . f-)`` (di Bernardo et al. 2008,
+        eq. 2.32 form for a state-independent jump map); identity when the
+        guard is crossed tangentially.
+    """
+
+    time: float
+    state: np.ndarray
+    topology_before: int
+    topology_after: int
+    device: int
+    guard_gradient: np.ndarray
+    field_before: np.ndarray
+    field_after: np.ndarray
+    saltation: np.ndarray
+
+
+@dataclass(frozen=True)
+class CycleResult:
+    """One switching cycle from a switch turn-on to the next.
+
+    Attributes
+    ----------
+    start_state, end_state : ndarray, shape (n,)
+        State at the two turn-on events (the Poincare section).
+    start_topology, end_topology : int
+        Topology codes just after the turn-ons.
+    period : float
+        Time between the turn-ons [s].
+    segments : tuple of Segment
+    events : tuple of EventData
+        Events inside the cycle in time order, including the closing
+        turn-on (the opening one is not included).
+    monodromy : ndarray, shape (n, n)
+        Product of segment transitions and saltation matrices in time
+        order: the Jacobian of the flow from just after the opening
+        turn-on to just after the closing one, with the closing event time
+        free (before the Poincare-section projection).
+    """
+
+    start_state: np.ndarray
+    end_state: np.ndarray
+    start_topology: int
+    end_topology: int
+    period: float
+    segments: tuple
+    events: tuple
+    monodromy: np.ndarray
+
+
+# ---------------------------------------------------------------- kernel
+@njit(cache=True)
+def _guards_violated(gc, gd, gt, ng, x, n):
+    for g in range(ng):
+        value = gd[g]
+        for j in range(n):
+            value += gc[g, j] * x[j]
+        if value < -gt[g]:
+            return True
+    return False
+
+
+@njit(cache=True)
+def _propagate(phi, x, out, n):
+    for i in range(n):
+        acc = phi[i, n]
+        for j in range(n):
+            acc += phi[i, j] * x[j]
+        out[i] = acc
+
+
+@njit(cache=True)
+def _field(A, b, x, out, n):
+    for i in range(n):
+        acc = b[i]
+        for j in range(n):
+            acc += A[i, j] * x[j]
+        out[i] = acc
+
+
+@njit(cache=True)
+def _kernel(x, t, slot, t_end, max_step,
+            slot_of_code, code_of_slot, weights, radices,
+            ladder, steps, top_level, nlevels, A, b,
+            gc, gd, gt, gdev, gtarget, ng,
+            rec_t, rec_x, rec_code, rec_n, record,
+            ev_t, ev_from, ev_to, ev_dev, ev_guard, ev_n, max_events,
+            stop_dev, stop_to, stop_after,
+            storm, storm_pos):
+    """Advance until t_end, a stop event, a missing topology or a full buffer.
+
+    Returns (status, slot, t, missing_code, rec_n, ev_n, storm_pos).
+    """
+    n = x.shape[0]
+    x1 = np.empty(n)
+    xm = np.empty(n)
+    lo = np.empty(n)
+    f0 = np.empty(n)
+    f1 = np.empty(n)
+    cap_rec = rec_t.shape[0]
+    cap_ev = ev_t.shape[0]
+    while True:
+        # ---- consistency: switch while some guard is violated at x
+        for chain in range(MAX_CHAIN + 1):
+            if chain == MAX_CHAIN:
+                return _CHAIN, slot, t, -1, rec_n, ev_n, storm_pos
+            _field(A[slot], b[slot], x, f0, n)
+            fired = -1
+            for g in range(ng[slot]):
+                value = gd[slot, g]
+                slope = 0.0
+                for j in range(n):
+                    value += gc[slot, g, j] * x[j]
+                    slope += gc[slot, g, j] * f0[j]
+                if value < -gt[slot, g] or (value <= gt[slot, g] and slope < 0.0):
+                    fired = g
+                    break
+            if fired < 0:
+                break
+            dev = gdev[slot, fired]
+            code = code_of_slot[slot]
+            current = (code // weights[dev]) % radices[dev]
+            new_code = code + (gtarget[slot, fired] - current) * weights[dev]
+            new_slot = slot_of_code[new_code]
+            if new_slot < 0:
+                return _NEED, slot, t, new_code, rec_n, ev_n, storm_pos
+            if ev_n >= cap_ev or (record and rec_n >= cap_rec):
+                return _FULL, slot, t, -1, rec_n, ev_n, storm_pos
+            if ev_n >= max_events:
+                return _EVENTS, slot, t, -1, rec_n, ev_n, storm_pos
+            ev_t[ev_n] = t
+            ev_from[ev_n] = code
+            ev_to[ev_n] = new_code
+            ev_dev[ev_n] = dev
+            ev_guard[ev_n] = fired
+            ev_n += 1
+            # storm guard: ring buffer of recent event times
+            oldest = storm[storm_pos]
+            storm[storm_pos] = t
+            storm_pos = (storm_pos + 1) % storm.shape[0]
+            if t - oldest < STORM_WINDOW:
+                return _STORM, new_slot, t, -1, rec_n, ev_n, storm_pos
+            slot = new_slot
+            if record:
+                rec_t[rec_n] = t
+                rec_x[rec_n, :] = x
+                rec_code[rec_n] = new_code
+                rec_n += 1
+            if dev == stop_dev and current == 0 and gtarget[slot_of_code[code], fired] == stop_to \
+                    and t > stop_after:
+                return _STOP, slot, t, -1, rec_n, ev_n, storm_pos
+        # ---- one step (or a bisection to the next event)
+        if t >= t_end:
+            return _DONE, slot, t, -1, rec_n, ev_n, storm_pos
+        if record and rec_n + 2 >= cap_rec:
+            return _FULL, slot, t, -1, rec_n, ev_n, storm_pos
+        level = top_level[slot]
+        last = nlevels[slot] - 1
+        remaining = min(t_end - t, max_step)
+        while level < last and steps[slot, level] > remaining:
+            level += 1
+        if steps[slot, level] > t_end - t:
+            t = t_end
+            continue
+        refinements = 0
+        while True:
+            _propagate(ladder[slot, level], x, x1, n)
+            if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], x1, n):
+                break
+            # Hermite test for a guard dipping below zero inside the step
+            dip = False
+            if refinements < 12 and level < last:
+                _field(A[slot], b[slot], x, f0, n)
+                _field(A[slot], b[slot], x1, f1, n)
+                h = steps[slot, level]
+                for g in range(ng[slot]):
+                    v0 = gd[slot, g]
+                    v1 = gd[slot, g]
+                    s0 = 0.0
+                    s1 = 0.0
+                    for j in range(n):
+                        v0 += gc[slot, g, j] * x[j]
+                        v1 += gc[slot, g, j] * x1[j]
+                        s0 += gc[slot, g, j] * f0[j]
+                        s1 += gc[slot, g, j] * f1[j]
+                    if s0 < 0.0 and s1 > 0.0:
+                        for k in range(1, 4):
+                            u = 0.25 * k
+                            h00 = 2 * u ** 3 - 3 * u ** 2 + 1
+                            h10 = u ** 3 - 2 * u ** 2 + u
+                            h01 = -2 * u ** 3 + 3 * u ** 2
+                            h11 = u ** 3 - u ** 2
+                            value = h00 * v0 + h10 * h * s0 + h01 * v1 + h11 * h * s1
+                            if value < -gt[slot, g]:
+                                dip = True
+                if dip:
+                    level += 1
+                    refinements += 1
+                    continue
+            break
+        if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], x1, n):
+            # bisection on the exact solution: bracket [lo, x1]
+            for j in range(n):
+                lo[j] = x[j]
+            t_lo = t
+            t_hi = t + steps[slot, level]
+            for m in range(level + 1, nlevels[slot]):
+                _propagate(ladder[slot, m], lo, xm, n)
+                if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], xm, n):
+                    for j in range(n):
+                        x1[j] = xm[j]
+                    t_hi = t_lo + steps[slot, m]
+                else:
+                    for j in range(n):
+                        lo[j] = xm[j]
+                    t_lo = t_lo + steps[slot, m]
+            for j in range(n):
+                x[j] = x1[j]
+            t = t_hi
+        else:
+            for j in range(n):
+                x[j] = x1[j]
+            t = t + steps[slot, level]
+        if record:
+            rec_t[rec_n] = t
+            rec_x[rec_n, :] = x
+            rec_code[rec_n] = code_of_slot[slot]
+            rec_n += 1
+
+
+# ------------------------------------------------------------ topology store
+class _Store:
+    """Arrays of all topologies built so far, in the layout the kernel reads."""
+
+    def __init__(self, circuit: Circuit, capacity: int = 32):
+        self.circuit = circuit
+        n = circuit.n_states
+        self.n = n
+        self.capacity = capacity
+        self.count = 0
+        self.max_guards = 2 * len(circuit.device_names) + 2
+        self.slot_of_code = np.full(circuit.n_codes, -1, dtype=np.int64)
+        self.code_of_slot = np.zeros(capacity, dtype=np.int64)
+        self.weights = np.array(circuit.weights, dtype=np.int64)
+        self.radices = np.array(circuit.radices, dtype=np.int64)
+        self.ladder = np.zeros((capacity, MAX_LEVELS, n + 1, n + 1))
+        self.steps = np.zeros((capacity, MAX_LEVELS))
+        self.top_level = np.zeros(capacity, dtype=np.int64)
+        self.nlevels = np.zeros(capacity, dtype=np.int64)
+        self.A = np.zeros((capacity, n, n))
+        self.b = np.zeros((capacity, n))
+        self.gc = np.zeros((capacity, self.max_guards, n))
+        self.gd = np.zeros((capacity, self.max_guards))
+        self.gt = np.zeros((capacity, self.max_guards))
+        self.gdev = np.zeros((capacity, self.max_guards), dtype=np.int64)
+        self.gtarget = np.zeros((capacity, self.max_guards), dtype=np.int64)
+        self.ng = np.zeros(capacity, dtype=np.int64)
+
+    def _grow(self):
+        new = 2 * self.capacity
+        for name in ("code_of_slot", "ladder", "steps", "top_level", "nlevels", "A", "b",
+                     "gc", "gd", "gt", "gdev", "gtarget", "ng"):
+            old = getattr(self, name)
+            grown = np.zeros((new,) + old.shape[1:], dtype=old.dtype)
+            grown[: self.capacity] = old
+            setattr(self, name, grown)
+        self.capacity = new
+
+    def ensure(self, code: int) -> int:
+        slot = int(self.slot_of_code[code])
+        if slot >= 0:
+            return slot
+        if self.count == self.capacity:
+            self._grow()
+        slot = self.count
+        topology = self.circuit.topology(code)
+        n = self.n
+        ng = len(topology.guard_offsets)
+        if ng > self.max_guards:  # pragma: no cover - sized above
+            raise EngineError("too many guards in one topology")
+        self.A[slot], self.b[slot] = topology.A, topology.b
+        self.gc[slot, :ng] = topology.guard_gradients
+        self.gd[slot, :ng] = topology.guard_offsets
+        self.gt[slot, :ng] = topology.guard_tolerances
+        self.gdev[slot, :ng] = topology.guard_devices
+        self.gtarget[slot, :ng] = topology.guard_targets
+        self.ng[slot] = ng
+        h_top = _top_step(topology.A)
+        levels = min(MAX_LEVELS, max(2, int(math.ceil(math.log2(h_top / MIN_STEP))) + 1))
+        augmented = np.zeros((n + 1, n + 1))
+        augmented[:n, :n] = topology.A
+        augmented[:n, n] = topology.b
+        self.ladder[slot, :levels] = _ladder(augmented, h_top, levels)
+        self.steps[slot, :levels] = h_top * 2.0 ** (-np.arange(levels))
+        self.nlevels[slot] = levels
+        self.top_level[slot] = 0
+        if not np.all(np.isfinite(self.ladder[slot, :levels])):
+            raise EngineError(f"non-finite matrix exponential in topology "
+                              f"{self.circuit.label(code)}")
+        self.code_of_slot[slot] = code
+        self.slot_of_code[code] = slot
+        self.count += 1
+        return slot
+
+
+def _ladder(augmented: np.ndarray, h_top: float, levels: int) -> np.ndarray:
+    """``expm(augmented * h_top * 2**-j)`` for ``j = 0 .. levels-1``.
+
+    Levels where the scaled matrix has 1-norm at most 1/2 use the Taylor
+    series (truncated when a term falls below 1e-18 of the sum; the remainder
+    is then below that bound because the norm is below 1/2); each coarser
+    level is the square of the next finer one, the squaring phase of scaling
+    and squaring (Moler & Van Loan 2003, method 3; Higham 2005).  Entries
+    below 1e-100 are flushed to zero so that decayed stiff modes leave no
+    subnormal numbers behind (they make matrix products very slow).
+    """
+    out = np.empty((levels,) + augmented.shape)
+    norm = np.abs(augmented).sum(axis=0).max()
+    size = augmented.shape[0]
+    for level in range(levels - 1, -1, -1):
+        h = h_top * 2.0 ** (-level)
+        if level == levels - 1 or norm * h <= 0.5:
+            scaled = augmented * h
+            scaled[np.abs(scaled) < 1e-100] = 0.0
+            total = np.eye(size)
+            term = np.eye(size)
+            for k in range(1, 60):
+                term = term @ scaled / k
+                term[np.abs(term) < 1e-100] = 0.0
+                total += term
+                if np.abs(term).max() <= 1e-18 * np.abs(total).max():
+                    break
+            out[level] = total
+        else:
+            finer = out[level + 1].copy()
+            finer[np.abs(finer) < 1e-100] = 0.0
+            out[level] = finer @ finer
+    return out
+
+
+def _top_step(A: np.ndarray) -> float:
+    """Longest ladder step for a state matrix: a sixth of the period of its
+    fastest lightly damped oscillation, half the time constant of its
+    fastest growing mode, at most MAX_STEP [s]."""
+    eigenvalues = np.linalg.eigvals(A)
+    h = MAX_STEP
+    for value in eigenvalues:
+        omega = abs(value.imag)
+        if omega > 0 and abs(value.real) < 2.0 * omega:
+            h = min(h, math.pi / (3.0 * omega))
+        if value.real > 0:
+            h = min(h, 0.5 / value.real)
+    return h
+
+
+def _store(circuit: Circuit) -> _Store:
+    store = circuit._cache.get("__store__")
+    if store is None:
+        store = _Store(circuit)
+        circuit._cache["__store__"] = store
+    return store
+
+
+# ------------------------------------------------------------ public API
+def power_on_state(circuit: Circuit) -> np.ndarray:
+    """State at switch-on: every capacitor discharged, no current, no charge.
+
+    Parameters
+    ----------
+    circuit : Circuit
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Zero state (the bus is switched on at t = 0) [state units].
+    """
+    return np.zeros(circuit.n_states)
+
+
+def dc_initial_state(circuit: Circuit, from_dc_point: bool = False):
+    """Initial state of a run: power-on, or the DC operating point.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    from_dc_point : bool
+        False: all capacitors discharged (power-on).  True: the equilibrium
+        ``A x + b = 0`` of the topology the circuit settles in when
+        switching is suppressed, found by iterating topology and
+        equilibrium until the guards agree.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        The state [state units].
+
+    Raises
+    ------
+    EngineError
+        If no consistent DC point is found in 50 iterations.
+    """
+    if not from_dc_point:
+        return power_on_state(circuit)
+    code = settle_topology(circuit, np.zeros(circuit.n_states), 0)
+    x = np.zeros(circuit.n_states)
+    for _ in range(50):
+        topology = circuit.topology(code)
+        x, *_ = np.linalg.lstsq(topology.A, -topology.b, rcond=None)
+        new_code = settle_topology(circuit, x, code, slopes=False)
+        if new_code == code:
+            return x
+        code = new_code
+    raise EngineError("no consistent DC operating point found in 50 iterations")
+
+
+def settle_topology(circuit: Circuit, x, code: int = 0, slopes: bool = True) -> int:
+    """The topology consistent with state ``x``, starting from ``code``.
+
+    Applies violated guards one at a time (value below minus its tolerance,
+    or at zero and falling when ``slopes``) until none is violated.
+
+    Returns
+    -------
+    int
+        Topology code.
+    """
+    x = np.asarray(x, dtype=float)
+    for _ in range(MAX_CHAIN):
+        topology = circuit.topology(code)
+        values = topology.guard_gradients @ x + topology.guard_offsets
+        field = topology.vector_field(x)
+        rates = topology.guard_gradients @ field
+        tol = topology.guard_tolerances
+        bad = values < -tol
+        if slopes:
+            bad |= (values <= tol) & (rates < 0)
+        if not bad.any():
+            return code
+        g = int(np.argmax(bad))
+        dev = int(topology.guard_devices[g])
+        states = list(circuit.decode(code))
+        states[dev] = int(topology.guard_targets[g])
+        code = circuit.encode(states)
+    raise EngineError(f"no consistent topology at the given state (last: {circuit.label(code)})")
+
+
+def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
+             record: bool = True, topology: int | None = None, max_step: float | None = None,
+             progress=None, stop_on_turn_on: int = 0, stop_after: float = 0.0,
+             t_start: float = 0.0) -> Trace:
+    """Integrate the circuit exactly from ``x0`` over ``[t_start, t_end]``.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    x0 : array_like, shape (n,)
+        Initial state (order ``circuit.state_names``).
+    t_end : float
+        End time [s].
+    max_events : int
+        Most switching events; more raise :class:`EngineError` (a Zeno or
+        runaway guard).
+    record : bool
+        Keep every step (True) or only the events and the final state.
+    topology : int, optional
+        Initial topology code; default: settled from ``x0``.
+    max_step : float, optional
+        Longest step (finer waveforms for plots) [s].
+    progress : callable, optional
+        Called as ``progress(t, t_end)`` about a hundred times.
+    stop_on_turn_on : int
+        Stop at this many switch turn-ons (cut-off -> active) after
+        ``stop_after``; 0 runs to ``t_end``.
+    stop_after : float
+        Turn-ons at or before this time are not counted [s].
+    t_start : float
+        Initial time [s].
+
+    Returns
+    -------
+    Trace
+
+    Raises
+    ------
+    EngineError
+        On an event storm, too many events, or no consistent topology.
+    """
+    x = np.array(x0, dtype=float).copy()
+    if x.shape != (circuit.n_states,) or not np.all(np.isfinite(x)):
+        raise ValueError(f"x0: expected {circuit.n_states} finite numbers, got {x0!r}")
+    if not t_end > t_start:
+        raise ValueError(f"t_end = {t_end!r}: expected a time after t_start = {t_start!r} [s]")
+    store = _store(circuit)
+    code = settle_topology(circuit, x, 0 if topology is None else int(topology))
+    slot = store.ensure(code)
+    step_cap = math.inf if max_step is None else float(max_step)
+    capacity = 65536 if record else 16
+    rec_t = np.empty(capacity)
+    rec_x = np.empty((capacity, circuit.n_states))
+    rec_code = np.empty(capacity, dtype=np.int64)
+    ev_cap = 65536
+    ev_t = np.empty(ev_cap)
+    ev_from = np.empty(ev_cap, dtype=np.int64)
+    ev_to = np.empty(ev_cap, dtype=np.int64)
+    ev_dev = np.empty(ev_cap, dtype=np.int64)
+    ev_guard = np.empty(ev_cap, dtype=np.int64)
+    chunks_t, chunks_x, chunks_c = [], [], []
+    events = ([], [], [], [])
+    total_events = 0
+    storm = np.full(STORM_EVENTS, -np.inf)
+    storm_pos = 0
+    rec_n = ev_n = 0
+    t = float(t_start)
+    if record:
+        rec_t[0], rec_x[0], rec_code[0] = t, x, code
+        rec_n = 1
+    switch = circuit.device_index("switch")
+    stop_dev = switch if stop_on_turn_on > 0 else -1
+    turn_ons = 0
+    stopped = False
+    settle_only = False
+    span = t_end - t_start
+    chunk_end = t_end if progress is None else t_start + span / 100.0
+    while True:
+        end = t if settle_only else min(chunk_end, t_end)
+        status, slot, t, missing, rec_n, ev_n, storm_pos = _kernel(
+            x, t, slot, end, step_cap,
+            store.slot_of_code, store.code_of_slot, store.weights, store.radices,
+            store.ladder, store.steps, store.top_level, store.nlevels, store.A, store.b,
+            store.gc, store.gd, store.gt, store.gdev, store.gtarget, store.ng,
+            rec_t, rec_x, rec_code, rec_n, record,
+            ev_t, ev_from, ev_to, ev_dev, ev_guard, ev_n, max_events - total_events,
+            -1 if settle_only else stop_dev, 1, stop_after, storm, storm_pos)
+        if status == _NEED:
+            store.ensure(int(missing))
+            continue
+        if status == _STORM:
+            raise EngineError(
+                f"event storm: {STORM_EVENTS} switching events within {STORM_WINDOW:g} s "
+                f"at t = {t:.9g} s (topology {circuit.label(int(store.code_of_slot[slot]))}); "
+                "the circuit chatters between topologies (undamped ringing or a "
+                "marginal device): add damping or check the design")
+        if status == _CHAIN:
+            raise EngineError(
+                f"no consistent topology at t = {t:.9g} s after {MAX_CHAIN} switches at "
+                f"one instant (last: {circuit.label(int(store.code_of_slot[slot]))})")
+        if status == _EVENTS:
+            raise EngineError(
+                f"more than {max_events} switching events before t = {t:.9g} s; "
+                "raise max_events or shorten the run")
+        # flush the buffers
+        chunks_t.append(rec_t[:rec_n].copy())
+        chunks_x.append(rec_x[:rec_n].copy())
+        chunks_c.append(rec_code[:rec_n].copy())
+        for target, array in zip(events, (ev_t, ev_from, ev_to, ev_dev)):
+            target.append(array[:ev_n].copy())
+        total_events += ev_n
+        rec_n = ev_n = 0
+        if status == _FULL:
+            continue
+        if status == _STOP:
+            turn_ons += 1
+            if turn_ons >= stop_on_turn_on:
+                stopped = settle_only = True
+            continue
+        if not np.all(np.isfinite(x)):
+            raise EngineError(f"non-finite state at t = {t:.9g} s")
+        if settle_only or t >= t_end:
+            break
+        if progress is not None:
+            progress(t, t_end)
+        chunk_end = min(t_end, t + span / 100.0)
+    if progress is not None:
+        progress(t, t_end)
+    times = np.concatenate(chunks_t)
+    states = np.concatenate(chunks_x)
+    codes = np.concatenate(chunks_c)
+    return Trace(
+        times=times, states=states, topologies=codes,
+        signals=_signals(circuit, states, codes),
+        event_times=np.concatenate(events[0]), event_from=np.concatenate(events[1]),
+        event_to=np.concatenate(events[2]), event_devices=np.concatenate(events[3]),
+        final_state=x.copy(), final_topology=int(store.code_of_slot[slot]),
+        final_time=float(t), stopped=stopped,
+    )
+
+
+def _signals(circuit: Circuit, states: np.ndarray, codes: np.ndarray) -> dict:
+    out = {name: np.empty(len(codes)) for name in SIGNAL_NAMES}
+    for code in np.unique(codes):
+        mask = codes == code
+        values = circuit.topology(int(code)).signals(states[mask])
+        for k, name in enumerate(SIGNAL_NAMES):
+            out[name][mask] = values[:, k]
+    return out
+
+
+def advance_cycle(circuit: Circuit, x0, topology: int, max_time: float = 1e-2) -> CycleResult:
+    """Advance exactly one switching cycle, turn-on to turn-on.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    x0 : array_like, shape (n,)
+        State at a switch turn-on event.
+    topology : int
+        Topology code just after that turn-on (the active-region switch).
+    max_time : float
+        Longest cycle allowed [s]; a cycle without a new turn-on inside it
+        raises :class:`EngineError`.
+
+    Returns
+    -------
+    CycleResult
+        End state at the next turn-on, segments with exact transition
+        matrices, events with vector fields, guard gradients and saltation
+        matrices, and their product (the monodromy before projection).
+
+    Notes
+    -----
+    Saltation matrix at a switch from field ``f-`` to ``f+`` across the
+    guard ``h(x) = grad . x + c = 0`` with no state jump:
+    ``S = I + (f+ - f-) grad^T / (grad . f-)`` (Aizerman & Gantmacher 1958;
+    di Bernardo, Budd, Champneys & Kowalczyk, *Piecewise-smooth Dynamical
+    Systems*, Springer 2008, ch. 2).  Events that happen at the same instant
+    are composed in order.
+    """
+    x0 = np.array(x0, dtype=float)
+    trace = simulate(circuit, x0, max_time, record=False, topology=topology,
+                     stop_on_turn_on=1, stop_after=0.0)
+    if not trace.stopped:
+        raise EngineError(f"no switch turn-on within {max_time:g} s: the circuit "
+                          "does not oscillate from this state")
+    # replay the segments exactly (events carry times and topologies)
+    n = circuit.n_states
+    segments, events = [], []
+    x = x0.copy()
+    code = settle_topology(circuit, x0, int(topology))
+    t = 0.0
+    monodromy = np.eye(n)
+    for k in range(len(trace.event_times)):
+        t_event = float(trace.event_times[k])
+        top = circuit.topology(code)
+        duration = t_event - t
+        phi, x_next = _transition(top, x, duration)
+        segments.append(Segment(code, t, duration, x.copy(), phi))
+        x = x_next
+        monodromy = phi @ monodromy
+        after = int(trace.event_to[k])
+        top_after = circuit.topology(after)
+        guard = _fired_guard(circuit, top, code, after)
+        f_minus, f_plus = top.vector_field(x), top_after.vector_field(x)
+        denominator = float(guard @ f_minus)
+        if abs(denominator) > 0.0:
+            saltation = np.eye(n) + np.outer(f_plus - f_minus, guard) / denominator
+        else:
+            saltation = np.eye(n)
+        monodromy = saltation @ monodromy
+        events.append(EventData(t_event, x.copy(), code, after, int(trace.event_devices[k]),
+                                guard, f_minus, f_plus, saltation))
+        code, t = after, t_event
+    return CycleResult(
+        start_state=x0, end_state=trace.final_state.copy(),
+        start_topology=settle_topology(circuit, x0, int(topology)),
+        end_topology=trace.final_topology, period=trace.final_time,
+        segments=tuple(segments), events=tuple(events), monodromy=monodromy)
+
+
+def _transition(top: Topology, x, duration):
+    """Exact transition matrix and end state of one segment."""
+    n = len(x)
+    if duration <= 0:
+        return np.eye(n), np.array(x, dtype=float)
+    augmented = np.zeros((n + 1, n + 1))
+    augmented[:n, :n] = top.A
+    augmented[:n, n] = top.b
+    phi = expm_flushed(augmented * duration)
+    return phi[:n, :n].copy(), phi[:n, :n] @ x + phi[:n, n]
+
+
+def _fired_guard(circuit: Circuit, top: Topology, before: int, after: int):
+    """Gradient of the guard of ``top`` whose firing leads to ``after``."""
+    states_before, states_after = circuit.decode(before), circuit.decode(after)
+    for g in range(len(top.guard_offsets)):
+        dev = int(top.guard_devices[g])
+        if states_before[dev] != states_after[dev] and \
+                int(top.guard_targets[g]) == states_after[dev]:
+            return top.guard_gradients[g].copy()
+    raise EngineError("event without a matching guard")  # pragma: no cover
+
+
+def _taylor(scaled: np.ndarray) -> np.ndarray:
+    """Taylor series of the exponential of a matrix of 1-norm <= 1/2,
+    flushing entries below 1e-100 (no subnormal numbers)."""
+    size = scaled.shape[0]
+    scaled = scaled.copy()
+    scaled[np.abs(scaled) < 1e-100] = 0.0
+    total = np.eye(size)
+    term = np.eye(size)
+    for k in range(1, 60):
+        term = term @ scaled / k
+        term[np.abs(term) < 1e-100] = 0.0
+        total += term
+        if np.abs(term).max() <= 1e-18 * np.abs(total).max():
+            break
+    return total
+
+
+def _squarings(matrix: np.ndarray) -> int:
+    norm = np.abs(matrix).sum(axis=0).max()
+    return 0 if norm <= 0.5 else int(math.ceil(math.log2(norm / 0.5)))
+
+
+def expm_flushed(matrix: np.ndarray) -> np.ndarray:
+    """Matrix exponential by scaling and squaring of a Taylor series.
+
+    Parameters
+    ----------
+    matrix : ndarray, shape (k, k)
+
+    Returns
+    -------
+    ndarray, shape (k, k)
+
+    Notes
+    -----
+    Scale by ``2**-s`` until the 1-norm is at most 1/2, sum the Taylor
+    series, square ``s`` times (Moler & Van Loan 2003, method 3), flushing
+    entries below 1e-100 to zero: stiff decayed modes otherwise leave
+    subnormal numbers that make every product very slow.
+    """
+    s = _squarings(matrix)
+    result = _taylor(matrix * 2.0 ** (-s))
+    for _ in range(s):
+        result[np.abs(result) < 1e-100] = 0.0
+        result = result @ result
+    return result
+
+
+def segment_energy(topology: Topology, x0, duration: float) -> dict:
+    """Exact energy integrals over one segment (Van Loan 1978).
+
+    Parameters
+    ----------
+    topology : Topology
+    x0 : array_like, shape (n,)
+        State at the segment start.
+    duration : float
+        Segment length [s].
+
+    Returns
+    -------
+    dict of str to float
+        ``input``, ``output``, ``loss``, ``stored``: integrals of the
+        powers of :attr:`Topology.power_forms` over the segment [J].
+
+    Notes
+    -----
+    With ``z = [x, 1]`` and ``dz/dt = M z``, the integral of ``z^T Q z`` over
+    ``[0, h]`` is ``z0^T W(h) z0`` with ``W(h) = int_0^h e^{M^T s} Q e^{M s} ds``,
+    the product ``F22^T F12`` of blocks of ``expm([[-M^T, Q], [0, M]] h)``
+    (Van Loan 1978, Theorem 1).  That block exponential overflows for stiff
+    ``M`` and long ``h``, so it is used only on a step ``h = T / 2**s`` with
+    ``||M h|| <= 1/2``, and the doubling ``W(2h) = W(h) + e^{M^T h} W(h) e^{M h}``
+    extends it exactly to the segment length ``T``.
+    """
+    n = len(topology.b)
+    M = np.zeros((n + 1, n + 1))
+    M[:n, :n] = topology.A
+    M[:n, n] = topology.b
+    z0 = np.append(np.asarray(x0, dtype=float), 1.0)
+    if duration <= 0:
+        return {key: 0.0 for key in topology.power_forms}
+    s = _squarings(M * duration)
+    h = duration * 2.0 ** (-s)
+    out = {}
+    for key, Q in topology.power_forms.items():
+        block = np.zeros((2 * (n + 1), 2 * (n + 1)))
+        block[: n + 1, : n + 1] = -M.T
+        block[: n + 1, n + 1:] = Q
+        block[n + 1:, n + 1:] = M
+        F = _taylor(block * h) if _squarings(block * h) == 0 else expm_flushed(block * h)
+        phi = F[n + 1:, n + 1:]
+        gramian = phi.T @ F[: n + 1, n + 1:]
+        for _ in range(s):
+            gramian = gramian + phi.T @ gramian @ phi
+            phi[np.abs(phi) < 1e-100] = 0.0
+            phi = phi @ phi
+        out[key] = float(z0 @ gramian @ z0)
+    return out
