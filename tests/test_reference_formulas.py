@@ -585,3 +585,100 @@ def test_regulation_current_none_and_optocoupler(minimal_design_dict):
     # I = CTR (Vo - Vref - V_LED) / R: 0.5 * (12 - 3.6) / 1000 = 4.2 mA
     assert float(limiter.regulation_current(opto, 12.0, T25)) == pytest.approx(4.2e-3)
     assert float(limiter.regulation_current(opto, 3.0, T25)) == 0.0
+
+
+# ===================================== the cycle model against the relations
+def _worked_designs():
+    from pathlib import Path
+
+    from rcc.design import load_design
+
+    folder = Path(__file__).resolve().parent.parent / "worked_cases"
+    return {path.stem: load_design(path) for path in sorted(folder.glob("*.toml"))}
+
+
+def _grid(design, lines=6, loads=7):
+    voltage = design.output.voltage_target or 12.0
+    low, _, high = design.input.line_voltages
+    load_low = float(design.output.load_min.current(voltage))
+    load_high = float(design.output.load_max.current(voltage))
+    return (np.linspace(low, high, lines)[:, None, None],
+            np.linspace(load_low, 1.6 * load_high, loads)[None, :, None],
+            np.array([design.environment.temperature_min,
+                      design.environment.temperature_max])[None, None, :])
+
+
+@pytest.mark.parametrize("name", sorted(_worked_designs()))
+def test_cycle_bcm_points_follow_the_flyback_relations(name):
+    """In boundary conduction the cycle is the ramp ``Lt Ipk / (Vbus - Vce_sat)``
+    (v = L di/dt), the demagnetization ``Lm Ipk / V_R`` [IJ02] and a turn-on
+    delay of at most half a ring period ``pi sqrt(Lm C)`` (valley turn-on,
+    common practice)."""
+    from rcc.cycle import operating_points
+
+    design = _worked_designs()[name]
+    points = operating_points(design, *_grid(design))
+    bcm = points.mode == "bcm"
+    assert np.count_nonzero(bcm) >= 5
+    tr = design.transformer
+    total_inductance = tr.magnetizing_inductance + tr.leakage_inductance
+    ramp = flyback.ramp_time(total_inductance, points.peak_current,
+                             points.bus_voltage - design.switch.vce_sat)
+    np.testing.assert_allclose(points.on_time[bcm], ramp[bcm], rtol=1e-9)
+    vr = flyback.reflected_voltage(points.output_voltage, design.output.rectifier_drop,
+                                   tr.primary_turns, tr.output_turns)
+    demagnetization = flyback.demagnetization_time(tr.magnetizing_inductance,
+                                                   points.peak_current, vr)
+    ring = float(flyback.resonant_delay(tr.magnetizing_inductance, design.node_capacitance))
+    delay = (points.off_time - demagnetization)[bcm]
+    assert np.all(delay >= -1e-9 * ring)
+    assert np.all(delay <= ring * (1 + 1e-9))
+    assert np.all(points.off_end[bcm] == "demagnetization")
+
+
+@pytest.mark.parametrize("name", sorted(_worked_designs()))
+def test_cycle_current_limit_with_temperature_drift(name):
+    """With the regulation path removed the limiter ends every on-time it
+    can: the peak is ``Vbe(T)/Rs`` (common practice, -2 mV/K) plus the
+    storage-time overshoot ``V t_s / L`` (common practice)."""
+    from rcc.cycle import operating_points
+
+    design = _worked_designs()[name].with_values({"regulation.method": "none"})
+    points = operating_points(design, *_grid(design))
+    limited = (points.on_end == "limit") & points.running
+    assert np.count_nonzero(limited) >= 5
+    assert np.all(points.regulation_current == 0.0)
+    tr = design.transformer
+    limit = limiter.current_limit(design.limiter.vbe, design.limiter.vbe_tempco,
+                                  points.temperature, design.limiter.sense_resistance)
+    overshoot = stress.storage_overshoot(points.bus_voltage - design.switch.vce_sat,
+                                         design.switch.storage_time,
+                                         tr.magnetizing_inductance + tr.leakage_inductance)
+    np.testing.assert_allclose(points.peak_current[limited], (limit + overshoot)[limited],
+                               rtol=1e-9)
+    # hot limit lower than cold limit: the -2 mV/K drift reaches the peak
+    hot = points.peak_current[..., 1] - overshoot[..., 1]
+    cold = points.peak_current[..., 0] - overshoot[..., 0]
+    both = limited[..., 0] & limited[..., 1]
+    if design.environment.temperature_max > design.environment.temperature_min:
+        assert np.any(both)
+        assert np.all(hot[both] < cold[both])
+
+
+def test_cycle_overload_output_falls():
+    """When the demand exceeds what the current limit allows, the output falls
+    below its regulated value (issue 2, overload)."""
+    from rcc.cycle import operating_points
+
+    seen = 0
+    for design in _worked_designs().values():
+        voltage = design.output.voltage_target or 12.0
+        high = float(design.output.load_max.current(voltage))
+        points = operating_points(design, design.input.line_voltages[0],
+                                  np.linspace(0.2 * high, 3.0 * high, 25))
+        regulated = points.output_voltage[(points.on_end == "regulation") & points.running]
+        overloaded = (points.on_end == "limit") & points.running
+        if overloaded.any() and regulated.size:
+            assert np.all(points.output_voltage[overloaded] < regulated.min())
+            seen += 1
+    assert seen >= 1
