@@ -186,3 +186,19 @@ def test_comment_only_file_lists_missing_keys(write_design):
         r": title: missing", r": switch\.hfe_min: missing", r": input\.ac_min: missing",
         r": transformer\.core_area: missing", r": output\.load_max: missing"])
     assert len(lines) > 10
+
+
+@pytest.mark.parametrize("command", [["check", "--json"], ["sweep"]], ids=["check-json", "sweep"])
+def test_other_commands_report_design_problems_the_same_way(command, minimal_design_dict,
+                                                            write_design, tmp_path):
+    # the JSON switch and the sweep command load the design through the same
+    # path: same exit code 2, same lines, nothing on stdout (no half JSON)
+    for case in ("wrong dimension", "coupling above 1", "unknown key with suggestion"):
+        CASES[case][0](minimal_design_dict)
+    path = write_design(minimal_design_dict)
+    result = runner.invoke(app, command[:1] + [str(path)] + command[1:])
+    assert_bad_input(result, path, [CASES[c][1] for c in (
+        "wrong dimension", "coupling above 1", "unknown key with suggestion")])
+    missing = tmp_path / "absent.toml"
+    result = runner.invoke(app, command[:1] + [str(missing)] + command[1:])
+    assert_bad_input(result, missing, [r": file does not exist$"])
