@@ -163,3 +163,24 @@ def test_format_si_round_trips_through_parse(text):
     value = parse_quantity(text, dimension)
     unit = DIMENSIONS[dimension].unit
     assert parse_quantity(format_si(value, unit), dimension) == pytest.approx(value)
+
+
+# --------------------------------------------------------------- property
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+#: SI brochure table 7 prefixes, as written in design files
+PREFIXES = {"p": pico, "n": nano, "u": micro, "µ": micro, "m": milli, "": 1.0,
+            "k": kilo, "M": mega}
+UNITS = {"F": "capacitance", "H": "inductance", "V": "voltage", "A": "current",
+         "ohm": "resistance", "s": "time", "Hz": "frequency", "W": "power"}
+
+
+@settings(derandomize=True, deadline=None, max_examples=200)
+@given(number=st.floats(-1e6, 1e6, allow_nan=False, allow_infinity=False),
+       prefix=st.sampled_from(sorted(PREFIXES)), unit=st.sampled_from(sorted(UNITS)),
+       space=st.sampled_from(["", " ", "  "]))
+def test_prefix_scaling_property(number, prefix, unit, space):
+    text = f"{number!r}{space}{prefix}{unit}"
+    assert parse_quantity(text, UNITS[unit]) == pytest.approx(
+        number * PREFIXES[prefix], rel=1e-12, abs=1e-300)
