@@ -716,10 +716,11 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
     if drive is not None and drive.hiccup:
         findings.append(Finding(
             "hiccup", "fail",
-            f"After demagnetization the drive capacitor holds the base off: the first "
-            f"ring peak reaches {drive.restart_margin:.3g} V above the base-emitter "
-            f"voltage (needs > 0), so the start-up resistor has to restart the switch "
-            f"each time; the supply runs in bursts.",
+            f"After demagnetization the drive capacitor holds the base off: at the "
+            f"first ring peak the base stays {-drive.restart_margin:.3g} V short of the "
+            f"base-emitter on-voltage, so the start-up resistor has to restart the "
+            f"switch each time ({drive.bus_voltage:.4g} V bus, "
+            f"{drive.temperature - 273.15:.3g} degC); the supply runs in bursts.",
             value=drive.restart_margin, limit=0.0, unit="V",
             advice="Give the drive capacitor a discharge path during the off-time (a "
                    "lower base-emitter resistor), enlarge it, or add feedback turns."))

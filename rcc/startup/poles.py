@@ -25,7 +25,8 @@ __all__ = [
     "HOLDING_ELEMENTS",
     "MINIMUM_LEAKAGE_FRACTION",
     "MINIMUM_WINDING_CAPACITANCE",
-    "HEALTHY_START_FRACTION",
+    "STARVED_FRACTION",
+    "holding_element",
 ]
 
 #: Names of what holds a stalled circuit, in the order they are tested.
@@ -39,11 +40,11 @@ MINIMUM_LEAKAGE_FRACTION = 1e-6
 #: Floor of the winding self-capacitance [F] for a design that gives zero.
 MINIMUM_WINDING_CAPACITANCE = 0.1e-12
 
-#: Collector current, as a fraction of the current-limit trip current, at
-#: which a stalled circuit is re-examined to tell a starved base from weak
-#: coupling [1]: 10 % of the peak current is a generous start current
-#: # common practice
-HEALTHY_START_FRACTION = 0.1
+#: Collector current, as a fraction of the current-limit trip current, below
+#: which a stalled switch counts as starved by the start-up network [1]
+#: (our convention: a start current of 0.1 % of the peak current is
+#: leakage-like for a power transistor).
+STARVED_FRACTION = 1e-3
 
 
 @dataclass(frozen=True)
@@ -253,16 +254,14 @@ def holding_element(circuit: CircuitValues, dc: DcPoint, result: PoleResult) -> 
     -----
     Tested in order: a degenerative feedback winding (``feedback-phase``);
     a conducting limiter holding the collector current near ``Vbe/Rs``
-    (``limiter``); a circuit that would start if the start-up network
-    delivered a healthy collector current (10 % of the trip current, the
-    hybrid-pi values re-evaluated there) is starved (``startup-resistor``);
-    otherwise the feedback path itself is too weak (``drive-coupling``:
-    too few feedback turns, too small a drive capacitor, too large a drive
-    resistor or too lossy a tank).
+    (``limiter``); a switch left (nearly) cut off by the start-up network,
+    collector current below :data:`STARVED_FRACTION` of the trip current
+    (``startup-resistor``); otherwise the feedback path itself is too weak
+    (``drive-coupling``: too few feedback turns, too small a drive
+    capacitor, too large a drive resistor or too lossy a tank).
     """
-    healthy = np.maximum(dc.collector_current, HEALTHY_START_FRACTION * circuit.trip_current)
-    trial = network_poles(small_signal_parameters(circuit, dc, collector_current=healthy))
-    names = np.where(trial.starts, "startup-resistor", "drive-coupling")
+    starved = dc.collector_current < STARVED_FRACTION * circuit.trip_current
+    names = np.where(starved, "startup-resistor", "drive-coupling")
     names = np.where(dc.limiter_active, "limiter", names)
     names = np.where(circuit.feedback_ratio < 0, "feedback-phase", names)
     return np.where(result.starts, "", names).astype(object)
