@@ -373,6 +373,11 @@ def solve_dc_point(values: CircuitValues, max_iterations: int = 300,
         jac[:, 3, 3] = r_p * dic1[2] + 1.0
         step = -np.linalg.solve(jac, f[..., None])[..., 0]
         step[:, :3] = np.clip(step[:, :3], -_STEP_LIMIT, _STEP_LIMIT)
+        # the collector moves freely while the collector junction is off;
+        # its forward bias may grow by at most the step limit per iteration
+        vbc_cap = np.maximum(vb - vc + _STEP_LIMIT, 0.3)
+        new_vb = vb + step[:, 0]
+        step[:, 3] = np.maximum(vc + step[:, 3], new_vb - vbc_cap) - vc
         xa = xa + step
         x[active] = xa
         done = (np.max(np.abs(step[:, :3]), axis=1) < tolerance) & (
