@@ -401,7 +401,8 @@ def derivation_text(latex: bool = False) -> str:
             lines.append(f"  a{power} = " + (sp.latex(coefficient) if latex
                                               else str(coefficient)))
         else:
-            lines.append(f"  a{power} = <{terms} terms; see notes/startup_derivation.md>")
+            lines.append(f"  a{power} = <{terms} terms; printed in full by "
+                         "sympy from rcc.startup.symbolic.derive().polynomial>")
     lines += [
         "",
         "Loop gain, opened at the switch collector current source (i_c = g_m v_be):",
