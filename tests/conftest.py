@@ -113,3 +113,23 @@ def write_design(tmp_path):
         return path
 
     return write
+
+
+def regulating_designs() -> dict:
+    """Worked cases whose steady state is a regulated supply: at nominal line
+    and nominal load the cycle model runs and the regulation path ends the
+    on-time.  Fault cases (deliberately broken designs for the start-up
+    analysis) drop out by this physical test, not by their file names."""
+    from rcc.cycle import operating_points
+    from rcc.design import load_design
+
+    selected = {}
+    for path in sorted(WORKED_CASES.glob("*.toml")):
+        design = load_design(path)
+        voltage = design.output.voltage_target or 12.0
+        nominal = operating_points(design, design.input.line_voltages[1],
+                                   float(design.output.load_nominal.current(voltage)))
+        if bool(nominal.running) and str(nominal.on_end) == "regulation":
+            selected[path.stem] = design
+    assert "standby_12v_universal" in selected
+    return selected

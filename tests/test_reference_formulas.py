@@ -588,13 +588,16 @@ def test_regulation_current_none_and_optocoupler(minimal_design_dict):
 
 
 # ===================================== the cycle model against the relations
+_DESIGNS = {}
+
+
 def _worked_designs():
-    from pathlib import Path
+    """Worked cases with a regulated steady state (see conftest)."""
+    if not _DESIGNS:
+        from conftest import regulating_designs
 
-    from rcc.design import load_design
-
-    folder = Path(__file__).resolve().parent.parent / "worked_cases"
-    return {path.stem: load_design(path) for path in sorted(folder.glob("*.toml"))}
+        _DESIGNS.update(regulating_designs())
+    return _DESIGNS
 
 
 def _grid(design, lines=6, loads=7):
