@@ -52,7 +52,11 @@ def plot_loop_gain(result, ax=None, frequencies=None):
     ax.set_xlabel("frequency [Hz]")
     ax.set_ylabel("loop gain magnitude [dB]", color="tab:blue")
     phase_ax = ax.twinx()
-    phase_ax.semilogx(frequencies, np.degrees(np.unwrap(np.angle(gain))),
+    phase = np.degrees(np.unwrap(np.angle(gain)))
+    # shift by whole turns so the phase at the largest |L| lies in (-180, 180]
+    peak = phase[np.argmax(np.abs(gain))]
+    phase = phase - 360.0 * np.round(peak / 360.0)
+    phase_ax.semilogx(frequencies, phase,
                       color="tab:orange", label="phase [deg]")
     phase_ax.set_ylabel("loop gain phase [deg]", color="tab:orange")
     verdict = "starts" if result.starts else f"stalls ({result.holding_element})"
