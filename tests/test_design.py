@@ -40,7 +40,7 @@ def test_worked_cases_load(worked_cases):
 #: SI prefixes (BIPM, *The International System of Units*, 9th ed., 2019,
 #: table 7) and the units the worked cases use, for an independent reading
 #: of the raw TOML text.
-_SI_PREFIX = {"G": 1e9, "M": 1e6, "k": 1e3, "": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6,
+_SI_PREFIX = {"T": 1e12, "G": 1e9, "M": 1e6, "k": 1e3, "": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6,
               "n": 1e-9, "p": 1e-12}
 _UNITS = ("ohm", "Hz", "V", "A", "F", "H", "s", "T", "W")
 
