@@ -228,7 +228,18 @@ class OperatingPoints:
 
 
 def reference_temperature(design: Design) -> float:
-    """25 degC clipped into the design's temperature range [K]."""
+    """25 degC clipped into the design's temperature range.
+
+    Parameters
+    ----------
+    design : Design
+        The design; its ``environment`` range is used [K].
+
+    Returns
+    -------
+    float
+        Reference temperature [K].
+    """
     return float(np.clip(REFERENCE_TEMPERATURE, design.environment.temperature_min,
                          design.environment.temperature_max))
 
@@ -308,6 +319,19 @@ def _load_power(load, output_voltage):
             return output_voltage**2 / load.value
         return np.full_like(output_voltage, load.value)
     return np.asarray(load, dtype=float) * output_voltage
+
+
+def _voltage_for_power(load, power, fallback):
+    """Output voltage at which ``load`` takes ``power`` [V]."""
+    if isinstance(load, Load):
+        if load.kind == "current":
+            value = np.asarray(load.value, dtype=float)
+            return np.where(value > 0, power / np.maximum(value, 1e-300), fallback)
+        if load.kind == "resistance":
+            return np.sqrt(power * load.value)
+        return fallback
+    current = np.asarray(load, dtype=float)
+    return np.where(current > 0, power / np.maximum(current, 1e-300), fallback)
 
 
 def _solve_rising(slope, gain, amplitude, offset, tau, initial):
@@ -603,7 +627,8 @@ def _solve_output(design: Design, bus, temperature, gain, load):
         scan_surplus[index] = state["delivered"] - _load_power(load, voltage)
         scan_vc[index], scan_i0[index] = vc, i0
     positive = scan_surplus > 0.0
-    burst = positive[0]
+    regulated = design.regulation.method != "none"
+    burst = positive[0] & regulated
     first = np.argmax(positive, axis=0)          # highest voltage with a surplus
     any_positive = positive.any(axis=0)
     first = np.where(any_positive, first, fractions.size - 1)
@@ -618,7 +643,10 @@ def _solve_output(design: Design, bus, temperature, gain, load):
         surplus = state["delivered"] - _load_power(load, middle) > 0.0
         low = np.where(surplus, middle, low)
         high = np.where(surplus, high, middle)
-    output = np.where(burst, top, np.where(any_positive, 0.5 * (low + high), low))
+    # the surplus side of the bracket: where the surplus function jumps (the
+    # drive-capacitor regime changes) there is no exact root and the circuit
+    # mixes the two cycles; scaling the frequency below covers both cases
+    output = np.where(positive[0], top, low)
     for _ in range(_SETTLE_STEPS):
         state = cycle.evaluate(output, vc, i0)
         vc, i0 = state["vc_next"], state["residual"]
@@ -631,16 +659,24 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     state["burst"] = burst
     load_power = _load_power(load, output)
     running = state["restarts"] & (design.transformer.feedback_phase == "regenerative")
-    # burst: the supply delivers only what the load takes, at the minimum
-    # energy per cycle; the average frequency scales down accordingly
-    scale = np.where(burst & (state["delivered"] > 0),
+    # burst (and a mix of two cycle regimes at a jump of the surplus): the
+    # supply delivers only what the load takes; the average frequency scales
+    # down so that the energy per cycle times the frequency balances the load
+    scale = np.where(state["delivered"] > 0,
                      np.clip(load_power / np.maximum(state["delivered"], 1e-300), 0.0, 1.0),
                      1.0)
+    settled = settled & ((scale > 0.999) | burst)
     scale = np.where(running, scale, 0.0)
     losses = state["losses"]
     scaled = Losses(**{
         item.name: getattr(losses, item.name) * (running if item.name == "startup" else scale)
         for item in fields(Losses)})
+    # collapsed output (no surplus even at the lowest output): the load gets
+    # what the cycle delivers, at the voltage where it takes just that
+    collapsed = ~any_positive & (state["delivered"] < load_power)
+    delivered = np.maximum(state["delivered"], 0.0)
+    load_power = np.where(collapsed, delivered, load_power)
+    state["output"] = np.where(collapsed, _voltage_for_power(load, delivered, output), output)
     output_power = np.where(running, load_power, 0.0)
     state.update(scale=scale, running=running, settled=settled, losses=scaled, output_power=output_power,
                  input_power=output_power + scaled.total)
@@ -658,6 +694,10 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         load_current = np.where(running, load, 0.0)
     t_on, t_off = state["t_on"], state["t_off"]
     mode_names = np.array(["dcm", "bcm", "ccm"])[state["mode"]]
+    # a mix of ring- and drive-timed cycles (frequency scaled below the
+    # ring-timed cycle) has drive-timed dead time on average
+    mixed = running & ~state["burst"] & (scale < 0.999)
+    mode_names = np.where(mixed, "dcm", mode_names)
     mode_names = np.where(state["burst"], "burst", mode_names)
     mode_names = np.where(running, mode_names, "off")
     period = np.where(frequency > 0, 1.0 / np.maximum(frequency, 1e-300), 0.0)
@@ -680,7 +720,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         regulation_current=state["ireg"],
         mode=mode_names,
         on_end=np.array(ON_END)[state["on_end"]],
-        off_end=np.array(OFF_END)[state["off_end"]],
+        off_end=np.where(mixed, "drive-timing", np.array(OFF_END)[state["off_end"]]),
         settled=state["settled"],
         running=running,
         input_power=state["input_power"],

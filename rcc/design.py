@@ -494,18 +494,19 @@ class _Validator:
         known_top = set(keys_of("")) | set(SECTIONS)
         for name, value in self.data.items():
             if name not in known_top:
-                kind = "section" if isinstance(value, Mapping) else "key"
                 hint = _closest(name, known_top)
-                self.problems.append(
-                    f"{self.source}: unknown {kind} {name!r}{hint}"
-                )
+                if isinstance(value, Mapping):
+                    self.problems.append(f"{self.source}: [{name}]: unknown section{hint}")
+                else:
+                    self.problems.append(
+                        f"{self.source}: {name} = {value!r}: unknown key{hint}")
             elif name in SECTIONS and isinstance(value, Mapping):
                 known = keys_of(name)
-                for key in value:
+                for key, given in value.items():
                     if key not in known:
                         hint = _closest(key, known)
                         self.problems.append(
-                            f"{self.source}: {name}.{key}: unknown key{hint}"
+                            f"{self.source}: {name}.{key} = {given!r}: unknown key{hint}"
                         )
 
     def read(self, key: Key, raw: Mapping[str, Any]):
@@ -709,5 +710,27 @@ def _describe(key: Key) -> str:
 
 
 def _closest(name: str, candidates) -> str:
-    match = difflib.get_close_matches(name, list(candidates), n=1, cutoff=0.6)
-    return f" (did you mean {match[0]!r}?)" if match else ""
+    """Suggestion for a misspelt key: difflib's close matches, ties broken by
+    the optimal-string-alignment (Damerau-Levenshtein) distance so that a
+    pair of swapped letters points at the intended key."""
+    matches = difflib.get_close_matches(name, list(candidates), n=5, cutoff=0.6)
+    if not matches:
+        return ""
+    best = min(matches, key=lambda candidate: _alignment_distance(name, candidate))
+    return f" (did you mean {best!r}?)"
+
+
+def _alignment_distance(a: str, b: str) -> int:
+    """Optimal string alignment distance (Damerau 1964; edits, swaps count 1)."""
+    rows = [[0] * (len(b) + 1) for _ in range(len(a) + 1)]
+    for i in range(len(a) + 1):
+        rows[i][0] = i
+    for j in range(len(b) + 1):
+        rows[0][j] = j
+    for i in range(1, len(a) + 1):
+        for j in range(1, len(b) + 1):
+            cost = 0 if a[i - 1] == b[j - 1] else 1
+            rows[i][j] = min(rows[i - 1][j] + 1, rows[i][j - 1] + 1, rows[i - 1][j - 1] + cost)
+            if i > 1 and j > 1 and a[i - 1] == b[j - 2] and a[i - 2] == b[j - 1]:
+                rows[i][j] = min(rows[i][j], rows[i - 2][j - 2] + 1)
+    return rows[len(a)][len(b)]

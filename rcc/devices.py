@@ -149,7 +149,22 @@ def storage_time_charge_control(storage_time_constant, base_current_on,
 
 
 def thermal_voltage(temperature):
-    """Thermal voltage kT/q [V] at ``temperature`` [K] (scipy.constants)."""
+    """Thermal voltage kT/q.
+
+    Parameters
+    ----------
+    temperature : float or array_like
+        Junction temperature [K].
+
+    Returns
+    -------
+    ndarray
+        Thermal voltage [V].
+
+    Notes
+    -----
+    Boltzmann constant and elementary charge from ``scipy.constants`` (CODATA).
+    """
     from scipy.constants import Boltzmann, elementary_charge
 
     return Boltzmann * np.asarray(temperature, dtype=float) / elementary_charge

@@ -67,7 +67,19 @@ class Finding:
 
 
 def verdict(findings) -> str:
-    """``"fail"`` if any finding fails, else ``"warn"`` if any warns, else ``"pass"``."""
+    """Fold findings into one verdict.
+
+    Parameters
+    ----------
+    findings : iterable of Finding
+        The findings (severity only is used) [-].
+
+    Returns
+    -------
+    str
+        ``"fail"`` if any finding fails, else ``"warn"`` if any warns, else
+        ``"pass"``.
+    """
     severities = {finding.severity for finding in findings}
     if "fail" in severities:
         return "fail"

@@ -15,7 +15,20 @@ __all__ = ["format_table", "format_check_report", "format_points_table"]
 
 
 def format_table(headers, rows) -> str:
-    """Left-aligned text table from headers and rows of strings."""
+    """Left-aligned text table.
+
+    Parameters
+    ----------
+    headers : sequence of str
+        Column headers [-].
+    rows : sequence of sequence of str
+        Cell texts [-].
+
+    Returns
+    -------
+    str
+        The table.
+    """
     widths = [max(len(str(h)), *(len(str(r[i])) for r in rows)) if rows else len(str(h))
               for i, h in enumerate(headers)]
     line = "  ".join(str(h).ljust(w) for h, w in zip(headers, widths))
@@ -25,7 +38,18 @@ def format_table(headers, rows) -> str:
 
 
 def format_points_table(records) -> str:
-    """Operating points (``OperatingPoints.records()``) as a table."""
+    """Operating points as a text table.
+
+    Parameters
+    ----------
+    records : list of dict
+        ``OperatingPoints.records()`` (SI units) [-].
+
+    Returns
+    -------
+    str
+        The table, values scaled with SI prefixes for reading.
+    """
     headers = ["line", "bus", "load", "T", "Vout", "freq", "t_on", "t_off", "duty",
                "Ipk", "mode", "on ends by", "off ends by"]
     rows = [[format_si(r["line_v"], "V", 3), format_si(r["bus_v"], "V", 3),
@@ -42,7 +66,18 @@ def _wrap(text, indent="    "):
 
 
 def format_check_report(data: dict) -> str:
-    """The ``rcc check`` report from its JSON form."""
+    """The ``rcc check`` text report.
+
+    Parameters
+    ----------
+    data : dict
+        ``CheckReport.to_json()`` (SI units) [-].
+
+    Returns
+    -------
+    str
+        The report.
+    """
     out = [data["title"], "=" * len(data["title"]), "", _wrap(data["caution"], ""), ""]
     out += ["Operating points (25 degC clipped into the temperature range, hfe_typ)", ""]
     out += [format_points_table(data["operating_points"]), ""]

@@ -249,7 +249,18 @@ for _key in KEYS:
 
 
 def keys_of(section: str) -> dict[str, Key]:
-    """Keys of one section (``""`` for the top level), by name."""
+    """Keys of one section.
+
+    Parameters
+    ----------
+    section : str
+        Section name, ``""`` for the top level [-].
+
+    Returns
+    -------
+    dict of str to Key
+        The section's keys by name.
+    """
     return _BY_SECTION.get(section, {})
 
 

@@ -146,7 +146,18 @@ def sweep(design: Design, line_voltage, load: Load, temperature=None, hfe=None) 
 
 
 def to_csv(result: SweepResult) -> str:
-    """The sweep as CSV text (one row per point, SI units, temperature in degC)."""
+    """The sweep as CSV text.
+
+    Parameters
+    ----------
+    result : SweepResult
+        The sweep [-].
+
+    Returns
+    -------
+    str
+        One row per point, SI units, temperature in degC.
+    """
     rows = result.points.records()
     buffer = io.StringIO()
     writer = csv.DictWriter(buffer, fieldnames=list(rows[0].keys()))

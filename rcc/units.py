@@ -97,8 +97,8 @@ def parse_quantity(value, dimension: str) -> float:
     Parameters
     ----------
     value : int, float or str
-        A plain number (SI base units; kelvin for temperature) or a string
-        such as ``"4.7 uF"`` or ``"-10 degC"``.
+        A plain number or a string such as ``"4.7 uF"`` or ``"-10 degC"``
+        [SI base units when no unit is written; K for temperature].
     dimension : str
         Key of :data:`DIMENSIONS` the value must have.
 
@@ -114,12 +114,13 @@ def parse_quantity(value, dimension: str) -> float:
         different dimension.  The message says what was expected.
     """
     expected = DIMENSIONS[dimension]
+    what = "number" if expected.name == "dimensionless" else expected.name
     if isinstance(value, bool):
         raise UnitError(f"expected a {expected.name}, got a boolean")
     if isinstance(value, (int, float)):
         number = float(value)
         if not math.isfinite(number):
-            raise UnitError(f"expected a finite {expected.name}, got {value!r}")
+            raise UnitError(f"expected a finite {what}, got {value!r}")
         return number
     if not isinstance(value, str):
         raise UnitError(
@@ -129,13 +130,18 @@ def parse_quantity(value, dimension: str) -> float:
     match = _NUMBER.match(value)
     if match is None:
         if value.strip().lower() in {"nan", "inf", "-inf", "+inf", "infinity"}:
-            raise UnitError(f"expected a finite {expected.name}, got {value!r}")
+            raise UnitError(f"expected a finite {what}, got {value!r}")
         raise UnitError(
             f"expected a number with an optional unit, such as "
             f"'4.7 {_example_unit(expected)}'".replace(" '4.7 '", " '4.7'")
         )
     number = float(match.group(1))
     unit_text = _normalise_unit_text(match.group(2))
+    if re.match(r"^[.,]|^\d+[.,]\d|^[eE][-+]?\d", unit_text):
+        raise UnitError(
+            f"expected a number with an optional unit, such as "
+            f"'4.7 {_example_unit(expected)}'".replace(" '4.7 '", " '4.7'")
+            + f" (cannot read the number in {value!r})")
     if not unit_text:
         return number
     registry = _registry()
@@ -155,7 +161,7 @@ def parse_quantity(value, dimension: str) -> float:
         )
     result = float(quantity.to(target).magnitude)
     if not math.isfinite(result):
-        raise UnitError(f"expected a finite {expected.name}, got {value!r}")
+        raise UnitError(f"expected a finite {what}, got {value!r}")
     return result
 
 
@@ -184,12 +190,34 @@ def _example_unit(dimension: Dimension) -> str:
 
 
 def celsius_to_kelvin(temperature_celsius):
-    """Convert [degC] to [K] using ``scipy.constants.zero_Celsius``."""
+    """Convert Celsius to kelvin.
+
+    Parameters
+    ----------
+    temperature_celsius : float or array_like
+        Temperature [degC].
+
+    Returns
+    -------
+    float or ndarray
+        Temperature [K] (``scipy.constants.zero_Celsius`` offset).
+    """
     return temperature_celsius + zero_Celsius
 
 
 def kelvin_to_celsius(temperature_kelvin):
-    """Convert [K] to [degC] using ``scipy.constants.zero_Celsius``."""
+    """Convert kelvin to Celsius.
+
+    Parameters
+    ----------
+    temperature_kelvin : float or array_like
+        Temperature [K].
+
+    Returns
+    -------
+    float or ndarray
+        Temperature [degC] (``scipy.constants.zero_Celsius`` offset).
+    """
     return temperature_kelvin - zero_Celsius
 
 
@@ -206,8 +234,23 @@ _PREFIXES = [
 
 
 def format_si(value: float, unit: str, digits: int = 4) -> str:
-    """Format a value with an SI prefix for display, e.g. ``4.7e-6, "F"`` ->
-    ``"4.7 uF"``.  Display only; never parse the result back."""
+    """Format a value with an SI prefix for display.
+
+    Parameters
+    ----------
+    value : float
+        Value in SI units [SI].
+    unit : str
+        Unit symbol appended after the prefix [-].
+    digits : int
+        Significant digits [-].
+
+    Returns
+    -------
+    str
+        E.g. ``4.7e-6, "F"`` -> ``"4.7 uF"``; ``"n/a"`` for None or non-finite.
+        Display only; never parse the result back.
+    """
     if value is None or not math.isfinite(value):
         return "n/a"
     if value == 0:

@@ -50,26 +50,11 @@ def library_modules():
 #: (listed for the module owners; strict xfail, so fixing one makes its
 #: entry fail here until it is removed from this list).
 KNOWN_GAPS = {
-    "rcc.cycle.reference_temperature": "parameter 'design' not documented",
-    "rcc.devices.thermal_voltage": "no Parameters section",
     "rcc.engine.simulate.simulate": "'x0' (state vector) without units",
     "rcc.engine.simulate.advance_cycle": "'x0' (state vector) without units",
     "rcc.engine.simulate.segment_energy": "'x0' (state vector) without units",
     "rcc.engine.simulate.simulate_reference": "'x0' (state vector) without units",
     "rcc.engine.simulate.expm_flushed": "'matrix' without units",
-    "rcc.findings.verdict": "no Parameters section",
-    "rcc.report.format_table": "no Parameters section",
-    "rcc.report.format_check_report": "no Parameters section",
-    "rcc.report.format_points_table": "no Parameters section",
-    "rcc.schema.keys_of": "no Parameters section",
-    "rcc.startup.analysis.minimum_start_bus_voltage": "'temperature', 'hfe' without units",
-    "rcc.startup.analysis.estimate_start_time": "'temperature', 'hfe' without units",
-    "rcc.startup.poles.polynomial_roots": "'coefficients' without units",
-    "rcc.sweep.to_csv": "no Parameters section",
-    "rcc.units.parse_quantity": "'value' (number in SI units) has no [unit]",
-    "rcc.units.kelvin_to_celsius": "no Parameters section",
-    "rcc.units.celsius_to_kelvin": "no Parameters section",
-    "rcc.units.format_si": "no Parameters section",
 }
 
 #: Same for the Returns section.

@@ -167,10 +167,6 @@ def test_energy_per_cycle_feeds_output_and_losses(point):
     assert stored == pytest.approx(delivered, rel=1e-2)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "overload at the current limit: the reported output power does not match "
-    "the energy per cycle (18 % at 85 V, 0.7 A, 0 degC on the standby case); "
-    "reported to the team lead"))
 def test_energy_per_cycle_in_overload():
     design = DESIGNS["standby_12v_universal"]
     points = operating_points(design, 85.0, 0.7, celsius_to_kelvin(0.0))

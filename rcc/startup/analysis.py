@@ -241,9 +241,11 @@ def minimum_start_bus_voltage(design, temperature=None, hfe=None,
     Parameters
     ----------
     design : rcc.design.Design
-    temperature, hfe : float, optional
-        Fix the corner; default all four corners of ``hfe_min``/``hfe_max``
-        and the temperature range, the highest threshold returned.
+    temperature : float, optional
+        Fix the corner's temperature [K]; default both ends of the range.
+    hfe : float, optional
+        Fix the corner's current gain at 25 degC [1]; default ``hfe_min`` and
+        ``hfe_max``. Over all corners the highest threshold is returned.
     relative_tolerance : float
         Bisection stops when the bracket is below this fraction of the
         highest bus voltage [1].
@@ -328,8 +330,10 @@ def estimate_start_time(design, line_voltage=None, temperature=None, hfe=None,
     design : rcc.design.Design
     line_voltage : float, optional
         RMS line voltage (AC) or bus voltage (DC) [V]; default the lowest.
-    temperature, hfe : float, optional
-        Fix the corner (see :func:`analyze_startup`).
+    temperature : float, optional
+        Fix the corner's temperature [K] (see :func:`analyze_startup`).
+    hfe : float, optional
+        Fix the corner's current gain at 25 degC [1].
     threshold_bus_voltage : float, optional
         Start-up threshold [V] if already known (saves a bisection).
 

@@ -137,7 +137,8 @@ def polynomial_roots(coefficients, scale=None) -> np.ndarray:
     Parameters
     ----------
     coefficients : array_like, shape (n, degree + 1)
-        Coefficients, highest power first; leading coefficient non-zero.
+        Coefficients, highest power first; leading coefficient non-zero
+        [SI units of the polynomial in s, 1/s^k per power].
     scale : array_like, shape (n,), optional
         Frequency scale ``w0`` [rad/s]: roots are found for ``p = s / w0``
         (coefficients ``a_k w0^k``), which keeps the companion matrix well

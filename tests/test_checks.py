@@ -1,0 +1,222 @@
+"""Stress and limit checks (rcc.checks) and the `check` / `sweep` commands.
+
+Each check is made to fire on a variant of a worked case and shown quiet on
+the case itself, so no check is one that cannot fail.  Expected numbers are
+recomputed here from the textbook relation named beside them.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from rcc import load_design
+from rcc.checks import STORAGE_PERIOD_FRACTION, check_design
+from rcc.cli import app
+
+ROOT = Path(__file__).resolve().parent.parent
+STANDBY = ROOT / "worked_cases" / "standby_12v_universal.toml"
+AUX = ROOT / "worked_cases" / "aux_5v_48v_dc.toml"
+LEGACY = ROOT / "worked_cases" / "legacy_24v_substitute.toml"
+WORKED = sorted((ROOT / "worked_cases").glob("*.toml"))
+
+runner = CliRunner()
+
+
+@pytest.fixture(scope="module")
+def standby():
+    return load_design(STANDBY)
+
+
+@pytest.fixture(scope="module")
+def standby_report(standby):
+    return check_design(standby)
+
+
+def codes(report):
+    return {f.code: f for f in report.findings}
+
+
+# ------------------------------------------------------------ stresses
+def test_switch_peak_is_bus_plus_clamp_voltage(standby, standby_report):
+    # peak = highest bus + RCD clamp voltage above the bus (Basso 2008, ch. 7)
+    s = standby_report.stress
+    bus_max = math.sqrt(2) * 265.0 - 1.6  # rectified-mains crest factor
+    assert s.switch_peak_v == pytest.approx(bus_max + s.reflected_v + s.spike_v)
+    assert s.switch_peak_v > bus_max + s.reflected_v  # the clamp sits above V_R
+    assert s.rating_basis == "vcev" and s.switch_rating_v == 700.0
+
+
+def test_vceo_exceeded_within_vcev_is_reported(standby_report):
+    found = codes(standby_report)
+    assert "switch-vceo-exceeded" in found
+    assert "switch-overvoltage" not in found
+    assert found["switch-vceo-exceeded"].value > 400.0
+
+
+def test_switch_overvoltage_fires_on_the_substitute(standby):
+    substitute = load_design(LEGACY)
+    report = check_design(substitute)
+    finding = codes(report)["switch-overvoltage"]
+    assert finding.severity == "fail"
+    assert report.stress.rating_basis == "vceo"
+    assert finding.limit == pytest.approx(0.8 * 400.0)
+    # no clamp: spike = Ipk sqrt(L_lk / C) (energy balance, Basso 2008 ch. 7)
+    tr = substitute.transformer
+    spike = report.stress.worst_peak_current_a * math.sqrt(
+        tr.leakage_inductance / substitute.node_capacitance)
+    assert report.stress.spike_v == pytest.approx(spike)
+
+
+def test_core_flux_is_faraday_at_worst_peak(standby, standby_report):
+    # B = L I / (N Ae), McLyman 2004 ch. 1; worst I = Vbe(cold)/Rs + Vin ts / L
+    tr, lim = standby.transformer, standby.limiter
+    cold_vbe = lim.vbe + lim.vbe_tempco * (standby.environment.temperature_min - 298.15)
+    bus_max = math.sqrt(2) * 265.0 - 1.6
+    current = cold_vbe / lim.sense_resistance + bus_max * standby.switch.storage_time / (
+        tr.magnetizing_inductance + tr.leakage_inductance)
+    flux = tr.magnetizing_inductance * current / (tr.primary_turns * tr.core_area)
+    assert standby_report.stress.worst_peak_current_a == pytest.approx(current)
+    assert standby_report.stress.core_peak_flux_t == pytest.approx(flux)
+    assert "core-saturation" not in codes(standby_report)
+    smaller_core = standby.with_values({"transformer.core_area": "15 mm^2"})
+    finding = codes(check_design(smaller_core))["core-saturation"]
+    assert finding.severity == "fail" and finding.value > finding.limit
+
+
+def test_overload_fires_when_the_limit_is_too_low(standby, standby_report):
+    assert codes(standby_report)["overload"].severity == "warn"  # 2 % reserve only
+    report = check_design(standby.with_values({"limiter.sense_resistance": "2.7 ohm"}))
+    finding = codes(report)["overload"]
+    assert finding.severity == "fail" and finding.limit < finding.value
+
+
+def test_weak_drive_fires_with_a_large_drive_resistor(standby, standby_report):
+    assert "weak-drive" not in codes(standby_report)
+    weak = standby.with_values({"drive.resistance": "1 kohm"})
+    finding = codes(check_design(weak))["weak-drive"]
+    assert finding.severity == "fail" and finding.value < 1.0
+
+
+def test_light_load_frequency_limit_from_storage_time(standby, standby_report):
+    finding = codes(standby_report)["light-load-frequency"]
+    assert finding.limit == pytest.approx(STORAGE_PERIOD_FRACTION / standby.switch.storage_time)
+    fast = standby.with_values({"switch.storage_time": "50 ns"})
+    assert "light-load-frequency" not in codes(check_design(fast))
+
+
+def test_startup_resistor_dissipation(standby, standby_report):
+    # P = (V_bus,max - Vbe)^2 / R  (Ohm's law)
+    finding = codes(standby_report)["startup-resistor-power"]
+    bus_max = math.sqrt(2) * 265.0 - 1.6
+    vbe = 0.7 - 2e-3 * (273.15 - 298.15)
+    assert finding.value == pytest.approx((bus_max - vbe) ** 2 / 680e3)
+    rated = standby.with_values({"startup.power_rating": "1 W"})
+    assert "startup-resistor-power" not in codes(check_design(rated))
+
+
+def test_output_off_target(standby, standby_report):
+    assert codes(standby_report)["output-off-target"].severity == "warn"
+    shifted = standby.with_values({"output.voltage_target": "15 V"})
+    assert codes(check_design(shifted))["output-off-target"].severity == "fail"
+
+
+def test_findings_are_sorted_and_finite(standby_report):
+    order = {"fail": 0, "warn": 1, "info": 2}
+    ranks = [order[f.severity] for f in standby_report.findings]
+    assert ranks == sorted(ranks)
+    for finding in standby_report.findings:
+        for number in (finding.value, finding.limit):
+            assert number is None or math.isfinite(number)
+        assert finding.message and (finding.advice or finding.severity == "info")
+
+
+def test_report_json_has_the_documented_keys(standby_report):
+    data = standby_report.to_json()
+    assert {"title", "verdict", "findings", "operating_points", "stress", "caution"} <= set(data)
+    assert len(data["operating_points"]) == 9
+    assert set(data["operating_points"][0]) == {
+        "line_v", "bus_v", "load_a", "temperature_c", "output_v", "frequency_hz",
+        "on_time_s", "off_time_s", "duty", "peak_current_a", "mode", "on_end", "off_end"}
+    assert {"switch_peak_v", "switch_rating_v", "rating_basis", "core_peak_flux_t",
+            "core_limit_t"} <= set(data["stress"])
+    json.dumps(data, allow_nan=False)
+
+
+# --------------------------------------------------------------- CLI
+@pytest.mark.parametrize("path", WORKED, ids=lambda p: p.stem)
+def test_check_runs_on_every_worked_case(path):
+    result = runner.invoke(app, ["check", str(path), "--json"])
+    assert result.exit_code in (0, 1), result.output
+    data = json.loads(result.stdout)
+    assert result.exit_code == (1 if data["verdict"] == "fail" else 0)
+    assert "startup" in data and isinstance(data["startup"]["starts"], bool)
+    json.dumps(data, allow_nan=False)
+
+
+def test_check_text_report_carries_the_caution():
+    result = runner.invoke(app, ["check", str(STANDBY)])
+    assert result.exit_code == 0, result.output
+    text = " ".join(result.stdout.split())
+    assert "lethal voltages" in text and "not a safety evaluation" in text
+    assert "Findings: verdict WARN" in result.stdout
+
+
+def test_check_exit_1_on_fail():
+    result = runner.invoke(app, ["check", str(LEGACY)])
+    assert result.exit_code == 1
+    assert "[FAIL] switch-overvoltage" in result.stdout
+
+
+def test_sweep_csv_plot_and_overwrite_guard(tmp_path):
+    csv_file, png_file = tmp_path / "s.csv", tmp_path / "s.png"
+    args = ["sweep", str(STANDBY), "--line", "85V:265V:3", "--load", "0.1A:0.5A:4",
+            "--csv", str(csv_file), "--plot", str(png_file)]
+    result = runner.invoke(app, args)
+    assert result.exit_code == 0, result.output
+    lines = csv_file.read_text().splitlines()
+    assert len(lines) == 1 + 3 * 4 and lines[0].startswith("line_v,bus_v,load_a")
+    assert png_file.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    again = runner.invoke(app, args)
+    assert again.exit_code == 2 and "--force" in again.output
+    assert runner.invoke(app, args + ["--force"]).exit_code == 0
+
+
+def test_sweep_json_power_load_and_temperature():
+    result = runner.invoke(app, ["sweep", str(AUX), "--line", "48V", "--load", "1W:5W:3",
+                                 "--temperature", "-20degC:70degC:2", "--json"])
+    assert result.exit_code == 0, result.output
+    data = json.loads(result.stdout)
+    assert data["load_kind"] == "power" and len(data["operating_points"]) == 6
+    for row in data["operating_points"]:
+        # a power load is met: P = V I at the computed output
+        assert row["output_v"] * row["load_a"] == pytest.approx(
+            [1.0, 3.0, 5.0][data["operating_points"].index(row) % 3], rel=1e-9)
+
+
+@pytest.mark.parametrize("option, value, message", [
+    ("--line", "85V:x", "START:STOP:COUNT"),
+    ("--line", "85V:265V:0", "count of at least 1"),
+    ("--load", "3 H:4 H:2", "currents"),
+    ("--temperature", "hot", "temperature"),
+])
+def test_sweep_bad_options_exit_2(option, value, message):
+    result = runner.invoke(app, ["sweep", str(STANDBY), option, value])
+    assert result.exit_code == 2
+    assert message in result.output
+
+
+def test_sweep_matches_operating_points(standby):
+    from rcc.cycle import operating_points
+    from rcc.design import Load
+    from rcc.sweep import sweep
+
+    result = sweep(standby, [85.0, 265.0], Load("current", np.array([0.1, 0.4])))
+    direct = operating_points(standby, 265.0, 0.4)
+    assert result.points.frequency[0, 1, 1] == pytest.approx(float(direct.frequency))
+    assert result.points.output_voltage[0, 1, 1] == pytest.approx(float(direct.output_voltage))
