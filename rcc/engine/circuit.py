@@ -38,8 +38,11 @@ that the storage time at the datasheet drive ``I_B1 = I_B2`` with hard
 overdrive equals ``switch.storage_time``: ``tau_S = t_s / ln 2``.
 Base-emitter reverse breakdown at ``switch.vebo``.
 
-*Limiter* (NPN): cut-off, active (``i_C = hFE i_B``), saturated; no charge
-storage (a small-signal transistor, much faster than the switch).
+*Limiter* (NPN): cut-off, active (``i_C = hFE i_B``), saturated, and a
+"collector-open" state when its collector is pulled below the saturation
+voltage with the base driven (the inverse-mode current is neglected, so the
+limiter cannot source the drive current back into the switch base); no
+charge storage (a small-signal transistor, much faster than the switch).
 
 *Diodes and zeners*: forward drop plus resistance, blocking otherwise.
 
@@ -82,6 +85,7 @@ from rcc import devices
 from rcc.design import Design, Load
 
 __all__ = [
+    "build_network",
     "Circuit",
     "Topology",
     "EngineError",
@@ -327,11 +331,28 @@ class Circuit:
             self._cache[code] = _build_topology(self, code)
         return self._cache[code]
 
+    def stored_energy(self, x) -> float:
+        """Energy in all capacitors and inductors at state ``x`` [J]:
+        ``sum C v^2 / 2 + sum L i^2 / 2``."""
+        x = np.asarray(x, dtype=float)
+        total = 0.0
+        for element in self._elements:
+            if element.kind in ("C", "L"):
+                total += 0.5 * element.value * x[self.state_index(element.state)] ** 2
+        return float(total)
+
     def label(self, code: int) -> str:
         """Readable description of a topology code."""
         states = self.decode(code)
         return ", ".join(f"{device.name}={device.states[s].name}"
                          for device, s in zip(self._devices, states))
+
+
+#: Public names of the building blocks, for :func:`build_network`.
+Element = _Element
+Guard = _Guard
+DeviceState = _DeviceState
+Device = _Device
 
 
 # ------------------------------------------------------------- the builder
@@ -489,6 +510,12 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
             G((("i", "q2_be", lim.hfe), ("i", "q2_ce", -1.0)), 1, i_tol,
               "limiter leaves saturation"),
             G((("i", "q2_be", 1.0),), 0, i_tol, "limiter base current ends"),
+            G((("i", "q2_ce", 1.0),), 3, i_tol, "limiter collector current reverses"),
+        )),
+        DS("collector-open", (q2_be,), (
+            G((("c", "", LIMITER_SATURATION_VOLTAGE), ("v", "b", -1.0)), 2, v_tol,
+              "limiter collector rises to saturation"),
+            G((("i", "q2_be", 1.0),), 0, i_tol, "limiter base current ends"),
         )),
     )))
     devs.append(_diode("output_rectifier", "s", "o", out.rectifier_drop,
@@ -558,6 +585,46 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         parameters=parameters,
         _elements=tuple(els), _devices=tuple(devs), _nodes=node_list, _signals=signals,
     )
+
+
+def build_network(elements, devices_, state_names, signals=None, parameters=None) -> Circuit:
+    """A circuit from an explicit element and device list (tests, small studies).
+
+    Parameters
+    ----------
+    elements : sequence of _Element
+        Fixed elements (kinds ``R``, ``C``, ``L``, ``V``, ``I``, ``Istate``,
+        ``CCCS``; windings ``W`` refer to primary nodes ``m`` and ``c``).
+    devices_ : sequence of _Device
+        Switching devices with their states and guards.
+    state_names : sequence of str
+        State vector order; every capacitor and inductor names its state.
+    signals : dict, optional
+        Signal name -> callable(device states by name) -> term list.
+    parameters : dict, optional
+        ``"gmin"`` overrides the node-to-ground conductance :data:`GMIN` [S]
+        (0 for closed-form checks on networks without floating nodes).
+
+    Returns
+    -------
+    Circuit
+        With ``design=None`` and no bus or load.
+    """
+    nodes = {"0"}
+    for element in elements:
+        nodes.update((element.a, element.b))
+    for device in devices_:
+        for state in device.states:
+            for element in state.elements:
+                nodes.update((element.a, element.b))
+    return Circuit(
+        design=None, bus_voltage=float("nan"), load=None, temperature=float("nan"),
+        hfe=float("nan"), state_names=tuple(state_names),
+        device_names=tuple(d.name for d in devices_),
+        device_state_names=tuple(tuple(s.name for s in d.states) for d in devices_),
+        parameters=dict(parameters or {}), _elements=tuple(elements),
+        _devices=tuple(devices_), _nodes=("0",) + tuple(sorted(nodes - {"0"})),
+        _signals=dict(signals or {}))
 
 
 def _scale(terms, factor):
@@ -635,7 +702,7 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
     G = np.zeros((size, size))
     Bx = np.zeros((size, n))
     B0 = np.zeros(size)
-    G[np.arange(n_nodes), np.arange(n_nodes)] += GMIN
+    G[np.arange(n_nodes), np.arange(n_nodes)] += circuit.parameters.get("gmin", GMIN)
     primary = ("m", "c")
 
     def add(row, col, value):
@@ -718,8 +785,9 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
         else:
             continue
         A[sidx[el.state]], bvec[sidx[el.state]] = grad, offset
-    grad, offset = linear(charge_law)
-    A[sidx["q_base"]], bvec[sidx["q_base"]] = grad, offset
+    if "q_base" in sidx:
+        grad, offset = linear(charge_law)
+        A[sidx["q_base"]], bvec[sidx["q_base"]] = grad, offset
 
     guards = [(di, guard) for di, (device, s) in enumerate(zip(circuit._devices, device_states))
               for guard in device.states[s].guards]
@@ -730,7 +798,8 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
     sm = np.zeros((len(SIGNAL_NAMES), n))
     so = np.zeros(len(SIGNAL_NAMES))
     for row, name in enumerate(SIGNAL_NAMES):
-        sm[row], so[row] = linear(circuit._signals[name](active))
+        if name in circuit._signals:
+            sm[row], so[row] = linear(circuit._signals[name](active))
 
     power_forms = _power_forms(circuit, elements, nodes, branch_index, linear, n)
     return Topology(
@@ -788,6 +857,8 @@ def _power_forms(circuit, elements, nodes, branch_index, linear, n):
         else:
             forms["loss"] += absorbed
     # ideal transformer primary (current -sum ratio_k i_k from m to c)
+    if not any(el.kind == "W" for el in elements):
+        return forms
     primary_voltage = aug((("v", "m", 1.0), ("v", "c", -1.0)))
     current = np.zeros(n + 1)
     for el in elements:

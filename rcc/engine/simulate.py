@@ -58,6 +58,8 @@ __all__ = [
     "advance_cycle",
     "power_on_state",
     "segment_energy",
+    "simulate_reference",
+    "expm_flushed",
     "MIN_STEP",
 ]
 
@@ -72,6 +74,9 @@ STORM_EVENTS = 200
 STORM_WINDOW = 1e-9
 #: Most switches at one instant (zero-length segments in a row).
 MAX_CHAIN = 64
+
+#: A run is complete when less than this is left (finest ladder step) [s].
+_END_SLACK = 2.0 * MIN_STEP
 
 # kernel status codes
 _DONE, _NEED, _FULL, _STOP, _STORM, _CHAIN, _EVENTS = 0, 1, 2, 3, 4, 5, 6
@@ -109,9 +114,15 @@ class Trace:
     final_topology : int
         Topology code at the end.
     final_time : float
-        Time reached [s].
+        Time reached [s]: the requested end within ``MIN_STEP`` (the state
+        is exact at this time), or the stop event.
     stopped : bool
         True if the run ended on a requested stop event.
+    state_names, device_names : tuple of str
+        Copied from the circuit.
+    topology_weights, topology_radices : tuple of int
+        Mixed-radix layout of the topology codes (device ``d`` is in state
+        ``(code // weights[d]) % radices[d]``).
     """
 
     times: np.ndarray
@@ -126,9 +137,29 @@ class Trace:
     final_topology: int
     final_time: float
     stopped: bool
+    state_names: tuple = ()
+    device_names: tuple = ()
+    topology_weights: tuple = ()
+    topology_radices: tuple = ()
 
     def __getitem__(self, name: str) -> np.ndarray:
         return self.signals[name]
+
+    def device_transitions(self, device: str, before: int, after: int) -> np.ndarray:
+        """Instants where ``device`` switched from state ``before`` to
+        ``after`` (state indices) [s]."""
+        if device not in self.device_names:
+            return np.empty(0)
+        d = self.device_names.index(device)
+        weight, radix = self.topology_weights[d], self.topology_radices[d]
+        old = (self.event_from // weight) % radix
+        new = (self.event_to // weight) % radix
+        mask = (self.event_devices == d) & (old == before) & (new == after)
+        return self.event_times[mask]
+
+    def turn_on_times(self) -> np.ndarray:
+        """Instants where the switch went from cut-off to active [s]."""
+        return self.device_transitions("switch", 0, 1)
 
 
 @dataclass(frozen=True)
@@ -275,6 +306,7 @@ def _kernel(x, t, slot, t_end, max_step,
     cap_ev = ev_t.shape[0]
     while True:
         # ---- consistency: switch while some guard is violated at x
+        switched = False
         for chain in range(MAX_CHAIN + 1):
             if chain == MAX_CHAIN:
                 return _CHAIN, slot, t, -1, rec_n, ev_n, storm_pos
@@ -290,6 +322,13 @@ def _kernel(x, t, slot, t_end, max_step,
                     fired = g
                     break
             if fired < 0:
+                # one sample in the settled topology (zero-length
+                # intermediate topologies are not recorded)
+                if switched and record:
+                    rec_t[rec_n] = t
+                    rec_x[rec_n, :] = x
+                    rec_code[rec_n] = code_of_slot[slot]
+                    rec_n += 1
                 break
             dev = gdev[slot, fired]
             code = code_of_slot[slot]
@@ -298,7 +337,7 @@ def _kernel(x, t, slot, t_end, max_step,
             new_slot = slot_of_code[new_code]
             if new_slot < 0:
                 return _NEED, slot, t, new_code, rec_n, ev_n, storm_pos
-            if ev_n >= cap_ev or (record and rec_n >= cap_rec):
+            if ev_n >= cap_ev or (record and rec_n + 2 >= cap_rec):
                 return _FULL, slot, t, -1, rec_n, ev_n, storm_pos
             if ev_n >= max_events:
                 return _EVENTS, slot, t, -1, rec_n, ev_n, storm_pos
@@ -315,13 +354,14 @@ def _kernel(x, t, slot, t_end, max_step,
             if t - oldest < STORM_WINDOW:
                 return _STORM, new_slot, t, -1, rec_n, ev_n, storm_pos
             slot = new_slot
-            if record:
-                rec_t[rec_n] = t
-                rec_x[rec_n, :] = x
-                rec_code[rec_n] = new_code
-                rec_n += 1
+            switched = True
             if dev == stop_dev and current == 0 and gtarget[slot_of_code[code], fired] == stop_to \
                     and t > stop_after:
+                if record:
+                    rec_t[rec_n] = t
+                    rec_x[rec_n, :] = x
+                    rec_code[rec_n] = new_code
+                    rec_n += 1
                 return _STOP, slot, t, -1, rec_n, ev_n, storm_pos
         # ---- one step (or a bisection to the next event)
         if t >= t_end:
@@ -334,8 +374,8 @@ def _kernel(x, t, slot, t_end, max_step,
         while level < last and steps[slot, level] > remaining:
             level += 1
         if steps[slot, level] > t_end - t:
-            t = t_end
-            continue
+            # less than the finest step left: stop here (within MIN_STEP)
+            return _DONE, slot, t, -1, rec_n, ev_n, storm_pos
         refinements = 0
         while True:
             _propagate(ladder[slot, level], x, x1, n)
@@ -489,6 +529,7 @@ def _ladder(augmented: np.ndarray, h_top: float, levels: int) -> np.ndarray:
     subnormal numbers behind (they make matrix products very slow).
     """
     out = np.empty((levels,) + augmented.shape)
+    augmented, scale = _balance(augmented)
     norm = np.abs(augmented).sum(axis=0).max()
     size = augmented.shape[0]
     for level in range(levels - 1, -1, -1):
@@ -509,7 +550,16 @@ def _ladder(augmented: np.ndarray, h_top: float, levels: int) -> np.ndarray:
             finer = out[level + 1].copy()
             finer[np.abs(finer) < 1e-100] = 0.0
             out[level] = finer @ finer
-    return out
+    return out * scale[:, None] / scale[None, :]
+
+
+def _balance(matrix: np.ndarray):
+    """Diagonal balancing ``matrix = D B D^-1`` by powers of two (Parlett &
+    Reinsch 1969, via ``scipy.linalg.matrix_balance``): states of very
+    different scales (coulombs next to volts) otherwise inflate the norm and
+    the number of squarings, and with them the rounding error."""
+    balanced, transform = scipy.linalg.matrix_balance(matrix, permute=False)
+    return balanced, np.diag(transform).copy()
 
 
 def _top_step(A: np.ndarray) -> float:
@@ -688,7 +738,7 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
     if record:
         rec_t[0], rec_x[0], rec_code[0] = t, x, code
         rec_n = 1
-    switch = circuit.device_index("switch")
+    switch = circuit.device_index("switch") if "switch" in circuit.device_names else -1
     stop_dev = switch if stop_on_turn_on > 0 else -1
     turn_ons = 0
     stopped = False
@@ -739,11 +789,11 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
             continue
         if not np.all(np.isfinite(x)):
             raise EngineError(f"non-finite state at t = {t:.9g} s")
-        if settle_only or t >= t_end:
+        if settle_only or t >= t_end - _END_SLACK:
             break
         if progress is not None:
             progress(t, t_end)
-        chunk_end = min(t_end, t + span / 100.0)
+        chunk_end = min(t_end, max(chunk_end, t) + span / 100.0)
     if progress is not None:
         progress(t, t_end)
     times = np.concatenate(chunks_t)
@@ -756,6 +806,8 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
         event_to=np.concatenate(events[2]), event_devices=np.concatenate(events[3]),
         final_state=x.copy(), final_topology=int(store.code_of_slot[slot]),
         final_time=float(t), stopped=stopped,
+        state_names=circuit.state_names, device_names=circuit.device_names,
+        topology_weights=circuit.weights, topology_radices=circuit.radices,
     )
 
 
@@ -898,17 +950,19 @@ def expm_flushed(matrix: np.ndarray) -> np.ndarray:
 
     Notes
     -----
-    Scale by ``2**-s`` until the 1-norm is at most 1/2, sum the Taylor
+    Balance (diagonal similarity), scale by ``2**-s`` until the 1-norm is
+    at most 1/2, sum the Taylor
     series, square ``s`` times (Moler & Van Loan 2003, method 3), flushing
     entries below 1e-100 to zero: stiff decayed modes otherwise leave
     subnormal numbers that make every product very slow.
     """
+    matrix, scale = _balance(matrix)
     s = _squarings(matrix)
     result = _taylor(matrix * 2.0 ** (-s))
     for _ in range(s):
         result[np.abs(result) < 1e-100] = 0.0
         result = result @ result
-    return result
+    return result * scale[:, None] / scale[None, :]
 
 
 def segment_energy(topology: Topology, x0, duration: float) -> dict:
@@ -962,3 +1016,99 @@ def segment_energy(topology: Topology, x0, duration: float) -> dict:
             phi = phi @ phi
         out[key] = float(z0 @ gramian @ z0)
     return out
+
+
+def simulate_reference(circuit: Circuit, x0, t_end: float, topology: int | None = None,
+                       rtol: float = 1e-9, atol: float = 1e-12, method: str = "Radau",
+                       max_events: int = 100_000):
+    """The same piecewise-linear equations integrated by scipy's ``solve_ivp``.
+
+    For validation and benchmarks only: each topology is integrated with a
+    general-purpose implicit integrator (Radau IIA of order 5 by default,
+    with the exact Jacobian ``A``), switching instants are located by
+    ``solve_ivp``'s event detection on the same guard functions, and the
+    next topology is settled exactly as the engine does.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    x0 : array_like, shape (n,)
+    t_end : float
+        End time [s].
+    topology : int, optional
+        Initial topology code (default: settled from ``x0``).
+    rtol, atol : float
+        Integrator tolerances [1], [state units].
+    method : str
+        ``solve_ivp`` method.
+    max_events : int
+
+    Returns
+    -------
+    tuple of (ndarray, ndarray, ndarray, ndarray)
+        Event times [s], codes before, codes after, final state.
+
+    References
+    ----------
+    .. [1] E. Hairer, G. Wanner, *Solving Ordinary Differential Equations
+       II: Stiff and Differential-Algebraic Problems*, Springer, 1996
+       (Radau IIA).
+    """
+    from scipy.integrate import solve_ivp
+
+    x = np.array(x0, dtype=float)
+    code = settle_topology(circuit, x, 0 if topology is None else int(topology))
+    t = 0.0
+    times, before, after = [], [], []
+    while t < t_end and len(times) < max_events:
+        top = circuit.topology(code)
+        A, b = top.A, top.b
+
+        def make_event(g):
+            def event(_t, y):
+                return top.guard_gradients[g] @ y + top.guard_offsets[g] + top.guard_tolerances[g]
+            event.terminal = True
+            event.direction = -1
+            return event
+
+        events = [make_event(g) for g in range(len(top.guard_offsets))]
+        solution = solve_ivp(lambda _t, y: A @ y + b, (t, t_end), x, method=method,
+                             jac=lambda _t, y: A, events=events, rtol=rtol, atol=atol)
+        if solution.status == -1:
+            raise EngineError(f"reference integrator failed: {solution.message}")
+        x = solution.y[:, -1].copy()
+        t = float(solution.t[-1])
+        if solution.status == 1:
+            new_code = settle_topology(circuit, x, code)
+            chain = _chain(circuit, code, new_code, x)
+            for c_from, c_to in chain:
+                times.append(t)
+                before.append(c_from)
+                after.append(c_to)
+            code = new_code
+    return np.array(times), np.array(before), np.array(after), x
+
+
+def _chain(circuit: Circuit, start: int, end: int, x):
+    """The single-device switches settle_topology applied from start to end."""
+    steps = []
+    code = start
+    for _ in range(MAX_CHAIN):
+        if code == end:
+            break
+        nxt = _one_switch(circuit, code, x)
+        steps.append((code, nxt))
+        code = nxt
+    return steps
+
+
+def _one_switch(circuit: Circuit, code: int, x) -> int:
+    topology = circuit.topology(code)
+    values = topology.guard_gradients @ x + topology.guard_offsets
+    rates = topology.guard_gradients @ topology.vector_field(x)
+    tol = topology.guard_tolerances
+    bad = (values < -tol) | ((values <= tol) & (rates < 0))
+    g = int(np.argmax(bad))
+    states = list(circuit.decode(code))
+    states[int(topology.guard_devices[g])] = int(topology.guard_targets[g])
+    return circuit.encode(states)
