@@ -322,8 +322,14 @@ def test_classify_flags():
     unit circle, fold at +1."""
     flip = classify_multipliers([-0.98, 0.2])
     assert flip.period_doubling and flip.stable and not flip.quasi_periodic
-    pair = classify_multipliers([0.6 + 0.78j, 0.6 - 0.78j])
+    # |m| = 0.999 at 0.3 rad per cycle: the mode keeps 0.999^(2 pi/0.3) = 98 %
+    # of its amplitude per oscillation -> flagged; |m| = 0.984 at 0.915 rad
+    # keeps 0.984^(6.87) = 90 % -> a well-damped slow mode, not flagged.
+    close = 0.999 * np.exp(0.3j)
+    pair = classify_multipliers([close, np.conj(close)])
     assert pair.quasi_periodic and not pair.period_doubling and pair.stable
+    damped = classify_multipliers([0.6 + 0.78j, 0.6 - 0.78j])
+    assert not damped.quasi_periodic and damped.stable
     unstable = classify_multipliers([1.2, 0.1])
     assert not unstable.stable and unstable.largest_modulus == pytest.approx(1.2)
     calm = classify_multipliers([0.3, -0.2 + 0.1j, -0.2 - 0.1j])

@@ -59,6 +59,7 @@ def main() -> None:  # console-script entry point
 from rcc.cli import check as _check  # noqa: E402,F401
 from rcc.cli import sweep as _sweep  # noqa: E402,F401
 from rcc.cli import startup as _startup  # noqa: E402,F401
+from rcc.cli import cycle as _cycle  # noqa: E402,F401
 from rcc.cli import waveforms as _waveforms  # noqa: E402,F401
 
 if __name__ == "__main__":  # pragma: no cover

@@ -342,8 +342,12 @@ def classify_multipliers(multipliers, margin: float = 0.05) -> MultiplierReport:
     multipliers : array_like of complex
         Non-trivial multipliers [1].
     margin : float, default 0.05
-        Distance to -1 (flip) or to the unit circle (complex pair) below
-        which a flag is raised [1].
+        Closeness that raises a flag [1]: a real multiplier within
+        ``margin`` of -1 (flip); a complex pair ``r exp(+-i theta)`` whose
+        mode keeps more than ``1 - margin`` of its amplitude over one of its
+        own oscillations, ``r^(2 pi/theta) > 1 - margin`` (a lightly damped
+        slow drift around the cycle); a real multiplier within
+        ``margin / 100`` of +1 (a weakly damped mode).
 
     Returns
     -------
@@ -355,18 +359,27 @@ def classify_multipliers(multipliers, margin: float = 0.05) -> MultiplierReport:
     the unit circle through -1 (period doubling), through +1 (fold) or as a
     complex pair (Neimark-Sacker, quasi-periodic motion); Kuznetsov,
     *Elements of Applied Bifurcation Theory*, 3rd ed., 2004, sec. 4.5 and
-    5.4.
+    5.4.  A slow complex pair close to 1 is normal in a supply (the output
+    filter with the regulation loop); it is flagged only when it is close
+    to the circle *per oscillation of the mode*, i.e. its damping ratio is
+    small.
     """
     values = np.asarray(multipliers, dtype=complex).ravel()
     if values.size == 0:
         return MultiplierReport(True, 0.0, False, False, False, ())
     modulus = np.abs(values)
     largest = float(modulus.max())
-    is_real = np.abs(values.imag) <= 1e-9 * np.maximum(modulus, 1e-300) + 1e-12
-    flip = bool(np.any(is_real & (np.abs(values.real + 1.0) < margin)))
+    angle = np.abs(np.angle(values))
+    is_real = (angle <= 1e-9) | (np.abs(angle - np.pi) <= 1e-9)
+    flip = bool(np.any(is_real & (values.real < 0) & (np.abs(values.real + 1.0) < margin)))
     flip = flip or bool(np.any(is_real & (values.real < -1.0)))
-    pair = bool(np.any(~is_real & (modulus > 1.0 - margin)))
-    fold = bool(np.any(is_real & (np.abs(values.real - 1.0) < margin * 1e-2)))
+    with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
+        per_oscillation = np.where(~is_real & (modulus > 0),
+                                   np.exp(2.0 * np.pi / np.where(is_real, 1.0, angle)
+                                          * np.log(np.maximum(modulus, 1e-300))), 0.0)
+    pair = bool(np.any(~is_real & (per_oscillation > 1.0 - margin)))
+    fold = bool(np.any(is_real & (values.real > 0)
+                       & (np.abs(values.real - 1.0) < margin * 1e-2)))
     stable = largest < 1.0
     flags = []
     if not stable:
@@ -374,7 +387,8 @@ def classify_multipliers(multipliers, margin: float = 0.05) -> MultiplierReport:
     if flip:
         flags.append("period doubling: a multiplier near -1")
     if pair:
-        flags.append("quasi-periodic drift: a complex multiplier pair near the unit circle")
+        flags.append("quasi-periodic drift: a lightly damped complex multiplier pair "
+                     "near the unit circle")
     if fold:
         flags.append("weakly damped mode: a multiplier within "
                      f"{margin * 1e-2:g} of +1")
