@@ -65,7 +65,7 @@ ON_END = ("drive", "limit", "regulation")
 #: What ended the off-time.
 OFF_END = ("demagnetization", "drive-timing")
 
-_BISECTION_STEPS = 30
+_BISECTION_STEPS = 26
 _NEWTON_STEPS = 8
 _SCAN_POINTS = 12
 _SETTLE_STEPS = 2
@@ -334,25 +334,35 @@ def _voltage_for_power(load, power, fallback):
     return np.where(current > 0, power / np.maximum(current, 1e-300), fallback)
 
 
-def _solve_rising(slope, gain, amplitude, offset, tau, initial):
-    """Smallest t >= 0 with initial + slope t = gain (amplitude e^(-t/tau) + offset).
+def _solve_rising(slope, gain, amplitude, offset, tau, initial, horizon):
+    """Time the switch leaves saturation, if before ``horizon``.
 
-    The left side rises and the right side falls (amplitude >= 0), so the
-    root is unique; Newton from t = 0 approaches it from below because the
-    difference is concave.  Returns 0 where the drive is already short at
-    t = 0 and a large finite time where the drive never runs out.
+    Smallest ``t >= 0`` with ``initial + slope t = gain (amplitude e^(-t/tau)
+    + offset)``.  The left side rises and the right side falls (amplitude
+    >= 0), so the root is unique; Newton from ``t = 0`` approaches it from
+    below because the difference is concave.  Only points whose drive runs
+    out before ``horizon`` (the limiter's trip time) are solved; the others
+    return ``horizon``.  Returns 0 where the drive is already short at t = 0.
     """
-    target0 = gain * (amplitude + offset) - initial
-    t_inf = np.where(gain * offset > initial, (gain * offset - initial) / slope, 0.0)
-    # upper estimate: the time the ramp reaches the initial drive capability
-    t = np.zeros_like(target0)
-    for _ in range(_NEWTON_STEPS):
-        decay = np.exp(-t / tau)
-        residual = initial + slope * t - gain * (amplitude * decay + offset)
-        derivative = slope + gain * amplitude * decay / tau
-        t = np.maximum(t - residual / derivative, 0.0)
-    t = np.where(target0 <= 0.0, 0.0, t)
-    return np.maximum(t, np.minimum(t_inf, t))
+    at_horizon = np.atleast_1d(initial + slope * horizon - gain * (
+        amplitude * np.exp(-horizon / tau) + offset))
+    t = np.array(np.broadcast_to(horizon, at_horizon.shape), dtype=float)
+    short = np.nonzero(at_horizon > 0.0)
+    if short[0].size:
+        def pick(values):
+            return np.broadcast_to(np.asarray(values, dtype=float), t.shape)[short]
+
+        slope_s, gain_s = pick(slope), pick(gain)
+        amplitude_s, offset_s = pick(amplitude), pick(offset)
+        initial_s, tau_s = pick(initial), pick(tau)
+        ts = np.zeros(short[0].size)
+        for _ in range(_NEWTON_STEPS):
+            decay = np.exp(-ts / tau_s)
+            residual = initial_s + slope_s * ts - gain_s * (amplitude_s * decay + offset_s)
+            derivative = slope_s + gain_s * amplitude_s * decay / tau_s
+            ts = np.maximum(ts - residual / derivative, 0.0)
+        t[short] = ts
+    return t.reshape(np.shape(initial + slope * horizon + gain * amplitude))
 
 
 class _Cycle:
@@ -400,9 +410,10 @@ class _Cycle:
         # ---- on-time: drive-limited decision (switch leaves saturation)
         amplitude = np.maximum(self.v_on - vc0, 0.0) / rb
         offset = self.startup_current - self.bleed
-        t_drive = _solve_rising(self.slope, self.hfe, amplitude, offset, tau, i0)
+        t_trip = np.maximum(itrip - i0, 0.0) / self.slope
+        t_drive = _solve_rising(self.slope, self.hfe, amplitude, offset, tau, i0, t_trip)
         i_drive = i0 + self.slope * t_drive
-        drive_ends = i_drive < np.maximum(itrip, i0)
+        drive_ends = i_drive < np.maximum(itrip, i0) * (1.0 - 1e-12)
         i_decision = np.where(drive_ends, i_drive, np.maximum(itrip, i0))
         overshoot = np.where(drive_ends, 0.0, self.slope * sw.storage_time)
         peak = i_decision + overshoot
