@@ -18,6 +18,10 @@ Pitfalls and how they are handled:
 * *root finder just before a crossing*: the bisection keeps a bracket and
   commits to its upper end, the exact state just past the crossing (within
   ``MIN_STEP``);
+* *fast transients right after a switch*: the first step after a switch is
+  half the fastest time constant of the new topology and the step doubles
+  after each accepted step up to ``h_top``, so a guard that dips through
+  zero for a nanosecond after a switch is seen;
 * *zero-length segments*: after every switch all guards of the new topology
   are checked at the same instant (value and slope) and further switches
   are applied before time advances; more than ``MAX_CHAIN`` in a row is an
@@ -297,6 +301,7 @@ def _kernel(x, t, slot, t_end, max_step,
     Returns (status, slot, t, missing_code, rec_n, ev_n, storm_pos).
     """
     n = x.shape[0]
+    grow = top_level[slot]
     x1 = np.empty(n)
     xm = np.empty(n)
     lo = np.empty(n)
@@ -324,11 +329,13 @@ def _kernel(x, t, slot, t_end, max_step,
             if fired < 0:
                 # one sample in the settled topology (zero-length
                 # intermediate topologies are not recorded)
-                if switched and record:
-                    rec_t[rec_n] = t
-                    rec_x[rec_n, :] = x
-                    rec_code[rec_n] = code_of_slot[slot]
-                    rec_n += 1
+                if switched:
+                    grow = top_level[slot]
+                    if record:
+                        rec_t[rec_n] = t
+                        rec_x[rec_n, :] = x
+                        rec_code[rec_n] = code_of_slot[slot]
+                        rec_n += 1
                 break
             dev = gdev[slot, fired]
             code = code_of_slot[slot]
@@ -368,7 +375,10 @@ def _kernel(x, t, slot, t_end, max_step,
             return _DONE, slot, t, -1, rec_n, ev_n, storm_pos
         if record and rec_n + 2 >= cap_rec:
             return _FULL, slot, t, -1, rec_n, ev_n, storm_pos
-        level = top_level[slot]
+        # steps grow geometrically after a switch, from the fastest time
+        # constant up to the top step, so that a fast transient of a guard
+        # right after a switch is sampled
+        level = grow
         last = nlevels[slot] - 1
         remaining = min(t_end - t, max_step)
         while level < last and steps[slot, level] > remaining:
@@ -435,6 +445,10 @@ def _kernel(x, t, slot, t_end, max_step,
             for j in range(n):
                 x[j] = x1[j]
             t = t + steps[slot, level]
+            if grow > 0:
+                grow = min(grow, level) - 1
+                if grow < 0:
+                    grow = 0
         if record:
             rec_t[rec_n] = t
             rec_x[rec_n, :] = x
@@ -507,7 +521,7 @@ class _Store:
         self.ladder[slot, :levels] = _ladder(augmented, h_top, levels)
         self.steps[slot, :levels] = h_top * 2.0 ** (-np.arange(levels))
         self.nlevels[slot] = levels
-        self.top_level[slot] = 0
+        self.top_level[slot] = _start_level(topology.A, h_top, levels)
         if not np.all(np.isfinite(self.ladder[slot, :levels])):
             raise EngineError(f"non-finite matrix exponential in topology "
                               f"{self.circuit.label(code)}")
@@ -560,6 +574,16 @@ def _balance(matrix: np.ndarray):
     the number of squarings, and with them the rounding error."""
     balanced, transform = scipy.linalg.matrix_balance(matrix, permute=False)
     return balanced, np.diag(transform).copy()
+
+
+def _start_level(A: np.ndarray, h_top: float, levels: int) -> int:
+    """Ladder level of the first step after a switch: a step of half the
+    fastest time constant ``1 / max |lambda|`` of the topology."""
+    fastest = float(np.max(np.abs(np.linalg.eigvals(A)), initial=0.0))
+    if fastest <= 0:
+        return 0
+    ratio = h_top * fastest / 0.5
+    return int(min(levels - 1, max(0, math.ceil(math.log2(ratio))))) if ratio > 1 else 0
 
 
 def _top_step(A: np.ndarray) -> float:
@@ -629,7 +653,10 @@ def dc_initial_state(circuit: Circuit, from_dc_point: bool = False):
     x = np.zeros(circuit.n_states)
     for _ in range(50):
         topology = circuit.topology(code)
-        x, *_ = np.linalg.lstsq(topology.A, -topology.b, rcond=None)
+        try:
+            x = np.linalg.solve(topology.A, -topology.b)
+        except np.linalg.LinAlgError:
+            x, *_ = np.linalg.lstsq(topology.A, -topology.b, rcond=None)
         new_code = settle_topology(circuit, x, code, slopes=False)
         if new_code == code:
             return x
