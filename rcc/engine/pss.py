@@ -66,6 +66,10 @@ __all__ = [
     "periodic_steady_state",
     "parse_load",
     "plot_periodic_steady_state",
+    "VerifiedPoint",
+    "verify_operating_points",
+    "benchmark_iterations",
+    "poincare_map",
 ]
 
 
@@ -106,7 +110,10 @@ class PeriodicOrbit:
     converged : bool
         ``residual`` below the tolerance.
     residual_history : tuple of float
-        Scaled residual before each Newton step [1].
+        Scaled residual before each Newton step of the last Newton run [1].
+    transient_cycles : int
+        Cycles of transient simulated after the first Newton run failed
+        (0 when it converged at once) [1].
     """
 
     state: np.ndarray
@@ -120,6 +127,7 @@ class PeriodicOrbit:
     residual: float
     converged: bool
     residual_history: tuple
+    transient_cycles: int = 0
 
 
 def _scaled(residual, scale) -> float:
@@ -197,7 +205,8 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
                         fallback_cycles: int = 5000, fixed=None,
                         multiplier_margin: float = 0.05,
                         picard_threshold: float = 0.0, transient=None,
-                        transient_chunk: int = 100) -> PeriodicOrbit:
+                        transient_chunk: int = 100,
+                        retry_newton: bool = True) -> PeriodicOrbit:
     """Fixed point of the Poincaré map by Newton's method, transient fall-back.
 
     Parameters
@@ -235,6 +244,9 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
         checks.  Default: iterate ``advance_cycle``.
     transient_chunk : int, default 100
         Cycles per fall-back chunk [1].
+    retry_newton : bool, default True
+        With ``transient``: try Newton again after chunks 1, 2, 4, 8, ...,
+        from the state the transient reached.
 
     Returns
     -------
@@ -253,7 +265,10 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
     factor of two (another branch of the map, e.g. a re-trigger of the
     turn-on) is halved up to four times.  When Newton does not converge, the
     map is iterated from the starting guess (a long transient), which
-    converges whenever the orbit is stable; a warning says so.
+    converges whenever the orbit is stable; a warning says so.  With a fast
+    ``transient``, Newton is tried again after chunks 1, 2, 4, ... (the switching
+    map is only piecewise smooth: Newton converges once the event sequence
+    of the iterate is that of the orbit).
     """
     x = np.asarray(initial_state, dtype=float).copy()
     if scale is None:
@@ -265,71 +280,82 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
     except CycleError as error:
         raise PeriodicSteadyStateError(f"no switching cycle from the starting state: {error}") from None
     start, start_cycle = x.copy(), cycle
-    history = []
-    iterations = 0
-    converged = False
-    for _ in range(max_iterations + 1):
-        residual_vector = cycle.end_state - x
-        residual = _scaled(residual_vector, scale)
-        history.append(residual)
-        if residual < tolerance:
-            converged = True
-            break
-        if iterations == max_iterations:
-            break
-        try:
-            jacobian = poincare_jacobian(cycle)
-            step = newton_picard_step(jacobian, residual_vector, scale, picard_threshold)
-        except (CycleError, np.linalg.LinAlgError, ValueError):
-            break
-        iterations += 1
-        accepted = False
-        fraction = 1.0
-        for _halving in range(5):
-            candidate = x + fraction * step
-            try:
-                trial = advance_cycle(candidate)
-            except CycleError:
-                fraction *= 0.5
-                continue
-            same_branch = 0.5 * cycle.period < trial.period < 2.0 * cycle.period
-            if same_branch and (_scaled(trial.end_state - candidate, scale)
-                                < max(residual, tolerance) or fraction < 0.1):
-                accepted = True
-                break
-            fraction *= 0.5
-        if not accepted:
-            break
-        x, cycle = candidate, trial
-        if _scaled(fraction * step, scale) < tolerance * 1e-2:
+
+    def newton(x, cycle, limit):
+        history, iterations = [], 0
+        for _ in range(limit + 1):
             residual_vector = cycle.end_state - x
             residual = _scaled(residual_vector, scale)
             history.append(residual)
-            converged = residual < max(tolerance, 1e3 * np.finfo(float).eps)
-            break
+            if residual < tolerance:
+                return True, x, cycle, iterations, history
+            if iterations == limit:
+                break
+            try:
+                jacobian = poincare_jacobian(cycle)
+                step = newton_picard_step(jacobian, residual_vector, scale, picard_threshold)
+            except (CycleError, np.linalg.LinAlgError, ValueError):
+                break
+            iterations += 1
+            accepted = False
+            fraction = 1.0
+            for _halving in range(5):
+                candidate = x + fraction * step
+                try:
+                    trial = advance_cycle(candidate)
+                except CycleError:
+                    fraction *= 0.5
+                    continue
+                same_branch = 0.5 * cycle.period < trial.period < 2.0 * cycle.period
+                if same_branch and (_scaled(trial.end_state - candidate, scale)
+                                    < max(residual, tolerance)):
+                    accepted = True
+                    break
+                fraction *= 0.5
+            if not accepted:
+                break
+            x, cycle = candidate, trial
+            if _scaled(fraction * step, scale) < tolerance * 1e-2:
+                residual = _scaled(cycle.end_state - x, scale)
+                history.append(residual)
+                return residual < max(tolerance, 1e3 * np.finfo(float).eps), x, cycle, \
+                    iterations, history
+        return False, x, cycle, iterations, history
+
+    converged, x, cycle, iterations, history = newton(start, start_cycle, max_iterations)
     method = "newton"
+    transient_cycles = 0
     if not converged:
-        warnings.warn("Newton's method on the Poincaré map did not converge; "
-                      "falling back to a long transient", FallbackWarning, stacklevel=2)
-        method = "transient-fallback"
-        iterations = 0
+        warnings.warn("Newton's method on the Poincaré map did not converge from the "
+                      "starting state; continuing the transient", FallbackWarning, stacklevel=2)
         x, cycle = start, start_cycle
-        while iterations < fallback_cycles:
+        chunks = 0
+        while transient_cycles < fallback_cycles:
             x = cycle.end_state
             try:
                 if transient is not None:
-                    chunk = max(1, min(transient_chunk, fallback_cycles - iterations - 1))
+                    chunk = max(1, min(transient_chunk, fallback_cycles - transient_cycles - 1))
                     x = transient(x, chunk)
-                    iterations += chunk
+                    transient_cycles += chunk
                 cycle = advance_cycle(x)
             except CycleError as error:
                 raise PeriodicSteadyStateError(
                     f"the transient fall-back lost the oscillation: {error}") from None
-            iterations += 1
+            transient_cycles += 1
             residual = _scaled(cycle.end_state - x, scale)
             if residual < tolerance:
-                converged = True
+                converged, method, iterations = True, "transient-fallback", transient_cycles
+                history.append(residual)
                 break
+            chunks += 1
+            if transient is not None and retry_newton and chunks & (chunks - 1) == 0:
+                # closer now: Newton again, from the transient's state
+                ok, x_n, cycle_n, it_n, hist_n = newton(x, cycle, max_iterations)
+                if ok:
+                    converged, x, cycle, iterations, history = ok, x_n, cycle_n, it_n, hist_n
+                    break
+        else:
+            method, iterations = "transient-fallback", transient_cycles
     jacobian = poincare_jacobian(cycle)
     gradient = cycle.events[-1].gradient
     multipliers = section_multipliers(jacobian, gradient, fixed)
@@ -346,6 +372,7 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
         residual=_scaled(cycle.end_state - x, scale),
         converged=converged,
         residual_history=tuple(history),
+        transient_cycles=transient_cycles,
     )
 
 
@@ -358,13 +385,14 @@ WAVEFORM_SIGNALS = ("collector_voltage", "primary_current", "base_current",
 #: Samples per period of the stored waveform (at least, events added) [1].
 WAVEFORM_SAMPLES = 2000
 #: Switching cycles of the warm-up transient before Newton's method [1].
-WARMUP_CYCLES = 300
+WARMUP_CYCLES = 1000
 #: Convergence tolerance on the scaled Poincaré-map residual [1]: the engine
 #: locates switching instants to about 1e-15 s, so the map is smooth to
 #: about 1e-12 of the state scale; 1e-9 leaves margin.
 CIRCUIT_TOLERANCE = 1e-9
 #: Multipliers below this modulus are left to simple iteration in the
-#: circuit's Newton-Picard solve [1].
+#: circuit's solve [1]; 0: plain Newton, which measured best on the worked
+#: cases (the Jacobian's fast block is accurate enough near the orbit).
 PICARD_THRESHOLD = 0.5
 
 
@@ -456,6 +484,14 @@ class PeriodicSteadyState:
         Names of the state variables.
     waveform : CycleWaveform
         One period of the main waveforms.
+    jacobian : ndarray
+        Poincaré-map Jacobian at ``state`` (saltation-based) [1, mixed units].
+    turn_on_topology : int
+        Engine topology code just after the turn-on (with ``state``, a
+        restart point for :func:`poincare_map`).
+    scale : ndarray
+        Typical magnitude of each state variable used for the residual
+        [state units].
     """
 
     line_voltage: float
@@ -482,6 +518,9 @@ class PeriodicSteadyState:
     state: np.ndarray
     state_names: tuple
     waveform: CycleWaveform
+    jacobian: np.ndarray
+    turn_on_topology: int
+    scale: np.ndarray
 
     def to_json(self) -> dict:
         """JSON-ready summary (SI units, temperature in degC, no NaN)."""
@@ -591,13 +630,28 @@ def _engine_cycle_data(circuit, result) -> CycleData:
         raise CycleError("the engine's cycle has no closing turn-on event")
     segments, events = [], []
     for segment, event in zip(result.segments[:closing + 1], result.events[:closing + 1]):
+        label = _event_label(circuit, event)
+        if events and segment.duration <= CHAIN_TIME:
+            # a switch that follows another at the same instant is a
+            # consequence of it (its guard was violated by the new
+            # topology), not an independent crossing: the pair is one jump
+            # from the first topology to the last, timed by the first guard
+            previous = events[-1]
+            events[-1] = CycleEvent(previous.label + "+" + label, previous.time,
+                                    previous.field_before, event.field_after,
+                                    previous.gradient)
+            continue
         segments.append(CycleSegment(circuit.label(segment.topology), segment.duration,
                                      segment.transition))
-        events.append(CycleEvent(_event_label(circuit, event), event.time, event.field_before,
+        events.append(CycleEvent(label, event.time, event.field_before,
                                  event.field_after, event.guard_gradient))
     return CycleData(np.asarray(result.start_state, dtype=float),
                      np.asarray(result.events[closing].state, dtype=float),
                      float(result.events[closing].time), tuple(segments), tuple(events))
+
+
+#: Events closer than this to the previous one form one chained switch [s].
+CHAIN_TIME = 0.0
 
 
 class _CircuitCycleMap:
@@ -959,6 +1013,8 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
     flags = list(orbit.report.flags)
     if orbit.method != "newton":
         flags.append("Newton's method did not converge: result of a long transient")
+    elif orbit.transient_cycles:
+        flags.append(f"Newton converged after {orbit.transient_cycles} more transient cycles")
     if not orbit.converged:
         flags.append(f"not converged: scaled residual {orbit.residual:.3g} after "
                      f"{orbit.iterations} cycles (the oscillation may not be periodic)")
@@ -969,10 +1025,12 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
     except CycleError as error:
         raise PeriodicSteadyStateError(f"the engine failed on the final cycle: {error}") from None
     return _summarise(design, circuit, line, float(bus_voltage), load, float(temperature),
-                      hfe_value, orbit, final, tuple(flags))
+                      hfe_value, orbit, final, tuple(flags), cycle_map._topology_for(orbit.state),
+                      scale)
 
 
-def _summarise(design, circuit, line, bus, load, temperature, hfe, orbit, final, flags):
+def _summarise(design, circuit, line, bus, load, temperature, hfe, orbit, final, flags,
+               topology, scale):
     times, states, codes, signals = _sample_cycle(circuit, orbit.state, final, WAVEFORM_SAMPLES)
     closing = orbit.cycle.period
     keep = times <= closing
@@ -1015,6 +1073,9 @@ def _summarise(design, circuit, line, bus, load, temperature, hfe, orbit, final,
         state=np.asarray(orbit.state, dtype=float),
         state_names=tuple(circuit.state_names),
         waveform=waveform,
+        jacobian=np.asarray(orbit.jacobian, dtype=float),
+        turn_on_topology=int(topology),
+        scale=np.asarray(scale, dtype=float),
     )
 
 
@@ -1062,3 +1123,213 @@ def plot_periodic_steady_state(result: PeriodicSteadyState, axes=None):
         f"load {result.load.text()} ({result.method}, {status})", fontsize=9)
     axes[0].figure.tight_layout()
     return axes
+
+
+# ------------------------------------------------------------ verification
+@dataclass(frozen=True)
+class VerifiedPoint:
+    """One operating point by the cycle model and by the periodic steady state.
+
+    Attributes
+    ----------
+    line_voltage : float
+        RMS line (AC input) or DC input voltage [V].
+    load : Load
+        The load.
+    temperature : float
+        Temperature [K].
+    model_frequency, model_output_voltage, model_peak_current : float
+        Cycle model (:func:`rcc.cycle.operating_points`) [Hz], [V], [A].
+    model_mode : str
+        Cycle model's conduction mode.
+    steady_state : PeriodicSteadyState or None
+        The engine's periodic steady state; ``None`` if there is none.
+    error : str
+        Why there is no steady state (empty otherwise).
+    frequency_difference, output_voltage_difference, peak_current_difference : float
+        ``engine / model - 1``; 0 where either is missing [1].
+    event_sequence_changed : bool
+        The event sequence differs from the previous point of the list
+        (same temperature and line): a change of operating regime between
+        neighbouring points.
+    """
+
+    line_voltage: float
+    load: Load
+    temperature: float
+    model_frequency: float
+    model_output_voltage: float
+    model_peak_current: float
+    model_mode: str
+    steady_state: PeriodicSteadyState | None
+    error: str
+    frequency_difference: float
+    output_voltage_difference: float
+    peak_current_difference: float
+    event_sequence_changed: bool
+
+    def to_json(self) -> dict:
+        """JSON-ready summary (no NaN)."""
+        from scipy.constants import zero_Celsius
+
+        data = {
+            "line_v": self.line_voltage, "load": self.load.text(),
+            "temperature_c": self.temperature - zero_Celsius,
+            "model": {"frequency_hz": self.model_frequency,
+                      "output_v": self.model_output_voltage,
+                      "peak_current_a": self.model_peak_current, "mode": self.model_mode},
+            "difference": {"frequency": self.frequency_difference,
+                           "output_v": self.output_voltage_difference,
+                           "peak_current": self.peak_current_difference},
+            "event_sequence_changed": self.event_sequence_changed,
+            "error": self.error,
+        }
+        if self.steady_state is not None:
+            summary = self.steady_state.to_json()
+            summary.pop("state_at_turn_on", None)
+            data["steady_state"] = summary
+        return data
+
+
+def _relative(engine: float, model: float) -> float:
+    return engine / model - 1.0 if model != 0.0 else 0.0
+
+
+def verify_operating_points(design, line_voltages, loads, temperatures=None, hfe=None):
+    """The cycle model's operating points checked by the periodic steady state.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    line_voltages : float or sequence of float
+        RMS line (AC input) or DC input voltages [V].
+    loads : Load, str or sequence of them
+        Loads (a :class:`rcc.design.Load` whose value may be an array is
+        expanded).
+    temperatures : float or sequence of float, optional
+        Temperatures [K]; default 25 degC clipped into the design's range.
+    hfe : float, optional
+        Switch current gain at 25 degC [1]; default ``switch.hfe_typ``.
+
+    Returns
+    -------
+    list of VerifiedPoint
+        One per (temperature, line, load) combination, in that nesting
+        order.
+
+    Notes
+    -----
+    Each point is solved independently (warm-up from power-on), so one
+    failure does not spoil the next; a point without a periodic steady state
+    (no oscillation, bursts) carries ``error`` instead of numbers.
+    """
+    from rcc.cycle import operating_points, reference_temperature
+
+    lines = np.atleast_1d(np.asarray(line_voltages, dtype=float))
+    if temperatures is None:
+        temperatures = [reference_temperature(design)]
+    temps = np.atleast_1d(np.asarray(temperatures, dtype=float))
+    if isinstance(loads, Load):
+        values = np.atleast_1d(np.asarray(loads.value, dtype=float))
+        load_list = [Load(loads.kind, float(v)) for v in values]
+    elif isinstance(loads, str):
+        load_list = [parse_load(design, loads)]
+    else:
+        load_list = [parse_load(design, item) for item in loads]
+    gain = design.switch.hfe_typ if hfe is None else float(hfe)
+    points = []
+    for temperature in temps:
+        for line in lines:
+            previous = None
+            for load in load_list:
+                model = operating_points(design, np.atleast_1d(line), load,
+                                         np.atleast_1d(temperature), np.atleast_1d(gain))
+                mf, mv, mi = (float(np.ravel(getattr(model, name))[0]) for name in
+                              ("frequency", "output_voltage", "peak_current"))
+                mode = str(np.ravel(model.mode)[0])
+                try:
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore", FallbackWarning)
+                        result = periodic_steady_state(design, float(line), load,
+                                                       float(temperature), gain)
+                    error = ""
+                except PeriodicSteadyStateError as failure:
+                    result, error = None, str(failure)
+                changed = (result is not None and previous is not None
+                           and result.event_sequence != previous)
+                if result is not None:
+                    previous = result.event_sequence
+                    diffs = (_relative(result.frequency, mf),
+                             _relative(result.output_voltage, mv),
+                             _relative(result.peak_current, mi))
+                else:
+                    diffs = (0.0, 0.0, 0.0)
+                points.append(VerifiedPoint(float(line), load, float(temperature), mf, mv, mi,
+                                            mode, result, error, *diffs, bool(changed)))
+    return points
+
+
+def benchmark_iterations(design=None) -> dict:
+    """Newton iterations of the periodic-steady-state solve, for the benchmark.
+
+    Parameters
+    ----------
+    design : Design or path, optional
+        Default: the worked case ``worked_cases/legacy_24v_substitute.toml``
+        at nominal line and full load.
+
+    Returns
+    -------
+    dict
+        ``iterations`` (Newton iterations after the warm-up) [1],
+        ``warmup_cycles`` [1], ``transient_cycles`` (extra cycles before
+        Newton converged) [1], ``method``, ``converged``, ``seconds`` (wall
+        time of the whole solve) [s].
+    """
+    import time
+    from pathlib import Path
+
+    from rcc.design import load_design
+
+    if design is None:
+        design = Path(__file__).resolve().parents[2] / "worked_cases" / \
+            "legacy_24v_substitute.toml"
+    if not hasattr(design, "switch"):
+        design = load_design(design)
+    start = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FallbackWarning)
+        result = periodic_steady_state(design, load=design.output.load_max)
+    seconds = time.perf_counter() - start
+    extra = 0
+    for flag in result.flags:
+        if flag.startswith("Newton converged after"):
+            extra = int(flag.split()[3])
+    return {"iterations": result.iterations, "warmup_cycles": WARMUP_CYCLES,
+            "transient_cycles": extra, "method": result.method,
+            "converged": result.converged, "seconds": seconds}
+
+
+def poincare_map(design, result: PeriodicSteadyState):
+    """The engine's turn-on return map at the operating point of ``result``.
+
+    Parameters
+    ----------
+    design : Design
+        The design ``result`` was computed for.
+    result : PeriodicSteadyState
+
+    Returns
+    -------
+    callable
+        ``x -> CycleData``: one cycle from a state at a turn-on near
+        ``result.state`` to the next turn-on (``.end_state`` is ``P(x)``).
+    """
+    from rcc.engine import build_circuit
+
+    circuit = build_circuit(design, result.bus_voltage, result.load, result.temperature,
+                            result.hfe)
+    return _CircuitCycleMap(circuit, result.turn_on_topology, max(0.02, 100.0 * result.period),
+                            state=result.state, scale=result.scale,
+                            reference_period=result.period)
