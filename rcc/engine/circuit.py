@@ -121,6 +121,13 @@ POWER_LOAD_SEGMENTS = 16
 #: a coupling of exactly 1 (no wound transformer comes closer)  # common practice
 MIN_LEAKAGE_FRACTION = 1e-4
 
+#: Guard crossing tolerances: well above the rounding noise of the nodal
+#: solution (conductances span about 13 decades), small enough that the
+#: switching instant moves by well under a picosecond at the slew rates of
+#: this circuit.
+VOLTAGE_TOLERANCE = 1e-6
+CURRENT_TOLERANCE = 1e-9
+
 #: Named signals every trace carries.
 SIGNAL_NAMES = (
     "collector_voltage",
@@ -165,6 +172,7 @@ class _Guard:
     target: int
     tolerance: float
     name: str
+    gated: bool = True   # fires below zero only while falling (Filippov-style admissibility)
 
 
 @dataclass(frozen=True)
@@ -206,6 +214,13 @@ class Topology:
         Device a guard belongs to and the state it switches to.
     guard_tolerances : ndarray, shape (g,)
         Crossing tolerance of every guard (its own unit).
+    guard_gated : ndarray of bool, shape (g,)
+        Guards that fire only while falling: a topology whose guard is below
+        zero but rising at the switching instant is kept (its vector field
+        points back into its region, the admissibility rule of Filippov
+        systems), which prevents ping-pong between two topologies at one
+        instant (a transistor at the edge of saturation, a junction at the
+        edge of conduction).  All guards of the flyback are gated.
     guard_names : tuple of str
     signal_matrix : ndarray, shape (s, n)
     signal_offset : ndarray, shape (s,)
@@ -228,6 +243,7 @@ class Topology:
     guard_devices: np.ndarray
     guard_targets: np.ndarray
     guard_tolerances: np.ndarray
+    guard_gated: np.ndarray
     guard_names: tuple
     signal_matrix: np.ndarray
     signal_offset: np.ndarray
@@ -472,8 +488,12 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     devs = []
     # ----- switch
     be_on = E("V", "q1_be", "b", "e", vbe, SWITCH_BASE_RESISTANCE)
-    v_tol, i_tol = 1e-9, 1e-12
-    q_tol = tau_f * 1e-9
+    v_tol, i_tol = VOLTAGE_TOLERANCE, CURRENT_TOLERANCE
+    # charge tolerance: the collector current it implies (q / tau_F) times the
+    # sense resistance stays far below the voltage tolerance, so leaving the
+    # active region cannot make the cut-off guard fire again (no ping-pong)
+    q_tol = tau_f * CURRENT_TOLERANCE * 1e-3
+    # (the bisection can overshoot it by i_B * MIN_STEP; the guard is gated)
     vbe_open = (("v", "b", 1.0), ("v", "e", -1.0))
     devs.append(_Device("switch", (
         DS("off", (), (
@@ -481,14 +501,14 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
             G((("c", "", sw.vebo),) + vbe_open, 3, v_tol, "switch base-emitter breakdown"),
         ), (("x", "q_base", -1.0 / tau_bf),)),
         DS("active", (be_on, E("Istate", "q1_collector", "c", "e", 1.0 / tau_f, state="q_base")), (
-            G((("x", "q_base", 1.0),), 0, q_tol, "switch stored charge gone"),
+            G((("x", "q_base", 1.0),), 0, q_tol, "switch stored charge gone", gated=True),
             G((("v", "c", 1.0), ("v", "e", -1.0), ("c", "", -sw.vce_sat)), 2, v_tol,
               "switch saturates"),
         ), (("i", "q1_be", 1.0), ("x", "q_base", -1.0 / tau_bf))),
         DS("saturated", (be_on, E("V", "q1_ce", "c", "e", sw.vce_sat,
                                   SWITCH_SATURATION_RESISTANCE)), (
             G((("x", "q_base", 1.0), ("i", "q1_ce", -tau_f)), 1, q_tol,
-              "switch excess charge gone (end of storage)"),
+              "switch excess charge gone (end of storage)", gated=True),
         ), (("i", "q1_be", 1.0), ("i", "q1_ce", -1.0 / gain), ("x", "q_base", -1.0 / tau_s),
             ("i", "q1_ce", tau_f / tau_s))),
         DS("breakdown", (E("V", "q1_eb", "e", "b", sw.vebo, BREAKDOWN_RESISTANCE),), (
@@ -637,10 +657,10 @@ def _diode(name, anode, cathode, drop, resistance, extra=()):
     on = _Element("V", name, anode, cathode, drop, resistance)
     return _Device(name, (
         _DeviceState("off", (), (
-            _Guard((("c", "", drop), ("v", anode, -1.0), ("v", cathode, 1.0)), 1, 1e-9,
-                   f"{name} starts conducting"),)),
+            _Guard((("c", "", drop), ("v", anode, -1.0), ("v", cathode, 1.0)), 1,
+                   VOLTAGE_TOLERANCE, f"{name} starts conducting"),)),
         _DeviceState("on", (on,) + tuple(extra), (
-            _Guard((("i", name, 1.0),), 0, 1e-12, f"{name} current ends"),)),
+            _Guard((("i", name, 1.0),), 0, CURRENT_TOLERANCE, f"{name} current ends"),)),
     ))
 
 
@@ -670,11 +690,11 @@ def _load_device(load: Load, expected: float) -> _Device:
             elements.append(_Element("I", f"load_i{k}", "o", "0", current))
         guards = []
         if k > 0:
-            guards.append(_Guard((("v", "o", 1.0), ("c", "", -breaks[k - 1])), k - 1, 1e-9,
-                                 "load region down"))
+            guards.append(_Guard((("v", "o", 1.0), ("c", "", -breaks[k - 1])), k - 1,
+                                 VOLTAGE_TOLERANCE, "load region down"))
         if k < len(regions) - 1:
-            guards.append(_Guard((("c", "", breaks[k]), ("v", "o", -1.0)), k + 1, 1e-9,
-                                 "load region up"))
+            guards.append(_Guard((("c", "", breaks[k]), ("v", "o", -1.0)), k + 1,
+                                 VOLTAGE_TOLERANCE, "load region up"))
         states.append(_DeviceState(f"region{k}", tuple(elements), tuple(guards)))
     return _Device("load", tuple(states))
 
@@ -809,6 +829,7 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
         guard_devices=np.array([di for di, _ in guards], dtype=np.int64),
         guard_targets=np.array([g.target for _, g in guards], dtype=np.int64),
         guard_tolerances=np.array([g.tolerance for _, g in guards]),
+        guard_gated=np.array([g.gated for _, g in guards], dtype=bool),
         guard_names=tuple(g.name for _, g in guards),
         signal_matrix=sm, signal_offset=so, power_forms=power_forms,
     )

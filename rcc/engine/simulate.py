@@ -259,12 +259,17 @@ class CycleResult:
 
 # ---------------------------------------------------------------- kernel
 @njit(cache=True)
-def _guards_violated(gc, gd, gt, ng, x, n):
+def _guards_violated(gc, gd, gt, ng, x0, x, n):
+    """A guard crossed below minus its tolerance between x0 and x (having
+    started above it)."""
     for g in range(ng):
+        tol = abs(gt[g])
         value = gd[g]
+        start = gd[g]
         for j in range(n):
             value += gc[g, j] * x[j]
-        if value < -gt[g]:
+            start += gc[g, j] * x0[j]
+        if value < -tol and start >= -tol:
             return True
     return False
 
@@ -323,7 +328,8 @@ def _kernel(x, t, slot, t_end, max_step,
                 for j in range(n):
                     value += gc[slot, g, j] * x[j]
                     slope += gc[slot, g, j] * f0[j]
-                if value < -gt[slot, g] or (value <= gt[slot, g] and slope < 0.0):
+                tol = abs(gt[slot, g])
+                if (value <= tol and slope < 0.0) or (value < -tol and gt[slot, g] > 0.0):
                     fired = g
                     break
             if fired < 0:
@@ -389,7 +395,7 @@ def _kernel(x, t, slot, t_end, max_step,
         refinements = 0
         while True:
             _propagate(ladder[slot, level], x, x1, n)
-            if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], x1, n):
+            if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], x, x1, n):
                 break
             # Hermite test for a guard dipping below zero inside the step
             dip = False
@@ -415,14 +421,14 @@ def _kernel(x, t, slot, t_end, max_step,
                             h01 = -2 * u ** 3 + 3 * u ** 2
                             h11 = u ** 3 - u ** 2
                             value = h00 * v0 + h10 * h * s0 + h01 * v1 + h11 * h * s1
-                            if value < -gt[slot, g]:
+                            if value < -abs(gt[slot, g]):
                                 dip = True
                 if dip:
                     level += 1
                     refinements += 1
                     continue
             break
-        if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], x1, n):
+        if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], x, x1, n):
             # bisection on the exact solution: bracket [lo, x1]
             for j in range(n):
                 lo[j] = x[j]
@@ -430,7 +436,7 @@ def _kernel(x, t, slot, t_end, max_step,
             t_hi = t + steps[slot, level]
             for m in range(level + 1, nlevels[slot]):
                 _propagate(ladder[slot, m], lo, xm, n)
-                if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], xm, n):
+                if _guards_violated(gc[slot], gd[slot], gt[slot], ng[slot], x, xm, n):
                     for j in range(n):
                         x1[j] = xm[j]
                     t_hi = t_lo + steps[slot, m]
@@ -509,7 +515,8 @@ class _Store:
         self.A[slot], self.b[slot] = topology.A, topology.b
         self.gc[slot, :ng] = topology.guard_gradients
         self.gd[slot, :ng] = topology.guard_offsets
-        self.gt[slot, :ng] = topology.guard_tolerances
+        self.gt[slot, :ng] = np.where(topology.guard_gated, -1.0, 1.0) * \
+            topology.guard_tolerances
         self.gdev[slot, :ng] = topology.guard_devices
         self.gtarget[slot, :ng] = topology.guard_targets
         self.ng[slot] = ng
@@ -682,9 +689,11 @@ def settle_topology(circuit: Circuit, x, code: int = 0, slopes: bool = True) -> 
         field = topology.vector_field(x)
         rates = topology.guard_gradients @ field
         tol = topology.guard_tolerances
-        bad = values < -tol
+        bad = (values < -tol) & ~topology.guard_gated
         if slopes:
             bad |= (values <= tol) & (rates < 0)
+        else:
+            bad |= (values < -tol) & topology.guard_gated
         if not bad.any():
             return code
         g = int(np.argmax(bad))
@@ -792,9 +801,16 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
                 "the circuit chatters between topologies (undamped ringing or a "
                 "marginal device): add damping or check the design")
         if status == _CHAIN:
+            raise _with_state(EngineError(
+                f"no consistent topology at t = {t:.9g} s after {MAX_CHAIN} switches at "
+                f"one instant ({_describe_switches(circuit, ev_from[:ev_n][-4:], ev_to[:ev_n][-4:])}; "
+                f"last: {circuit.label(int(store.code_of_slot[slot]))})"), x, t,
+                int(store.code_of_slot[slot]))
+        if False:
             raise EngineError(
                 f"no consistent topology at t = {t:.9g} s after {MAX_CHAIN} switches at "
-                f"one instant (last: {circuit.label(int(store.code_of_slot[slot]))})")
+                f"one instant ({_describe_switches(circuit, ev_from[:ev_n][-4:], ev_to[:ev_n][-4:])}; "
+                f"last: {circuit.label(int(store.code_of_slot[slot]))})")
         if status == _EVENTS:
             raise EngineError(
                 f"more than {max_events} switching events before t = {t:.9g} s; "
@@ -836,6 +852,26 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
         state_names=circuit.state_names, device_names=circuit.device_names,
         topology_weights=circuit.weights, topology_radices=circuit.radices,
     )
+
+
+def _with_state(error: EngineError, x, t, code) -> EngineError:
+    """Attach the state, time and topology where the engine stopped."""
+    error.state = np.array(x, dtype=float)
+    error.time = float(t)
+    error.topology = int(code)
+    return error
+
+
+def _describe_switches(circuit: Circuit, before, after) -> str:
+    """'device: a -> b' for a list of switching events."""
+    parts = []
+    for code_from, code_to in zip(before, after):
+        old, new = circuit.decode(int(code_from)), circuit.decode(int(code_to))
+        for d, (a, b) in enumerate(zip(old, new)):
+            if a != b:
+                names = circuit.device_state_names[d]
+                parts.append(f"{circuit.device_names[d]}: {names[a]} -> {names[b]}")
+    return ", ".join(parts) if parts else "no switch recorded"
 
 
 def _signals(circuit: Circuit, states: np.ndarray, codes: np.ndarray) -> dict:
@@ -1134,7 +1170,7 @@ def _one_switch(circuit: Circuit, code: int, x) -> int:
     values = topology.guard_gradients @ x + topology.guard_offsets
     rates = topology.guard_gradients @ topology.vector_field(x)
     tol = topology.guard_tolerances
-    bad = (values < -tol) | ((values <= tol) & (rates < 0))
+    bad = ((values < -tol) & ~topology.guard_gated) | ((values <= tol) & (rates < 0))
     g = int(np.argmax(bad))
     states = list(circuit.decode(code))
     states[int(topology.guard_devices[g])] = int(topology.guard_targets[g])
