@@ -1,0 +1,239 @@
+"""Periodic steady state of the worked cases through the time-domain engine.
+
+Checks (issue 4, section 4):
+
+- the Newton fixed point equals the state a long brute-force transient of
+  the same engine settles to (shooting vs transient, Aprille & Trick, Proc.
+  IEEE 1972: both find the same periodic solution);
+- the largest Floquet multiplier equals the measured per-cycle decay of a
+  perturbation (definition of the multiplier as the eigenvalue of the
+  return-map Jacobian, Parker & Chua 1989, sec. 3.3);
+- the saltation-based Jacobian (di Bernardo et al. 2008, eq. 2.49) equals
+  central finite differences of the engine's return map;
+- the cycle model (``rcc.cycle``) agrees with the periodic steady state on
+  frequency (5 %), output voltage (2 %) and peak current (5 %) over 10 % and
+  100 % load at minimum, nominal and maximum line; where not, the case is an
+  explicit xfail with the measured gap and its reason
+  (notes/periodic_steady_state.md);
+- the command through typer's CliRunner.
+
+The worked cases are invented demo designs.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+import rcc
+from rcc.cli import app
+from rcc.design import Load
+from rcc.engine.floquet import finite_difference_jacobian
+from rcc.engine.pss import (FallbackWarning, periodic_steady_state, poincare_map,
+                            verify_operating_points)
+
+CASES = Path(__file__).resolve().parents[1] / "worked_cases"
+LEGACY = CASES / "legacy_24v_substitute.toml"
+
+
+@pytest.fixture(scope="module")
+def legacy():
+    design = rcc.load_design(LEGACY)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FallbackWarning)
+        result = periodic_steady_state(design, 230.0, "12 W")
+    return design, result
+
+
+def _scaled_difference(a, b, scale):
+    return float(np.max(np.abs((np.asarray(a) - np.asarray(b)) / scale)))
+
+
+def test_newton_converges_and_figures_are_consistent(legacy):
+    """Newton converges; period = on + off; the JSON has no NaN."""
+    _, result = legacy
+    assert result.converged and result.method == "newton"
+    assert result.residual < 1e-8
+    assert result.period == pytest.approx(result.on_time + result.off_time, rel=1e-12)
+    assert result.frequency == pytest.approx(1.0 / result.period, rel=1e-12)
+    assert 0.0 < result.on_time < result.period
+    text = json.dumps(result.to_json(), allow_nan=False)
+    assert "frequency_hz" in text
+    assert result.event_sequence[-1] == "switch:active"
+
+
+def test_fixed_point_matches_long_transient(legacy):
+    """The engine run for 4000 more cycles from the warm-up start settles to
+    the Newton fixed point (1e-6 of each state's scale)."""
+    from rcc.engine import build_circuit, simulate
+
+    design, result = legacy
+    circuit = build_circuit(design, result.bus_voltage, result.load, result.temperature,
+                            result.hfe)
+    start = np.zeros(circuit.n_states)
+    names = circuit.state_names
+    start[names.index("v_output_capacitor")] = result.output_voltage
+    run = simulate(circuit, start, 0.5, record=False, stop_on_turn_on=5000)
+    assert run.stopped
+    assert _scaled_difference(run.final_state, result.state, result.scale) < 1e-6
+
+
+def _turn_on_states(design, result, state, cycles):
+    """States at consecutive turn-ons from ``state`` (brute-force map
+    iteration through the engine)."""
+    step = poincare_map(design, result)
+    states = []
+    for _ in range(cycles):
+        state = step(state).end_state
+        states.append(state)
+    return np.array(states)
+
+
+def test_largest_multiplier_matches_perturbation_decay(legacy):
+    """Perturb along the dominant eigenvector; the deviation shrinks by the
+    largest multiplier per cycle (within 1 %)."""
+    design, result = legacy
+    values, vectors = np.linalg.eig(result.jacobian)
+    dominant = int(np.argmax(np.abs(values)))
+    assert abs(values[dominant]) == pytest.approx(abs(result.multipliers[0]), rel=1e-9)
+    direction = np.real(vectors[:, dominant])
+    direction = direction / np.max(np.abs(direction / result.scale))
+    start = result.state + 1e-3 * direction
+    states = _turn_on_states(design, result, start, 40)
+    deviation = np.max(np.abs((states - result.state) / result.scale), axis=1)
+    ratio = (deviation[-1] / deviation[9]) ** (1.0 / 30.0)
+    assert ratio == pytest.approx(abs(result.multipliers[0]), rel=1e-2)
+
+
+def test_saltation_jacobian_matches_finite_differences(legacy):
+    """Saltation Jacobian vs central differences of the engine's return map
+    at the fixed point (scaled entries within 2e-3 + 0.5 %).  The stored-charge
+    column is left out: the map clamps that charge at zero, so a step across
+    zero is one-sided (notes/periodic_steady_state.md)."""
+    design, result = legacy
+    step = poincare_map(design, result)
+    numeric = finite_difference_jacobian(lambda x: step(x).end_state, result.state,
+                                         1e-6 * result.scale)
+    keep = [k for k, name in enumerate(result.state_names) if name != "q_base"]
+    scale = result.scale
+    analytic = result.jacobian * scale[None, :] / scale[:, None]
+    numeric = numeric * scale[None, :] / scale[:, None]
+    np.testing.assert_allclose(analytic[:, keep], numeric[:, keep], rtol=5e-3, atol=2e-3)
+
+
+def test_multipliers_stable_and_sorted(legacy):
+    """A regulated supply at full load: a stable cycle, multipliers by
+    decreasing modulus, the trivial one removed (n - 1 of them)."""
+    _, result = legacy
+    moduli = [abs(m) for m in result.multipliers]
+    assert moduli == sorted(moduli, reverse=True)
+    assert len(moduli) == len(result.state_names) - 1
+    assert result.stable and moduli[0] < 1.0
+
+
+# ------------------------------------------------- cycle model vs engine
+# Measured gaps (engine / model - 1) on this machine, and why: each entry is
+# a documented limitation (notes/periodic_steady_state.md), not a silent one.
+_PEAK_REASON = ("the engine's peak current is 12-17 % above the cycle model's and its "
+                "frequency 12-24 % below: the engine's limiter path (sense voltage in "
+                "the base loop, limiter saturation, bias-dependent storage) ends the "
+                "on-time later than the model's trip-plus-storage-time estimate")
+_BURST_REASON = ("light load: the cycle model reports burst operation (an average "
+                 "frequency) or the engine bursts; there is no period-1 orbit to compare")
+XFAIL = {
+    ("legacy_24v_substitute", 0, 0.1): _BURST_REASON,
+    ("legacy_24v_substitute", 0, 1.0): _PEAK_REASON,
+    ("legacy_24v_substitute", 1, 0.1): _BURST_REASON,
+    ("legacy_24v_substitute", 1, 1.0): _PEAK_REASON,
+    ("legacy_24v_substitute", 2, 0.1): _BURST_REASON,
+    ("legacy_24v_substitute", 2, 1.0): ("high line, full load: the engine's orbit is not "
+                                        "reached (transient fall-back, not converged)"),
+    ("standby_12v_universal", 0, 0.1): ("light load at low line: the engine does not settle "
+                                        "(transient fall-back); model 440 kHz vs 143 kHz"),
+    ("standby_12v_universal", 0, 1.0): _PEAK_REASON,
+}
+COMPARISON = [(case, line, load) for case in ("legacy_24v_substitute", "standby_12v_universal",
+                                               "aux_5v_48v_dc")
+              for line in (0, 1, 2) for load in (0.1, 1.0)]
+
+
+def _params():
+    out = []
+    for case, line, load in COMPARISON:
+        reason = XFAIL.get((case, line, load))
+        marks = [pytest.mark.xfail(reason=reason, strict=False)] if reason else []
+        out.append(pytest.param(case, line, load, marks=marks,
+                                id=f"{case}-line{line}-load{int(load * 100)}"))
+    return out
+
+
+@pytest.mark.parametrize("case, line_index, fraction", _params())
+def test_cycle_model_agrees_with_periodic_steady_state(case, line_index, fraction):
+    """Frequency 5 %, output voltage 2 %, peak current 5 % (issue 4, sec. 4)."""
+    design = rcc.load_design(CASES / f"{case}.toml")
+    top = design.output.load_max
+    load = Load(top.kind, top.value * fraction if top.kind != "resistance"
+                else top.value / fraction)
+    line = design.input.line_voltages[line_index]
+    (point,) = verify_operating_points(design, [line], [load])
+    assert point.steady_state is not None, point.error
+    assert point.steady_state.converged, point.steady_state.flags
+    assert abs(point.frequency_difference) < 0.05
+    assert abs(point.output_voltage_difference) < 0.02
+    assert abs(point.peak_current_difference) < 0.05
+
+
+# ----------------------------------------------------------------- command
+runner = CliRunner()
+
+
+def test_cli_json(tmp_path):
+    """`rcc cycle --json` prints the documented keys, finite numbers."""
+    out = runner.invoke(app, ["cycle", str(LEGACY), "--line", "230 V", "--load", "12W",
+                              "--json"])
+    assert out.exit_code == 0, out.output
+    data = json.loads(out.output)
+    for key in ("frequency_hz", "period_s", "on_time_s", "off_time_s", "peak_current_a",
+                "output_v", "output_ripple_v", "switch_peak_v", "multipliers", "stable"):
+        assert key in data
+    assert all(math.isfinite(data[key]) for key in ("frequency_hz", "output_v"))
+    assert all(len(pair) == 2 for pair in data["multipliers"])
+    assert data["stable"] is True
+
+
+def test_cli_plot_and_overwrite(tmp_path):
+    """--plot writes a PNG; an existing file needs --force (exit 2)."""
+    target = tmp_path / "cycle.png"
+    out = runner.invoke(app, ["cycle", str(LEGACY), "--load", "12 W", "--plot", str(target)])
+    assert out.exit_code == 0, out.output
+    assert target.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    again = runner.invoke(app, ["cycle", str(LEGACY), "--load", "12 W", "--plot", str(target)])
+    assert again.exit_code == 2
+    assert "--force" in again.output
+
+
+@pytest.mark.parametrize("option, value, message", [
+    ("--line", "abc", "--line 'abc'"),
+    ("--line", "-5 V", "expected a positive voltage"),
+    ("--line", "3 A", "--line '3 A'"),
+    ("--load", "12", "with its unit"),
+    ("--load", "5 s", "--load '5 s'"),
+    ("--load", "-1 A", "non-negative"),
+])
+def test_cli_bad_options_exit_2(option, value, message):
+    """Bad options: exit code 2 and a line naming the option and value."""
+    out = runner.invoke(app, ["cycle", str(LEGACY), option, value])
+    assert out.exit_code == 2
+    assert message in out.output
+
+
+def test_cli_missing_design_exit_2(tmp_path):
+    out = runner.invoke(app, ["cycle", str(tmp_path / "nope.toml")])
+    assert out.exit_code == 2
+    assert "does not exist" in out.output
