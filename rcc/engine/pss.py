@@ -245,7 +245,7 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
     transient_chunk : int, default 100
         Cycles per fall-back chunk [1].
     retry_newton : bool, default True
-        With ``transient``: try Newton again after chunks 1, 2, 4, 8, ...,
+        With ``transient``: try Newton again after chunks 1, 4, 16, ...,
         from the state the transient reached.
 
     Returns
@@ -266,7 +266,7 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
     turn-on) is halved up to four times.  When Newton does not converge, the
     map is iterated from the starting guess (a long transient), which
     converges whenever the orbit is stable; a warning says so.  With a fast
-    ``transient``, Newton is tried again after chunks 1, 2, 4, ... (the switching
+    ``transient``, Newton is tried again after chunks 1, 4, 16, ... (the switching
     map is only piecewise smooth: Newton converges once the event sequence
     of the iterate is that of the orbit).
     """
@@ -348,7 +348,8 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
                 history.append(residual)
                 break
             chunks += 1
-            if transient is not None and retry_newton and chunks & (chunks - 1) == 0:
+            if transient is not None and retry_newton and chunks & (chunks - 1) == 0 \
+                    and chunks.bit_length() % 2 == 1:  # chunks 1, 4, 16, 64, ...
                 # closer now: Newton again, from the transient's state
                 ok, x_n, cycle_n, it_n, hist_n = newton(x, cycle, max_iterations)
                 if ok:
@@ -929,9 +930,14 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
     event (Aprille & Trick 1972) then converges quadratically; see
     :func:`find_periodic_orbit`.  The bus is held constant (DC), so for AC
     input the line ripple is not in the cycle.
-    """
-    from scipy.constants import zero_Celsius  # noqa: F401  (units context)
 
+    The engine's cycle data is adapted before the saltation product:
+    switches chained at one instant are merged into one jump timed by the
+    first guard, a state on the turn-on surface is carried 1 ns along the
+    on-topology's flow before the engine restarts from it, and a re-trigger
+    (a turn-on within 10 % of the previous period) is joined to the cycle;
+    see ``notes/periodic_steady_state.md``.
+    """
     from rcc.cycle import bus_voltage as model_bus_voltage, reference_temperature
     from rcc.engine import (EngineError, advance_cycle, build_circuit, power_on_state,
                             simulate)
