@@ -230,7 +230,9 @@ def _switch_and_core(design, high_line, findings) -> Stress:
                                         coldest, design.limiter.sense_resistance))
     overshoot = float(stress.storage_overshoot(bus_max, sw.storage_time,
                                                tr.magnetizing_inductance + tr.leakage_inductance))
-    worst_current = limit_current + overshoot
+    # the datasheet storage time at the coldest limit, or the charge-control
+    # storage of an overdriven switch found by the cycle model, whichever is worse
+    worst_current = max(limit_current + overshoot, _max(high_line, "peak_current"))
     clamp = design.clamp
     if clamp.type == "zener":
         above_bus = clamp.voltage

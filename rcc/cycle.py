@@ -37,7 +37,8 @@ from dataclasses import dataclass, fields
 import numpy as np
 
 from rcc.design import Design, Load
-from rcc.devices import REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain
+from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain,
+                          storage_time_rising_current)
 from rcc.limiter import (auxiliary_voltage, regulation_current, trip_current)
 from rcc.mains import bulk_valley, rectified_peak
 from rcc.flyback import reflected_voltage
@@ -66,7 +67,7 @@ ON_END = ("drive", "limit", "regulation")
 OFF_END = ("demagnetization", "drive-timing")
 
 _BISECTION_STEPS = 26
-_NEWTON_STEPS = 8
+_NEWTON_STEPS = 12
 _SCAN_POINTS = 12
 _SETTLE_STEPS = 2
 
@@ -387,6 +388,9 @@ class _Cycle:
         self.winding_on = self.nb * (bus - sw.vce_sat) * self.lm / self.lt
         self.v_on = self.winding_on - self.vbe
         self.tau = dr.resistance * dr.capacitance
+        # storage-time constant from the datasheet storage time, measured with
+        # I_B1 = I_B2 and hard overdrive: t_s = tau_S ln 2 (charge control)
+        self.storage_constant = sw.storage_time / np.log(2.0)
         # base threshold: the drive-capacitor voltage at which the base reaches Vbe
         rb = dr.resistance
         if rbe is None:
@@ -415,7 +419,19 @@ class _Cycle:
         i_drive = i0 + self.slope * t_drive
         drive_ends = i_drive < np.maximum(itrip, i0) * (1.0 - 1e-12)
         i_decision = np.where(drive_ends, i_drive, np.maximum(itrip, i0))
-        overshoot = np.where(drive_ends, 0.0, self.slope * sw.storage_time)
+        # storage time by charge control: the base current at the decision
+        # (I_B1) sets the excess charge; the limiter diverts the drive, so only
+        # the base-emitter resistor pulls charge out (I_B2)
+        # the collector current keeps rising during storage, so storage ends
+        # when the decaying excess charge meets the rising charge needed:
+        # hFE ((I_B1 + I_B2) e^(-t/tau_S) - I_B2) = I_dec + s t.  The limiter
+        # saturates across the base while the emitter sits at I Rs, so it pulls
+        # the base negative with a current of the order of the drive: I_B2 = I_B1
+        t_decision = (i_decision - i0) / self.slope
+        base_decision = np.maximum(amplitude * np.exp(-t_decision / tau) + offset, 0.0)
+        storage = storage_time_rising_current(self.storage_constant, base_decision,
+                                              base_decision, i_decision, self.slope, self.hfe)
+        overshoot = np.where(drive_ends, 0.0, self.slope * storage)
         peak = i_decision + overshoot
         t_on = (peak - i0) / self.slope
         on_end = np.where(drive_ends, 0, np.where(ireg > 0.0, 2, 1))
@@ -550,7 +566,16 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
     drive capacitor charges (``I_B = (V_on - v_C0)/R_b e^(-t/(R_b C_b)) +
     I_start - Vbe/R_be``; blocking-oscillator timing [3]_), or (b) the trip
     current of the limiter with the regulation current (``notes/circuit.md``).
-    A limiter-ended on-time continues for the storage time [4]_.
+    A limiter-ended on-time continues for the storage time of the charge-control
+    model [4]_: the excess charge ``tau_S ((I_B1 + I_B2) e^(-t/tau_S) - I_B2)``
+    decays until it equals the charge ``tau_S I_C(t) / hFE`` the still-rising
+    collector current needs (with constant ``I_C`` this is the classic
+    ``tau_S ln((I_B1 + I_B2)/(I_C/hFE + I_B2))``).  ``tau_S = storage_time /
+    ln 2`` (the datasheet storage time taken at ``I_B1 = I_B2`` and hard
+    overdrive), ``I_B1`` the base current at the decision and ``I_B2 = I_B1``
+    (the saturated limiter pulls the base below the emitter, which sits at
+    the sense voltage): the storage time approaches the datasheet value under
+    hard overdrive and shortens where the drive barely holds the current.
 
     Off-time: demagnetization ``Lm Ipk / V_R`` [1]_, then the ring of ``Lm``
     with the node capacitance turns the switch on as soon as the feedback
@@ -568,8 +593,7 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
     on (mode ``burst``); the reported frequency is the average.
 
     Simplifications: the leakage ring on the feedback winding and the sense
-    voltage in the base loop are neglected; storage time is the datasheet
-    value (not bias dependent); the output is taken ripple-free.  The
+    voltage in the base loop are neglected; the output is taken ripple-free.  The
     periodic-steady-state engine (``rcc cycle``) checks these.
     """
     if temperature is None:

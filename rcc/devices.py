@@ -16,6 +16,7 @@ __all__ = [
     "current_gain",
     "zener_voltage",
     "storage_time_charge_control",
+    "storage_time_rising_current",
     "thermal_voltage",
 ]
 
@@ -146,6 +147,58 @@ def storage_time_charge_control(storage_time_constant, base_current_on,
     edge = np.asarray(collector_current, dtype=float) / np.asarray(current_gain, dtype=float)
     ratio = (ib1 + ib2) / np.maximum(edge + ib2, 1e-300)
     return np.asarray(storage_time_constant, dtype=float) * np.log(np.maximum(ratio, 1.0))
+
+
+def storage_time_rising_current(storage_time_constant, base_current_on, base_current_off,
+                                collector_current, collector_slope, current_gain,
+                                iterations=12):
+    """Storage time of a saturated switch whose collector current keeps rising.
+
+    Parameters
+    ----------
+    storage_time_constant : float or array_like
+        Storage time constant tau_S [s].
+    base_current_on : float or array_like
+        Forward base current before the turn-off decision, I_B1 [A].
+    base_current_off : float or array_like
+        Reverse base current during turn-off, I_B2 [A] (positive number).
+    collector_current : float or array_like
+        Collector current at the turn-off decision [A].
+    collector_slope : float or array_like
+        Rate of rise of the collector current during storage [A/s].
+    current_gain : float or array_like
+        Forward current gain [1].
+    iterations : int
+        Newton steps [1].
+
+    Returns
+    -------
+    ndarray
+        Storage time [s]; zero when not saturated at the decision.
+
+    Notes
+    -----
+    Charge control (Moll 1954; Sparkes 1960): with the base driven by
+    ``-I_B2`` the stored charge decays as ``q = tau_S ((I_B1 + I_B2)
+    e^(-t/tau_S) - I_B2)``; storage ends when it equals the charge
+    ``tau_S I_C(t) / beta`` that the collector current ``I_C(t) = I_C0 + s t``
+    needs.  For ``s = 0`` this is :func:`storage_time_charge_control`.  The
+    root is unique (a falling exponential meets a rising line); Newton from
+    ``t = 0`` approaches it from below because the difference is concave.
+    """
+    tau = np.asarray(storage_time_constant, dtype=float)
+    drive = np.asarray(current_gain, dtype=float) * (
+        np.asarray(base_current_on, dtype=float) + np.asarray(base_current_off, dtype=float))
+    hold = np.asarray(current_gain, dtype=float) * np.asarray(base_current_off, dtype=float)
+    start = np.asarray(collector_current, dtype=float)
+    slope = np.asarray(collector_slope, dtype=float)
+    t = np.zeros(np.broadcast(tau, drive, hold, start, slope).shape)
+    for _ in range(iterations):
+        decay = np.exp(-t / tau)
+        residual = start + slope * t - (drive * decay - hold)
+        derivative = slope + drive * decay / tau
+        t = np.maximum(t - residual / derivative, 0.0)
+    return np.where(drive - hold > start, t, 0.0)
 
 
 def thermal_voltage(temperature):

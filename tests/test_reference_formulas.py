@@ -38,6 +38,9 @@ from scipy.constants import Boltzmann, elementary_charge, zero_Celsius
 from scipy.integrate import quad, solve_ivp
 from scipy.optimize import brentq
 
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
 from rcc import devices, mains
 
 T25 = zero_Celsius + 25.0
@@ -657,11 +660,16 @@ def test_cycle_current_limit_with_temperature_drift(name):
     overshoot = stress.storage_overshoot(points.bus_voltage - design.switch.vce_sat,
                                          design.switch.storage_time,
                                          tr.magnetizing_inductance + tr.leakage_inductance)
-    np.testing.assert_allclose(points.peak_current[limited], (limit + overshoot)[limited],
-                               rtol=1e-9)
-    # hot limit lower than cold limit: the -2 mV/K drift reaches the peak
-    hot = points.peak_current[..., 1] - overshoot[..., 1]
-    cold = points.peak_current[..., 0] - overshoot[..., 0]
+    np.testing.assert_allclose(points.trip_current[limited], limit[limited], rtol=1e-9)
+    # charge-control storage with I_B2 = I_B1 never exceeds the datasheet
+    # storage time tau_S ln 2 (Moll 1954), so the peak lies between the
+    # limit and the limit plus the datasheet overshoot
+    assert np.all(points.peak_current[limited] >= limit[limited] * (1 - 1e-12))
+    assert np.all(points.peak_current[limited]
+                  <= (limit + overshoot)[limited] * (1 + 1e-9))
+    # hot limit lower than cold limit: the -2 mV/K drift reaches the trip
+    hot = points.trip_current[..., 1]
+    cold = points.trip_current[..., 0]
     both = limited[..., 0] & limited[..., 1]
     if design.environment.temperature_max > design.environment.temperature_min:
         assert np.any(both)
@@ -685,3 +693,38 @@ def test_cycle_overload_output_falls():
             assert np.all(points.output_voltage[overloaded] < regulated.min())
             seen += 1
     assert seen >= 1
+
+
+# ---------------------------------------------- storage with rising current
+@settings(max_examples=60, derandomize=True, deadline=None)
+@given(tau=st.floats(1e-7, 5e-6), ib1=st.floats(1e-3, 0.5), ib2=st.floats(0.0, 0.5),
+       beta=st.floats(5.0, 200.0), fraction=st.floats(0.01, 0.9), slope=st.floats(0.0, 1e6))
+def test_storage_time_rising_current_against_charge_control_ode(tau, ib1, ib2, beta,
+                                                                 fraction, slope):
+    # charge control (Moll 1954; Sparkes 1960): dq/dt = -I_B2 - q/tau_S from
+    # q(0) = tau_S I_B1; storage ends when q = tau_S I_C(t)/beta with
+    # I_C(t) = I_C0 + s t.  Integrated with scipy's solve_ivp and an event.
+    from scipy.integrate import solve_ivp
+
+    ic0 = fraction * beta * ib1
+
+    def edge(t, q):
+        return q[0] - tau * (ic0 + slope * t) / beta
+
+    edge.terminal = True
+    solution = solve_ivp(lambda t, q: [-ib2 - q[0] / tau], (0.0, 50 * tau), [tau * ib1],
+                         events=edge, rtol=1e-11, atol=1e-18, method="DOP853")
+    expected = solution.t_events[0][0]
+    got = float(devices.storage_time_rising_current(tau, ib1, ib2, ic0, slope, beta))
+    assert got == pytest.approx(expected, rel=1e-6, abs=1e-15)
+
+
+def test_storage_time_rising_current_reduces_to_constant_current():
+    # s = 0: the classic tau_S ln((I_B1 + I_B2)/(I_C/beta + I_B2)) (Moll 1954)
+    args = (1e-6, 0.05, 0.03, 0.4, 20.0)
+    constant = devices.storage_time_charge_control(*args)
+    rising = devices.storage_time_rising_current(1e-6, 0.05, 0.03, 0.4, 0.0, 20.0)
+    assert float(rising) == pytest.approx(float(constant), rel=1e-12)
+    # datasheet condition I_B1 = I_B2, hard overdrive: t_s -> tau_S ln 2
+    hard = devices.storage_time_rising_current(1e-6, 1.0, 1.0, 1e-9, 0.0, 100.0)
+    assert float(hard) == pytest.approx(1e-6 * np.log(2.0), rel=1e-6)
