@@ -11,7 +11,8 @@ import numpy as np
 
 from rcc.units import format_si
 
-__all__ = ["format_table", "format_check_report", "format_points_table"]
+__all__ = ["format_table", "format_check_report", "format_points_table",
+           "format_verification"]
 
 
 def format_table(headers, rows) -> str:
@@ -116,9 +117,35 @@ def format_check_report(data: dict) -> str:
             out.append(_wrap("What to change: " + f["advice"]))
         out.append("")
     if data.get("verification"):
-        out += ["Verification against the periodic-steady-state engine", ""]
-        out.append(format_table(list(data["verification"][0].keys()),
-                                [[f"{v:.4g}" if isinstance(v, float) else str(v)
-                                  for v in row.values()] for row in data["verification"]]))
-        out.append("")
+        out += [format_verification(data["verification"]), ""]
     return "\n".join(out).rstrip() + "\n"
+
+
+def format_verification(rows) -> str:
+    """Cycle model against the periodic-steady-state engine, as a table.
+
+    Parameters
+    ----------
+    rows : list of dict
+        :func:`rcc.verification.verification_rows` (SI units) [-].
+
+    Returns
+    -------
+    str
+        Heading and table; differences as engine/model - 1 in percent.
+    """
+    def percent(value):
+        return "n/a" if value is None else f"{100 * value:+.1f}%"
+
+    def si(value, unit):
+        return "n/a" if value is None else format_si(value, unit, 4)
+
+    table = format_table(
+        ["line", "load", "model f", "engine f", "diff", "model Vout", "engine Vout", "diff",
+         "model Ipk", "engine Ipk", "diff", "note"],
+        [[si(r["line_v"], "V"), r["load"], si(r["model_frequency_hz"], "Hz"),
+          si(r["engine_frequency_hz"], "Hz"), percent(r["frequency_diff"]),
+          si(r["model_output_v"], "V"), si(r["engine_output_v"], "V"),
+          percent(r["output_diff"]), si(r["model_peak_a"], "A"), si(r["engine_peak_a"], "A"),
+          percent(r["peak_diff"]), r["error"][:60]] for r in rows])
+    return "Verification: cycle model against the periodic-steady-state engine\n\n" + table

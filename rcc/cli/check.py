@@ -14,6 +14,9 @@ from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, load_or_exit
 def check(
     design_file: Path = typer.Argument(..., help="TOML design file."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
+    verify: bool = typer.Option(False, "--verify", help="Also solve every reported point "
+                                "with the periodic-steady-state engine and show the "
+                                "differences (slow: seconds per point)."),
 ) -> None:
     """Operating points at min/nominal/max line and load, stresses and findings.
 
@@ -25,6 +28,13 @@ def check(
     design = load_or_exit(design_file)
     report = full_check(design)
     data = report.to_json()
+    if verify:
+        from rcc.verification import verification_rows
+
+        output = design.output
+        data["verification"] = verification_rows(
+            design, design.input.line_voltages,
+            [output.load_min, output.load_nominal, output.load_max])
     if json_output:
         typer.echo(json.dumps(data, indent=2))
     else:

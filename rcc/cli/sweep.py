@@ -26,6 +26,9 @@ def sweep(
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write a figure (PNG)."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     force: bool = typer.Option(False, "--force", help="Overwrite existing output files."),
+    verify: bool = typer.Option(False, "--verify", help="Also solve every point with the "
+                                "periodic-steady-state engine and show the differences "
+                                "(slow: seconds per point)."),
 ) -> None:
     """Frequency, output voltage and peak current against load, per line voltage."""
     import numpy as np
@@ -53,11 +56,22 @@ def sweep(
     if np.any(lines <= 0):
         raise fail_input(f"--line {line!r}: expected positive voltages")
     result = run(design, lines, loads, temperatures)
+    data = result.to_json()
+    if verify:
+        from rcc.verification import _scalar_loads, verification_rows
+
+        data["verification"] = verification_rows(design, lines, _scalar_loads(loads),
+                                                 temperatures)
     if json_output:
-        typer.echo(json.dumps(result.to_json(), indent=2))
+        typer.echo(json.dumps(data, indent=2))
     else:
+        from rcc.report import format_verification
+
         typer.echo(design.title)
         typer.echo(format_points_table(result.points.records()))
+        if verify:
+            typer.echo("")
+            typer.echo(format_verification(data["verification"]))
     if csv_file is not None:
         csv_file.write_text(to_csv(result), encoding="utf-8")
     if plot is not None:

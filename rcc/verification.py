@@ -1,0 +1,70 @@
+"""Cycle model against the periodic-steady-state engine, point by point.
+
+``--verify`` of ``rcc check`` and ``rcc sweep``: every reported operating
+point is also solved as the periodic steady state of the time-domain engine
+(:func:`rcc.engine.pss.verify_operating_points`) and the differences are
+tabulated.  Kept apart from :mod:`rcc.checks` because it is slow (seconds
+per point) and optional.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from rcc.design import Design, Load
+
+__all__ = ["verification_rows"]
+
+
+def verification_rows(design: Design, line_voltages, loads, temperatures=None) -> list[dict]:
+    """Differences between the cycle model and the engine, as JSON-ready rows.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    line_voltages : sequence of float
+        RMS line (AC input) or DC voltages [V].
+    loads : sequence of Load
+        Loads, each with a scalar value [A], [ohm] or [W].
+    temperatures : sequence of float, optional
+        Temperatures [K]; default 25 degC clipped into the design's range.
+
+    Returns
+    -------
+    list of dict
+        One row per point: line [V], load text, model and engine frequency
+        [Hz], output [V] and peak current [A], relative differences [1]
+        (engine / model - 1), and ``error`` (why the engine has no periodic
+        steady state there, e.g. bursts); numbers are ``None`` where missing.
+    """
+    from rcc.engine.pss import verify_operating_points
+
+    rows = []
+    for load in loads:
+        for point in verify_operating_points(design, line_voltages, load, temperatures):
+            state = point.steady_state
+            engine = (state.frequency, state.output_voltage, state.peak_current) \
+                if state is not None else (None, None, None)
+            rows.append({
+                "line_v": point.line_voltage,
+                "load": point.load.text(),
+                "model_mode": point.model_mode,
+                "model_frequency_hz": point.model_frequency,
+                "engine_frequency_hz": engine[0],
+                "frequency_diff": point.frequency_difference if state is not None else None,
+                "model_output_v": point.model_output_voltage,
+                "engine_output_v": engine[1],
+                "output_diff": point.output_voltage_difference if state is not None else None,
+                "model_peak_a": point.model_peak_current,
+                "engine_peak_a": engine[2],
+                "peak_diff": point.peak_current_difference if state is not None else None,
+                "error": point.error,
+            })
+    return [{key: (float(value) if isinstance(value, (np.floating,)) else value)
+             for key, value in row.items()} for row in rows]
+
+
+def _scalar_loads(load: Load) -> list[Load]:
+    values = np.atleast_1d(np.asarray(load.value, dtype=float))
+    return [Load(load.kind, float(v)) for v in values]
