@@ -7,6 +7,7 @@ from dataclasses import replace
 
 from rcc.checks import CheckReport, check_design
 from rcc.design import Design
+from rcc.findings import sorted_findings
 
 __all__ = ["full_check"]
 
@@ -22,23 +23,16 @@ def full_check(design: Design) -> CheckReport:
     Returns
     -------
     CheckReport
-        With the start-up findings merged (duplicate codes keep the worst)
-        and a ``"startup"`` section in ``extra``.
+        With the start-up findings merged in (a code may appear twice when
+        both analyses raise it, e.g. ``weak-drive`` in steady state and right
+        after start-up) and a ``"startup"`` section in ``extra``.
     """
     report = check_design(design)
-    findings = list(report.findings)
-    extra = dict(report.extra)
     try:
         from rcc.startup import startup_findings, startup_report
     except ImportError:  # start-up analysis not installed in this build
         return report
     startup = startup_report(design)
-    extra["startup"] = startup.to_json()
-    findings += startup_findings(design, startup)
-    order = {"fail": 0, "warn": 1, "info": 2}
-    best: dict[tuple, object] = {}
-    for finding in findings:
-        key = (finding.code, finding.message)
-        best[key] = finding
-    merged = sorted(best.values(), key=lambda f: order[f.severity])
-    return replace(report, findings=tuple(merged), extra=extra)
+    findings = sorted_findings(report.findings + tuple(startup_findings(design, startup)))
+    return replace(report, findings=findings, extra={**report.extra,
+                                                     "startup": startup.to_json()})

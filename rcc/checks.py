@@ -18,7 +18,7 @@ import numpy as np
 from rcc import cycle, stress
 from rcc.design import Design
 from rcc.devices import base_emitter_voltage
-from rcc.findings import Finding, verdict
+from rcc.findings import Finding, sorted_findings, verdict
 from rcc.limiter import current_limit
 from rcc.mains import bus_voltage_range
 
@@ -210,10 +210,8 @@ def check_design(design: Design) -> CheckReport:
     _output(design, points, low_line + high_line, findings)
     _not_running(design, points, findings)
     _squegging(design, [points] + low_line + high_line, findings)
-    order = {"fail": 0, "warn": 1, "info": 2}
-    findings.sort(key=lambda f: order[f.severity])
     return CheckReport(design=design, points=points, stress=stress_result,
-                       findings=tuple(findings), extra={})
+                       findings=sorted_findings(findings), extra={})
 
 
 # ---------------------------------------------------------------- checks

@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-__all__ = ["Finding", "SEVERITIES", "verdict"]
+__all__ = ["Finding", "SEVERITIES", "verdict", "sorted_findings"]
 
 #: Severities from worst to mildest.
 SEVERITIES = ("fail", "warn", "info")
@@ -86,3 +86,19 @@ def verdict(findings) -> str:
     if "warn" in severities:
         return "warn"
     return "pass"
+
+
+def sorted_findings(findings) -> tuple[Finding, ...]:
+    """Findings worst first (fail, warn, info), stable within a severity.
+
+    Parameters
+    ----------
+    findings : iterable of Finding
+        The findings [-].
+
+    Returns
+    -------
+    tuple of Finding
+        Sorted by severity.
+    """
+    return tuple(sorted(findings, key=lambda finding: SEVERITIES.index(finding.severity)))
