@@ -8,6 +8,7 @@ from dataclasses import replace
 from rcc.checks import CheckReport, check_design
 from rcc.design import Design
 from rcc.findings import sorted_findings
+from rcc.startup import startup_findings, startup_report
 
 __all__ = ["full_check"]
 
@@ -28,10 +29,6 @@ def full_check(design: Design) -> CheckReport:
         after start-up) and a ``"startup"`` section in ``extra``.
     """
     report = check_design(design)
-    try:
-        from rcc.startup import startup_findings, startup_report
-    except ImportError:  # start-up analysis not installed in this build
-        return report
     startup = startup_report(design)
     findings = sorted_findings(report.findings + tuple(startup_findings(design, startup)))
     return replace(report, findings=findings, extra={**report.extra,
