@@ -1023,7 +1023,11 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
         flags.append(f"Newton converged after {orbit.transient_cycles} more transient cycles")
     if not orbit.converged:
         flags.append(f"not converged: scaled residual {orbit.residual:.3g} after "
-                     f"{orbit.iterations} cycles (the oscillation may not be periodic)")
+                     f"{orbit.iterations} cycles (the oscillation may not be periodic); "
+                     "the multipliers are those of the last cycle, not of an orbit")
+        pattern = _switching_pattern(circuit, cycle_map, orbit.state)
+        if pattern:
+            flags.append(pattern)
     del caught
     # the cycle at the solution, with its full event list, for the figures
     try:
@@ -1033,6 +1037,45 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
     return _summarise(design, circuit, line, float(bus_voltage), load, float(temperature),
                       hfe_value, orbit, final, tuple(flags), cycle_map._topology_for(orbit.state),
                       scale)
+
+
+#: Cycles observed to describe a switching pattern that is not period-1 [1].
+PATTERN_CYCLES = 400
+
+
+def _switching_pattern(circuit, cycle_map, state) -> str:
+    """Describe the switching when no period-1 orbit is found: the spread of
+    the turn-on intervals over PATTERN_CYCLES cycles (bursts, period-k,
+    irregular).  Empty if the engine cannot run."""
+    from rcc.engine import EngineError, simulate
+
+    try:
+        start, topology, _, _ = cycle_map.prepare(state)
+        run = simulate(circuit, start, cycle_map.max_time * PATTERN_CYCLES, record=False,
+                       topology=topology, stop_on_turn_on=PATTERN_CYCLES)
+    except (EngineError, CycleError):
+        return ""
+    switch = circuit.device_index("switch")
+    names = circuit.device_state_names[switch]
+    turn_ons = [t for t, before, after, device in zip(run.event_times, run.event_from,
+                                                      run.event_to, run.event_devices)
+                if device == switch
+                and names[circuit.decode(before)[switch]] in ("off", "breakdown")
+                and names[circuit.decode(after)[switch]] in ("active", "saturated")]
+    if len(turn_ons) < 3:
+        return ""
+    intervals = np.diff(turn_ons)
+    short, long = float(np.min(intervals)), float(np.max(intervals))
+    text = (f"switching pattern over {len(intervals)} cycles: turn-on intervals "
+            f"{short * 1e6:.4g} to {long * 1e6:.4g} us")
+    if long > 5.0 * np.median(intervals):
+        text += " (bursts: long pauses between groups of cycles, hiccup or burst mode)"
+    elif len(intervals) >= 4 and np.allclose(intervals[2::2], intervals[:-2:2][:len(intervals[2::2])],
+                                             rtol=1e-3) and long > 1.01 * short:
+        text += " (period two: alternating intervals)"
+    else:
+        text += " (irregular)"
+    return text
 
 
 def _summarise(design, circuit, line, bus, load, temperature, hfe, orbit, final, flags,
@@ -1069,7 +1112,7 @@ def _summarise(design, circuit, line, bus, load, temperature, hfe, orbit, final,
         output_ripple=float(np.max(output) - np.min(output)),
         switch_peak_voltage=float(np.max(signals["collector_voltage"])),
         multipliers=tuple(complex(m) for m in orbit.multipliers),
-        stable=bool(orbit.report.stable),
+        stable=bool(orbit.report.stable and orbit.converged),
         flags=flags,
         iterations=int(orbit.iterations),
         method=orbit.method,
