@@ -255,3 +255,19 @@ def test_cli_missing_design_exit_2(tmp_path):
     out = runner.invoke(app, ["cycle", str(tmp_path / "nope.toml")])
     assert out.exit_code == 2
     assert "does not exist" in out.output
+
+
+# --------------------------------------------------------------- library edge
+def test_library_rejects_bad_inputs():
+    """Clear ValueErrors from the library (no engine run)."""
+    from rcc.engine.pss import parse_load
+
+    design = rcc.load_design(LEGACY)
+    with pytest.raises(ValueError, match="line_voltage = -5.0"):
+        periodic_steady_state(design, -5.0)
+    with pytest.raises(ValueError, match="with its unit"):
+        parse_load(design, "3")
+    assert parse_load(design, "40 ohm") == Load("resistance", 40.0)
+    assert parse_load(design, "250 mA") == Load("current", 0.25)
+    assert parse_load(design, "6 W") == Load("power", 6.0)
+    assert parse_load(design, None) == design.output.load_nominal
