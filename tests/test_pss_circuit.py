@@ -207,6 +207,24 @@ def test_cycle_model_agrees_with_periodic_steady_state(case, line_index, fractio
     assert abs(point.peak_current_difference) < 0.05
 
 
+@pytest.mark.parametrize("line_index", [0, 1])
+def test_converged_full_load_points_output_and_documented_gap(line_index):
+    """Where the engine has a period-1 orbit (legacy case, full load, minimum
+    and nominal line) the output voltages agree within the issue's 2 %, and
+    the frequency and peak-current gaps are the documented ones (frequency
+    10-26 % low, peak current 10-20 % high; notes/periodic_steady_state.md).
+    If the models are brought together this fails, and the xfail entries
+    above and the notes must be updated."""
+    design = rcc.load_design(LEGACY)
+    line = design.input.line_voltages[line_index]
+    (point,) = verify_operating_points(design, [line], [design.output.load_max])
+    assert point.steady_state is not None and point.steady_state.converged
+    assert point.steady_state.stable
+    assert abs(point.output_voltage_difference) < 0.02
+    assert -0.26 < point.frequency_difference < -0.10
+    assert 0.10 < point.peak_current_difference < 0.20
+
+
 # ----------------------------------------------------------------- command
 runner = CliRunner()
 
