@@ -147,5 +147,7 @@ def format_verification(rows) -> str:
           si(r["engine_frequency_hz"], "Hz"), percent(r["frequency_diff"]),
           si(r["model_output_v"], "V"), si(r["engine_output_v"], "V"),
           percent(r["output_diff"]), si(r["model_peak_a"], "A"), si(r["engine_peak_a"], "A"),
-          percent(r["peak_diff"]), r["error"][:60]] for r in rows])
+          percent(r["peak_diff"]),
+          (r["error"] or ("" if r["engine_converged"] else "not periodic: "
+                          + r["engine_flags"]))[:70]] for r in rows])
     return "Verification: cycle model against the periodic-steady-state engine\n\n" + table

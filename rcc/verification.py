@@ -35,8 +35,11 @@ def verification_rows(design: Design, line_voltages, loads, temperatures=None) -
     list of dict
         One row per point: line [V], load text, model and engine frequency
         [Hz], output [V] and peak current [A], relative differences [1]
-        (engine / model - 1), and ``error`` (why the engine has no periodic
-        steady state there, e.g. bursts); numbers are ``None`` where missing.
+        (engine / model - 1), whether the engine's periodic steady state
+        converged and its flags (a non-converged result carries the numbers
+        of the last transient cycle: bursts, period two, irregular cycles),
+        and ``error`` (why the engine has no result there); numbers are
+        ``None`` where missing.
     """
     from rcc.engine.pss import verify_operating_points
 
@@ -59,6 +62,8 @@ def verification_rows(design: Design, line_voltages, loads, temperatures=None) -
                 "model_peak_a": point.model_peak_current,
                 "engine_peak_a": engine[2],
                 "peak_diff": point.peak_current_difference if state is not None else None,
+                "engine_converged": bool(state.converged) if state is not None else False,
+                "engine_flags": "; ".join(state.flags) if state is not None else "",
                 "error": point.error,
             })
     return [{key: (float(value) if isinstance(value, (np.floating,)) else value)
