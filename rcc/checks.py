@@ -210,6 +210,7 @@ def check_design(design: Design) -> CheckReport:
     _output(design, points, low_line + high_line, findings)
     _not_running(design, points, findings)
     _squegging(design, [points] + low_line + high_line, findings)
+    _lockup(design, [points] + low_line + high_line, findings)
     return CheckReport(design=design, points=points, stress=stress_result,
                        findings=sorted_findings(findings), extra={})
 
@@ -464,3 +465,22 @@ def _squegging(design, corner_sets, findings):
             "Give the drive capacitor a reset path in the off-time: a base-emitter resistor "
             "of lower value, a diode across the base-emitter junction, or more feedback "
             "turns so the base is clamped during the flyback plateau."))
+
+
+def _lockup(design, corner_sets, findings):
+    blocked = [(a, np.asarray(a.startup_lockup)) for a in corner_sets]
+    count = sum(int(np.sum(mask)) for _, mask in blocked)
+    if not count:
+        return
+    worst = min(float(np.min(a.load_current[mask])) for a, mask in blocked if np.any(mask))
+    findings.append(Finding(
+        "startup-lockup", "fail",
+        f"At {count} evaluated operating points (lightest affected load {worst:.3g} A) the "
+        "output cannot rise from zero to its operating point: at a low output the "
+        "reflected voltage is too small to reset the drive capacitor during the off-time, "
+        "the cycles become drive-timed and deliver less than the load takes. From "
+        "power-on the supply would stay at a low output and hiccup.",
+        float(count), 0.0, "",
+        "Strengthen the drive-capacitor reset (a lower base-emitter resistor, a diode "
+        "path across the base, a smaller drive capacitor or more feedback turns), or make "
+        "sure the load stays light until the output is up; confirm with `rcc waveforms`."))

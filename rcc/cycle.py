@@ -70,6 +70,8 @@ _BISECTION_STEPS = 26
 _NEWTON_STEPS = 12
 _SCAN_POINTS = 12
 _SETTLE_STEPS = 2
+#: A junction reset path is taken as finished this close to its asymptote [V].
+_JUNCTION_END = 0.05
 
 
 @dataclass(frozen=True)
@@ -162,6 +164,13 @@ class OperatingPoints:
         cycle (it ratchets up while the reset in the off-time is too weak, then
         a long drive-timed off-time resets it: squegging); the values are
         those of one cycle of that pattern.
+    startup_lockup : ndarray of bool
+        True where the output cannot rise from zero to this operating point
+        at this load: below it lies an output range where the supply
+        delivers less than the load takes (the reflected voltage is too low
+        to reset the drive capacitor, cycles are drive-timed), so from
+        power-on it stays at a low output and hiccups.  Found on a 13-point
+        scan of the output range; a narrower deficit can be missed.
     running : ndarray of bool
         False where the switch cannot turn on again after the first cycle
         (the base is held off for good), or the feedback winding is
@@ -193,6 +202,7 @@ class OperatingPoints:
     on_end: np.ndarray
     off_end: np.ndarray
     settled: np.ndarray
+    startup_lockup: np.ndarray
     running: np.ndarray
     input_power: np.ndarray
     output_power: np.ndarray
@@ -397,6 +407,7 @@ class _Cycle:
             self.v_threshold = self.startup_current * rb - self.vbe
         else:
             self.v_threshold = self.startup_current * rb - self.vbe * (rb + rbe) / rbe
+        self._tau_slow = np.inf if rbe is None else (rb + rbe) * dr.capacitance
         self.omega = 1.0 / np.sqrt(self.lm * design.node_capacitance)
         quality = tr.core_loss_resistance * np.sqrt(design.node_capacitance / self.lm)
         self.ring_damping = np.exp(-np.pi / (2.0 * quality))
@@ -442,24 +453,13 @@ class _Cycle:
         # ---- off-time: flyback plateau
         t_demag = self.lm * peak / vr
         winding_plateau = -self.nb * vr
-        # plateau: the base is clamped at -vebo while the winding would pull
-        # it lower, and the capacitor relaxes through R_b towards that level
-        target_clamp = winding_plateau + sw.vebo
-        clamped = vc_end > target_clamp
-        rbe = self.rbe
-        if np.isinf(rbe):
-            tau_slow = np.inf
-        else:
-            tau_slow = (rb + rbe) * cb
-        vc_demag = np.where(
-            clamped,
-            target_clamp + (vc_end - target_clamp) * np.exp(-t_demag / tau),
-            self._slow(vc_end, winding_plateau, t_demag, tau_slow),
-        )
+        # plateau: the base is pulled negative; the drive capacitor is reset
+        # through the clamps of the base node (see _reset)
+        vc_demag = self._reset(vc_end, winding_plateau, t_demag)
         # turn-on during the plateau (drive timer shorter than demagnetization)
         limit_plateau = self.v_threshold + winding_plateau
-        t_cross = self._slow_cross(vc_end, winding_plateau, limit_plateau, tau_slow)
-        ccm = (~clamped) & (t_cross < t_demag)
+        t_cross = self._reset_cross(vc_end, winding_plateau, limit_plateau)
+        ccm = t_cross < t_demag
         # ---- ring after demagnetization
         need = vc_demag - self.v_threshold
         ring_amplitude = self.nb * vr
@@ -468,7 +468,7 @@ class _Cycle:
         phase = np.arccos(np.clip(-need / ring_amplitude, -1.0, 1.0))
         t_ring = phase / self.omega
         # ---- waiting for the slow path (drive-capacitor timing)
-        t_wait = self._slow_cross(vc_demag, 0.0, self.v_threshold, tau_slow)
+        t_wait = self._reset_cross(vc_demag, 0.0, self.v_threshold)
         restarts = ccm | ring_on | np.isfinite(t_wait)
         t_wait = np.where(np.isfinite(t_wait), t_wait, 0.0)
         t_off = np.where(ccm, t_cross, np.where(ring_on, t_demag + t_ring, t_demag + t_wait))
@@ -515,16 +515,88 @@ class _Cycle:
         )
         return state
 
-    @staticmethod
-    def _slow(vc, winding, duration, tau_slow):
-        """Drive capacitor through the slow path (base-emitter resistor)."""
-        if np.isinf(tau_slow):
-            return vc + 0.0 * duration
-        return winding + (vc - winding) * np.exp(-duration / tau_slow)
+    # ------------------------------------------------ drive-capacitor reset
+    # While the feedback winding holds the base negative, three paths reset
+    # the drive capacitor (voltage v_C, winding side positive):
+    #   1. base-emitter breakdown clamps the base at -VEBO: v_C relaxes
+    #      towards w + VEBO through R_b (tau_fast = R_b C_b);
+    #   2. the limiter's collector-base junction conducts once the base is
+    #      below -V_d (V_d its junction drop), through R_lb from the sense
+    #      node at ground: v_C relaxes towards w + V_d (tau_cb = (R_b + R_lb) C_b);
+    #   3. the slow path: base-emitter resistor and start-up current.
+    # Breakdown (1) stops carrying current at v_C* = w + VEBO + R_b (VEBO -
+    # V_d)/R_lb, where path 2 alone holds the base at -VEBO; path 2 is taken
+    # as finished within _JUNCTION_END of its asymptote.
 
-    def _slow_cross(self, vc, winding, level, tau_slow):
+    def _reset_constants(self, winding):
+        dr, lim, sw = self.design.drive, self.design.limiter, self.design.switch
+        drop = self.vbe_limiter
+        knee = winding + sw.vebo + dr.resistance * np.maximum(sw.vebo - drop, 0.0) \
+            / lim.base_resistance
+        tau_cb = (dr.resistance + lim.base_resistance) * dr.capacitance
+        return drop, knee, tau_cb
+
+    def _reset(self, vc, winding, duration):
+        """Drive-capacitor voltage after ``duration`` with the winding at ``winding``."""
+        sw = self.design.switch
+        drop, knee, tau_cb = self._reset_constants(winding)
+        floor = winding + sw.vebo
+        # stage 1: breakdown clamp down to the knee
+        t1 = np.where(vc > knee, self.tau * np.log(np.maximum(
+            (vc - floor) / np.maximum(knee - floor, 1e-300), 1.0)), 0.0)
+        in_stage1 = duration < t1
+        v1 = floor + (vc - floor) * np.exp(-np.minimum(duration, t1) / self.tau)
+        start2 = np.where(vc > knee, knee, vc)
+        left = np.maximum(duration - t1, 0.0)
+        # stage 2: collector-base junction of the limiter
+        junction = winding + drop
+        above = start2 > junction
+        v2 = np.where(above, junction + (start2 - junction) * np.exp(-left / tau_cb), start2)
+        t2 = np.where(above, tau_cb * np.log(np.maximum(
+            (start2 - junction) / _JUNCTION_END, 1.0)), 0.0)
+        # stage 3: slow path for what is left
+        left3 = np.maximum(left - t2, 0.0)
+        v3 = self._slow(v2, winding, left3)
+        return np.where(in_stage1, v1, np.where(left < t2, v2, v3))
+
+    def _reset_cross(self, vc, winding, level):
+        """Time for the drive capacitor to fall to ``level`` (inf if never)."""
+        sw = self.design.switch
+        drop, knee, tau_cb = self._reset_constants(winding)
+        floor = winding + sw.vebo
+        junction = winding + drop
+        with np.errstate(divide="ignore", invalid="ignore"):
+            # stage 1 reaches down to the knee
+            t_knee = np.where(vc > knee, self.tau * np.log(
+                (vc - floor) / np.maximum(knee - floor, 1e-300)), 0.0)
+            t_in1 = self.tau * np.log((vc - floor) / np.maximum(level - floor, 1e-300))
+            start2 = np.minimum(vc, knee)
+            # stage 2 down to the junction asymptote
+            t_in2 = tau_cb * np.log((start2 - junction) / np.maximum(level - junction, 1e-300))
+            t_end2 = np.where(start2 > junction, tau_cb * np.log(np.maximum(
+                (start2 - junction) / _JUNCTION_END, 1.0)), 0.0)
+            start3 = np.minimum(start2, junction + _JUNCTION_END)
+            t_in3 = self._slow_cross(np.maximum(start3, level), winding, level)
+        t = np.where(
+            vc <= level, 0.0,
+            np.where(level >= knee, t_in1,
+                     np.where(level > junction + _JUNCTION_END, t_knee + t_in2,
+                              t_knee + t_end2 + t_in3)))
+        return np.where(np.isnan(t), np.inf, t)
+
+    def _slow(self, vc, winding, duration):
+        """Drive capacitor on the slow path (base-emitter resistor and
+        start-up current) after ``duration``."""
+        if np.isinf(self._tau_slow):
+            current = self.startup_current
+            return vc - current * duration / self.design.drive.capacitance
+        target = winding - self.startup_current * self.rbe
+        return target + (vc - target) * np.exp(-duration / self._tau_slow)
+
+    def _slow_cross(self, vc, winding, level):
         """Time for the drive capacitor to fall to ``level`` on the slow path."""
         cb = self.design.drive.capacitance
+        tau_slow = self._tau_slow
         if np.isinf(tau_slow):
             # start-up resistor current only: linear discharge
             current = np.maximum(self.startup_current, 1e-30)
@@ -667,6 +739,10 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     first = np.argmax(positive, axis=0)          # highest voltage with a surplus
     any_positive = positive.any(axis=0)
     first = np.where(any_positive, first, fractions.size - 1)
+    # from power-on the output rises from zero and stops at the *lowest*
+    # balance; a deficit anywhere below the operating point blocks the way up
+    below = np.arange(fractions.size).reshape((-1,) + (1,) * bus.ndim) > first[None]
+    lockup = any_positive & np.any(below & ~positive, axis=0)
     take = lambda array, idx: np.take_along_axis(array, idx[None], axis=0)[0]  # noqa: E731
     low = take(scan_voltage, first)
     high = take(scan_voltage, np.maximum(first - 1, 0))
@@ -713,7 +789,7 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     load_power = np.where(collapsed, delivered, load_power)
     state["output"] = np.where(collapsed, _voltage_for_power(load, delivered, output), output)
     output_power = np.where(running, load_power, 0.0)
-    state.update(scale=scale, running=running, settled=settled, losses=scaled, output_power=output_power,
+    state.update(scale=scale, running=running, settled=settled, lockup=lockup & running, losses=scaled, output_power=output_power,
                  input_power=output_power + scaled.total)
     return state
 
@@ -757,6 +833,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         on_end=np.array(ON_END)[state["on_end"]],
         off_end=np.where(mixed, "drive-timing", np.array(OFF_END)[state["off_end"]]),
         settled=state["settled"],
+        startup_lockup=state["lockup"],
         running=running,
         input_power=state["input_power"],
         output_power=state["output_power"],

@@ -117,8 +117,8 @@ def write_design(tmp_path):
 
 def regulating_designs() -> dict:
     """Worked cases whose steady state is a regulated supply: at nominal line
-    and nominal load the cycle model runs and the regulation path ends the
-    on-time.  Fault cases (deliberately broken designs for the start-up
+    and nominal load the cycle model runs in boundary conduction and the
+    regulation path ends the on-time.  Fault cases (deliberately broken designs for the start-up
     analysis) drop out by this physical test, not by their file names."""
     from rcc.cycle import operating_points
     from rcc.design import load_design
@@ -129,7 +129,8 @@ def regulating_designs() -> dict:
         voltage = design.output.voltage_target or 12.0
         nominal = operating_points(design, design.input.line_voltages[1],
                                    float(design.output.load_nominal.current(voltage)))
-        if bool(nominal.running) and str(nominal.on_end) == "regulation":
+        if (bool(nominal.running) and str(nominal.on_end) == "regulation"
+                and str(nominal.mode) == "bcm"):
             selected[path.stem] = design
     assert "standby_12v_universal" in selected
     return selected

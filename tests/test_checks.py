@@ -97,7 +97,8 @@ def test_overload_fires_when_the_limit_is_too_low(standby, standby_report):
 
 
 def test_weak_drive_fires_with_a_large_drive_resistor(standby, standby_report):
-    assert "weak-drive" not in codes(standby_report)
+    # the demo case keeps its drive just under the 1.25 margin: a warning only
+    assert codes(standby_report)["weak-drive"].severity == "warn"
     weak = standby.with_values({"drive.resistance": "1 kohm"})
     finding = codes(check_design(weak))["weak-drive"]
     assert finding.severity == "fail" and finding.value < 1.0
