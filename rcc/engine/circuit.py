@@ -173,6 +173,7 @@ class _Guard:
     tolerance: float
     name: str
     gated: bool = True   # fires below zero only while falling (Filippov-style admissibility)
+    deep: float = 0.0    # a gated guard below -deep fires anyway (0: 1000 tolerances)
 
 
 @dataclass(frozen=True)
@@ -221,6 +222,9 @@ class Topology:
         systems), which prevents ping-pong between two topologies at one
         instant (a transistor at the edge of saturation, a junction at the
         edge of conduction).  All guards of the flyback are gated.
+    guard_deep : ndarray, shape (g,)
+        A gated guard below minus this value fires even while rising (a real
+        inconsistency, not a bisection overshoot).
     guard_names : tuple of str
     signal_matrix : ndarray, shape (s, n)
     signal_offset : ndarray, shape (s,)
@@ -244,6 +248,7 @@ class Topology:
     guard_targets: np.ndarray
     guard_tolerances: np.ndarray
     guard_gated: np.ndarray
+    guard_deep: np.ndarray
     guard_names: tuple
     signal_matrix: np.ndarray
     signal_offset: np.ndarray
@@ -489,11 +494,12 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     # ----- switch
     be_on = E("V", "q1_be", "b", "e", vbe, SWITCH_BASE_RESISTANCE)
     v_tol, i_tol = VOLTAGE_TOLERANCE, CURRENT_TOLERANCE
-    # charge tolerance: the collector current it implies (q / tau_F) times the
-    # sense resistance stays far below the voltage tolerance, so leaving the
-    # active region cannot make the cut-off guard fire again (no ping-pong)
-    q_tol = tau_f * CURRENT_TOLERANCE * 1e-3
-    # (the bisection can overshoot it by i_B * MIN_STEP; the guard is gated)
+    # charge tolerance: the charge of 1 pA of collector current; the guards
+    # are gated (a negative charge that is rising again does not switch back:
+    # the active region recovers it), and the end of storage fires while
+    # rising only beyond the charge of 1 uA
+    q_tol = tau_f * 1e-3 * CURRENT_TOLERANCE
+    q_deep = tau_f * 1e3 * CURRENT_TOLERANCE   # the charge of 1 uA of collector current
     vbe_open = (("v", "b", 1.0), ("v", "e", -1.0))
     devs.append(_Device("switch", (
         DS("off", (), (
@@ -501,14 +507,15 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
             G((("c", "", sw.vebo),) + vbe_open, 3, v_tol, "switch base-emitter breakdown"),
         ), (("x", "q_base", -1.0 / tau_bf),)),
         DS("active", (be_on, E("Istate", "q1_collector", "c", "e", 1.0 / tau_f, state="q_base")), (
-            G((("x", "q_base", 1.0),), 0, q_tol, "switch stored charge gone", gated=True),
+            G((("x", "q_base", 1.0),), 0, q_tol, "switch stored charge gone",
+              deep=math.inf),
             G((("v", "c", 1.0), ("v", "e", -1.0), ("c", "", -sw.vce_sat)), 2, v_tol,
               "switch saturates"),
         ), (("i", "q1_be", 1.0), ("x", "q_base", -1.0 / tau_bf))),
         DS("saturated", (be_on, E("V", "q1_ce", "c", "e", sw.vce_sat,
                                   SWITCH_SATURATION_RESISTANCE)), (
             G((("x", "q_base", 1.0), ("i", "q1_ce", -tau_f)), 1, q_tol,
-              "switch excess charge gone (end of storage)", gated=True),
+              "switch excess charge gone (end of storage)", deep=q_deep),
         ), (("i", "q1_be", 1.0), ("i", "q1_ce", -1.0 / gain), ("x", "q_base", -1.0 / tau_s),
             ("i", "q1_ce", tau_f / tau_s))),
         DS("breakdown", (E("V", "q1_eb", "e", "b", sw.vebo, BREAKDOWN_RESISTANCE),), (
@@ -830,6 +837,8 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
         guard_targets=np.array([g.target for _, g in guards], dtype=np.int64),
         guard_tolerances=np.array([g.tolerance for _, g in guards]),
         guard_gated=np.array([g.gated for _, g in guards], dtype=bool),
+        guard_deep=np.array([g.deep if g.deep > 0 else 1000.0 * g.tolerance
+                             for _, g in guards]),
         guard_names=tuple(g.name for _, g in guards),
         signal_matrix=sm, signal_offset=so, power_forms=power_forms,
     )

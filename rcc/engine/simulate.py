@@ -260,8 +260,9 @@ class CycleResult:
 # ---------------------------------------------------------------- kernel
 @njit(cache=True)
 def _guards_violated(gc, gd, gt, ng, x0, x, n):
-    """A guard crossed below minus its tolerance between x0 and x (having
-    started above it)."""
+    """A guard crossed below minus its tolerance between x0 and x, having
+    started above it, or (a gated guard kept below it while rising) fell
+    below its starting value."""
     for g in range(ng):
         tol = abs(gt[g])
         value = gd[g]
@@ -269,7 +270,7 @@ def _guards_violated(gc, gd, gt, ng, x0, x, n):
         for j in range(n):
             value += gc[g, j] * x[j]
             start += gc[g, j] * x0[j]
-        if value < -tol and start >= -tol:
+        if value < -tol and (start >= -tol or value < start):
             return True
     return False
 
@@ -296,7 +297,7 @@ def _field(A, b, x, out, n):
 def _kernel(x, t, slot, t_end, max_step,
             slot_of_code, code_of_slot, weights, radices,
             ladder, steps, top_level, nlevels, A, b,
-            gc, gd, gt, gdev, gtarget, ng,
+            gc, gd, gt, gdeep, gdev, gtarget, ng,
             rec_t, rec_x, rec_code, rec_n, record,
             ev_t, ev_from, ev_to, ev_dev, ev_guard, ev_n, max_events,
             stop_dev, stop_to, stop_after,
@@ -329,7 +330,8 @@ def _kernel(x, t, slot, t_end, max_step,
                     value += gc[slot, g, j] * x[j]
                     slope += gc[slot, g, j] * f0[j]
                 tol = abs(gt[slot, g])
-                if (value <= tol and slope < 0.0) or (value < -tol and gt[slot, g] > 0.0):
+                if (value <= 0.0 and slope < 0.0) or \
+                        (value < -tol and (gt[slot, g] > 0.0 or value < -gdeep[slot, g])):
                     fired = g
                     break
             if fired < 0:
@@ -486,6 +488,7 @@ class _Store:
         self.gc = np.zeros((capacity, self.max_guards, n))
         self.gd = np.zeros((capacity, self.max_guards))
         self.gt = np.zeros((capacity, self.max_guards))
+        self.gdeep = np.zeros((capacity, self.max_guards))
         self.gdev = np.zeros((capacity, self.max_guards), dtype=np.int64)
         self.gtarget = np.zeros((capacity, self.max_guards), dtype=np.int64)
         self.ng = np.zeros(capacity, dtype=np.int64)
@@ -493,7 +496,7 @@ class _Store:
     def _grow(self):
         new = 2 * self.capacity
         for name in ("code_of_slot", "ladder", "steps", "top_level", "nlevels", "A", "b",
-                     "gc", "gd", "gt", "gdev", "gtarget", "ng"):
+                     "gc", "gd", "gt", "gdeep", "gdev", "gtarget", "ng"):
             old = getattr(self, name)
             grown = np.zeros((new,) + old.shape[1:], dtype=old.dtype)
             grown[: self.capacity] = old
@@ -517,6 +520,7 @@ class _Store:
         self.gd[slot, :ng] = topology.guard_offsets
         self.gt[slot, :ng] = np.where(topology.guard_gated, -1.0, 1.0) * \
             topology.guard_tolerances
+        self.gdeep[slot, :ng] = topology.guard_deep
         self.gdev[slot, :ng] = topology.guard_devices
         self.gtarget[slot, :ng] = topology.guard_targets
         self.ng[slot] = ng
@@ -664,10 +668,16 @@ def dc_initial_state(circuit: Circuit, from_dc_point: bool = False):
             x = np.linalg.solve(topology.A, -topology.b)
         except np.linalg.LinAlgError:
             x, *_ = np.linalg.lstsq(topology.A, -topology.b, rcond=None)
-        new_code = settle_topology(circuit, x, code, slopes=False)
-        if new_code == code:
+        values = topology.guard_gradients @ x + topology.guard_offsets
+        violated = values < -topology.guard_tolerances
+        if not violated.any():
             return x
-        code = new_code
+        # switch the most violated device only (relative to its tolerance),
+        # then recompute the equilibrium
+        g = int(np.argmin(np.where(violated, values / topology.guard_tolerances, np.inf)))
+        states = list(circuit.decode(code))
+        states[int(topology.guard_devices[g])] = int(topology.guard_targets[g])
+        code = circuit.encode(states)
     raise EngineError("no consistent DC operating point found in 50 iterations")
 
 
@@ -689,9 +699,9 @@ def settle_topology(circuit: Circuit, x, code: int = 0, slopes: bool = True) -> 
         field = topology.vector_field(x)
         rates = topology.guard_gradients @ field
         tol = topology.guard_tolerances
-        bad = (values < -tol) & ~topology.guard_gated
+        bad = (values < -tol) & (~topology.guard_gated | (values < -topology.guard_deep))
         if slopes:
-            bad |= (values <= tol) & (rates < 0)
+            bad |= (values <= 0) & (rates < 0)
         else:
             bad |= (values < -tol) & topology.guard_gated
         if not bad.any():
@@ -787,7 +797,7 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
             x, t, slot, end, step_cap,
             store.slot_of_code, store.code_of_slot, store.weights, store.radices,
             store.ladder, store.steps, store.top_level, store.nlevels, store.A, store.b,
-            store.gc, store.gd, store.gt, store.gdev, store.gtarget, store.ng,
+            store.gc, store.gd, store.gt, store.gdeep, store.gdev, store.gtarget, store.ng,
             rec_t, rec_x, rec_code, rec_n, record,
             ev_t, ev_from, ev_to, ev_dev, ev_guard, ev_n, max_events - total_events,
             -1 if settle_only else stop_dev, 1, stop_after, storm, storm_pos)
@@ -1062,10 +1072,14 @@ def segment_energy(topology: Topology, x0, duration: float) -> dict:
     z0 = np.append(np.asarray(x0, dtype=float), 1.0)
     if duration <= 0:
         return {key: 0.0 for key in topology.power_forms}
+    # balanced coordinates z = D w (Parlett & Reinsch): M -> D^-1 M D, Q -> D Q D
+    M, scale = _balance(M)
+    z0 = z0 / scale
     s = _squarings(M * duration)
     h = duration * 2.0 ** (-s)
     out = {}
     for key, Q in topology.power_forms.items():
+        Q = Q * scale[:, None] * scale[None, :]
         block = np.zeros((2 * (n + 1), 2 * (n + 1)))
         block[: n + 1, : n + 1] = -M.T
         block[: n + 1, n + 1:] = Q
@@ -1123,6 +1137,8 @@ def simulate_reference(circuit: Circuit, x0, t_end: float, topology: int | None 
     code = settle_topology(circuit, x, 0 if topology is None else int(topology))
     t = 0.0
     times, before, after = [], [], []
+    no_switch = False
+    same_instant = 0
     while t < t_end and len(times) < max_events:
         top = circuit.topology(code)
         A, b = top.A, top.b
@@ -1134,7 +1150,12 @@ def simulate_reference(circuit: Circuit, x0, t_end: float, topology: int | None 
             event.direction = -1
             return event
 
-        events = [make_event(g) for g in range(len(top.guard_offsets))]
+        # as in the engine: a guard kept below minus its tolerance (gated,
+        # rising) only counts once it is back above it
+        start_values = top.guard_gradients @ x + top.guard_offsets
+        floor = 0.0 if no_switch else -0.5 * top.guard_tolerances
+        events = [make_event(g) for g in range(len(top.guard_offsets))
+                  if start_values[g] > np.broadcast_to(floor, start_values.shape)[g]]
         solution = solve_ivp(lambda _t, y: A @ y + b, (t, t_end), x, method=method,
                              jac=lambda _t, y: A, events=events, rtol=rtol, atol=atol)
         if solution.status == -1:
@@ -1142,7 +1163,16 @@ def simulate_reference(circuit: Circuit, x0, t_end: float, topology: int | None 
         x = solution.y[:, -1].copy()
         t = float(solution.t[-1])
         if solution.status == 1:
+            same_instant = same_instant + 1 if times and times[-1] == t else 0
+            if same_instant > MAX_CHAIN:
+                raise EngineError(f"reference integrator: events repeat at t = {t:.9g} s "
+                                  "without progress")
             new_code = settle_topology(circuit, x, code)
+            no_switch = new_code == code
+            if no_switch:
+                # an event the engine's admissibility rule does not act on
+                # (a gated guard at its band, within the integrator's noise)
+                continue
             chain = _chain(circuit, code, new_code, x)
             for c_from, c_to in chain:
                 times.append(t)
@@ -1170,7 +1200,8 @@ def _one_switch(circuit: Circuit, code: int, x) -> int:
     values = topology.guard_gradients @ x + topology.guard_offsets
     rates = topology.guard_gradients @ topology.vector_field(x)
     tol = topology.guard_tolerances
-    bad = ((values < -tol) & ~topology.guard_gated) | ((values <= tol) & (rates < 0))
+    bad = ((values < -tol) & (~topology.guard_gated | (values < -topology.guard_deep))) | \
+        ((values <= 0) & (rates < 0))
     g = int(np.argmax(bad))
     states = list(circuit.decode(code))
     states[int(topology.guard_devices[g])] = int(topology.guard_targets[g])

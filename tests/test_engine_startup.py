@@ -1,0 +1,80 @@
+"""Start-up from the DC point: the engine against linear algebra and against
+the start-up analysis (``rcc.startup.analyze_startup``).
+
+Sources: inside one topology the engine solves ``dx/dt = A x + b`` exactly,
+so a small perturbation of the equilibrium grows at the largest real part
+of the eigenvalues of ``A`` (numpy.linalg.eigvals as the reference;
+Chen, *Linear System Theory and Design*, 1999, ch. 4).  The start-up
+verdict (right-half-plane pole of the linearized DC point) must agree in
+sign with the engine.  The worked case is invented demo data.
+"""
+
+import numpy as np
+import pytest
+
+from rcc.design import Load, load_design
+from rcc.engine import build_circuit, dc_initial_state, settle_topology, simulate
+from rcc.startup import analyze_startup
+
+BASE = load_design("worked_cases/standby_12v_universal.toml")
+BUS, TEMPERATURE, HFE = 325.0, 298.15, 30.0
+
+
+def perturbed_growth(design, times=(0.35e-6, 0.7e-6), perturbation=1e-9):
+    """Growth rate of a 1 nV perturbation of the drive capacitor at the DC point,
+    measured on the engine trajectory, and the engine's dominant eigenvalue."""
+    circuit = build_circuit(design, BUS, Load("resistance", 40.0), TEMPERATURE, hfe=HFE)
+    x_dc = dc_initial_state(circuit, from_dc_point=True)
+    code = settle_topology(circuit, x_dc, 0)
+    topology = circuit.topology(code)
+    dominant = float(np.max(np.linalg.eigvals(topology.A).real))
+    x0 = x_dc.copy()
+    x0[circuit.state_index("v_drive")] += perturbation
+    # deviation norm with every state scaled to its working range
+    scale = np.array([{"i": 1.0, "v": 1.0, "q": 1e-7}[name[0]] for name in circuit.state_names])
+    deviations = []
+    for t_end in times:
+        trace = simulate(circuit, x0, t_end, record=False, topology=code)
+        assert len(trace.event_times) == 0  # still in the DC topology
+        deviations.append(np.linalg.norm((trace.final_state - x_dc) / scale))
+    rate = np.log(deviations[1] / deviations[0]) / (times[1] - times[0])
+    return rate, dominant, circuit
+
+
+def test_growth_from_dc_point_matches_dominant_eigenvalue():
+    rate, dominant, _ = perturbed_growth(BASE)
+    assert dominant > 0
+    # after 0.35 us the faster decaying modes are gone and over 0.35 us the
+    # slower modes (1e5 1/s and below) change the log-ratio
+    # by well under 1 %
+    assert rate == pytest.approx(dominant, rel=0.01)
+
+
+@pytest.mark.parametrize("change", [
+    {},                                                  # the worked case starts
+    {"drive.capacitance": 1e-9},                         # small drive capacitor, starts
+    {"transformer.feedback_phase": "degenerative"},      # reversed winding, stalls
+])
+def test_engine_grows_exactly_when_startup_analysis_says_starts(change):
+    design = BASE.with_values(change) if change else BASE
+    verdict = analyze_startup(design, bus_voltage=BUS, temperature=TEMPERATURE, hfe=HFE)
+    if verdict.starts:
+        rate, dominant, _ = perturbed_growth(design)
+        assert rate > 1e4 and dominant > 0
+    else:
+        # stays at the DC point: no switching over 4 ms and the deviation
+        # does not grow between 2 ms and 4 ms (a non-normal transient may
+        # amplify it briefly at first)
+        rate, dominant, _ = perturbed_growth(design, times=(2e-3, 4e-3), perturbation=1e-3)
+        assert rate <= 0.0 and dominant <= 0.0
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "known model difference: the engine's charge-control switch (single pole "
+    "tau_BF, base resistance 2 ohm, no collector-base capacitance) gives a "
+    "regenerative pole about 27 % faster than the hybrid-pi model of "
+    "rcc.startup on the worked case (1.81e7 vs 1.42e7 1/s)"))
+def test_growth_rate_within_ten_percent_of_startup_pole():
+    verdict = analyze_startup(BASE, bus_voltage=BUS, temperature=TEMPERATURE, hfe=HFE)
+    rate, _, _ = perturbed_growth(BASE)
+    assert rate == pytest.approx(verdict.growth_rate, rel=0.10)
