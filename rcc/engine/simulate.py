@@ -9,9 +9,9 @@ step lengths ``h_top, h_top/2, ..., >= MIN_STEP``; any instant in a step is
 then reached exactly by a product of ladder matrices, so a switching
 instant is found by bisection on the exact segment solution, never by a
 low-order interpolation.  ``h_top`` resolves every lightly damped
-oscillation of the topology (at most a third of a half period), so a guard
-cannot cross and recross unseen between samples; a cubic Hermite test on
-guard values and slopes refines the step where a guard dips between samples.
+oscillation of the topology (at most half of a half period), and a cubic
+Hermite test on guard values and slopes refines the step where a guard dips
+between samples, so a guard cannot cross and recross unseen.
 
 Pitfalls and how they are handled:
 
@@ -69,6 +69,9 @@ __all__ = [
 
 #: Finest step of the ladder: resolution of switching instants [s].
 MIN_STEP = 1e-15
+#: Longest step relative to the half period of a lightly damped ring (the
+#: cubic Hermite test on guard values and slopes covers dips between samples).
+RING_SAMPLING = 0.5
 #: Longest step in any topology [s].
 MAX_STEP = 1e-4
 #: Most ladder levels.
@@ -598,7 +601,7 @@ def _start_level(A: np.ndarray, h_top: float, levels: int) -> int:
 
 
 def _top_step(A: np.ndarray) -> float:
-    """Longest ladder step for a state matrix: a sixth of the period of its
+    """Longest ladder step for a state matrix: a quarter of the period of its
     fastest lightly damped oscillation, half the time constant of its
     fastest growing mode, at most MAX_STEP [s]."""
     eigenvalues = np.linalg.eigvals(A)
@@ -606,7 +609,7 @@ def _top_step(A: np.ndarray) -> float:
     for value in eigenvalues:
         omega = abs(value.imag)
         if omega > 0 and abs(value.real) < 2.0 * omega:
-            h = min(h, math.pi / (3.0 * omega))
+            h = min(h, RING_SAMPLING * math.pi / omega)
         if value.real > 0:
             h = min(h, 0.5 / value.real)
     return h
