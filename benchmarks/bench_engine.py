@@ -24,7 +24,6 @@ pss_iterations=<n>``.
 
 from __future__ import annotations
 
-import math
 import os
 import subprocess
 import sys
@@ -93,17 +92,17 @@ def startup_seconds(design, cycles: int = 1000) -> tuple[float, float]:
 
 
 def pss_iterations(design) -> float:
-    """Newton iterations of the periodic-steady-state solver (rcc.engine.pss)."""
-    try:
-        from rcc.engine.pss import periodic_steady_state
-    except ImportError:
-        return math.nan
-    try:
-        result = periodic_steady_state(design, None, None)
-    except Exception as error:  # report, do not hide
-        print(f"pss: {type(error).__name__}: {error}")
-        return math.nan
-    return float(result.iterations)
+    """Newton iterations of the periodic-steady-state solve after its warm-up
+    (``rcc.engine.pss.benchmark_iterations``: nominal line, full load)."""
+    from rcc.engine.pss import benchmark_iterations
+
+    result = benchmark_iterations(design)
+    if not result["converged"]:
+        print(f"pss: did not converge ({result['method']})")
+    print(f"pss: {result['iterations']} iterations after {result['warmup_cycles']} warm-up "
+          f"cycles, {result['transient_cycles']} extra transient cycles, "
+          f"{result['seconds']:.2f} s")
+    return float(result["iterations"])
 
 
 def main() -> None:

@@ -44,7 +44,10 @@ voltage with the base driven (the inverse-mode current is neglected, so the
 limiter cannot source the drive current back into the switch base); no
 charge storage (a small-signal transistor, much faster than the switch).
 
-*Diodes and zeners*: forward drop plus resistance, blocking otherwise.
+*Diodes and zeners*: forward drop plus resistance, blocking otherwise.  The
+limiter's collector-base junction is one of them (from its base into the
+switch base): it resets the drive capacitor while the feedback winding holds
+the switch base negative.
 
 *Transformer*: magnetizing inductance (with the core-loss resistance in
 parallel) and a leakage inductance in series on the primary side, then an
@@ -545,6 +548,11 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
             G((("i", "q2_be", 1.0),), 0, i_tol, "limiter base current ends"),
         )),
     )))
+    # the limiter's collector-base junction: conducts from its base into the
+    # switch base once the feedback winding pulls that below about -Vbe, and
+    # so resets the drive capacitor through R_lb (notes/circuit.md)
+    devs.append(_diode("limiter_collector_base", "l", "b", limiter_vbe,
+                       LIMITER_BASE_RESISTANCE))
     devs.append(_diode("output_rectifier", "s", "o", out.rectifier_drop,
                        OUTPUT_RECTIFIER_RESISTANCE))
     zener_v = None
