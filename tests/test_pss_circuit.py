@@ -40,6 +40,7 @@ from rcc.engine.pss import (FallbackWarning, periodic_steady_state, poincare_map
 
 CASES = Path(__file__).resolve().parents[1] / "worked_cases"
 LEGACY = CASES / "legacy_24v_substitute.toml"
+STANDBY = CASES / "standby_12v_universal.toml"
 
 
 @pytest.fixture(scope="module")
@@ -144,10 +145,11 @@ def test_multipliers_stable_and_sorted(legacy):
 # two models, not a silent one.  strict=False: a case that starts to agree
 # after a model change shows up as XPASS.
 _PEAK_REASON = ("models disagree on the on-time end: the engine's peak current is "
-                "10-17 % above the cycle model's and its frequency 12-24 % below (the "
+                "14-31 % above the cycle model's and its frequency 14-27 % below (the "
                 "engine's limiter path: sense voltage in the base loop, limiter "
-                "saturation, bias-dependent storage; the cycle model uses trip current "
-                "plus datasheet storage time); output voltage agrees within 2.5 %")
+                "saturation and finite gain, charge-control storage of its own; the "
+                "cycle model uses the trip current plus charge-control storage with "
+                "I_B2 = I_B1); output voltage agrees within 2.5 %")
 _BURST_REASON = ("light load: the cycle model reports burst operation (an average "
                  "frequency); the engine bursts or settles to another regime; there is "
                  "no period-1 orbit to compare")
@@ -166,9 +168,9 @@ XFAIL = {
     ("standby_12v_universal", 0, 0.1): _IRREGULAR_REASON,
     ("standby_12v_universal", 0, 1.0): _PEAK_REASON,
     ("standby_12v_universal", 1, 0.1): _IRREGULAR_REASON,
-    ("standby_12v_universal", 1, 1.0): _IRREGULAR_REASON,
+    ("standby_12v_universal", 1, 1.0): _PEAK_REASON,
     ("standby_12v_universal", 2, 0.1): _IRREGULAR_REASON,
-    ("standby_12v_universal", 2, 1.0): _IRREGULAR_REASON,
+    ("standby_12v_universal", 2, 1.0): _PEAK_REASON,
     ("aux_5v_48v_dc", 0, 0.1): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 0, 1.0): _NO_START_REASON,
     ("aux_5v_48v_dc", 1, 0.1): _BURST_REASON,
@@ -207,22 +209,22 @@ def test_cycle_model_agrees_with_periodic_steady_state(case, line_index, fractio
     assert abs(point.peak_current_difference) < 0.05
 
 
-@pytest.mark.parametrize("line_index", [0, 1])
+@pytest.mark.parametrize("line_index", [0, 1, 2])
 def test_converged_full_load_points_output_and_documented_gap(line_index):
-    """Where the engine has a period-1 orbit (legacy case, full load, minimum
-    and nominal line) the output voltages agree within the issue's 2 %, and
-    the frequency and peak-current gaps are the documented ones (frequency
-    10-26 % low, peak current 10-20 % high; notes/periodic_steady_state.md).
+    """Where the engine has a period-1 orbit (standby case, full load, every
+    line) the output voltages agree within the issue's 2 %, and the
+    frequency and peak-current gaps are the documented ones (frequency
+    10-30 % low, peak current 10-35 % high; notes/periodic_steady_state.md).
     If the models are brought together this fails, and the xfail entries
     above and the notes must be updated."""
-    design = rcc.load_design(LEGACY)
+    design = rcc.load_design(STANDBY)
     line = design.input.line_voltages[line_index]
     (point,) = verify_operating_points(design, [line], [design.output.load_max])
     assert point.steady_state is not None and point.steady_state.converged
     assert point.steady_state.stable
     assert abs(point.output_voltage_difference) < 0.02
-    assert -0.26 < point.frequency_difference < -0.10
-    assert 0.10 < point.peak_current_difference < 0.20
+    assert -0.30 < point.frequency_difference < -0.10
+    assert 0.10 < point.peak_current_difference < 0.35
 
 
 # ----------------------------------------------------------------- command
