@@ -51,16 +51,18 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
     Parameters
     ----------
     trace : Trace
+        Engine run (:func:`rcc.engine.simulate.simulate`), SI units [-].
     title : str
         Figure title.
     cycles : int
-        Switching cycles in the zoom.
-    axes : ndarray of Axes, shape (6, 2), optional
-        Axes to draw in; a new figure when omitted.
+        Switching cycles in the zoom [1].
+    axes : matplotlib Axes grid, shape (6, 2), optional
+        Axes to draw in; a new figure when omitted [-].
 
     Returns
     -------
-    ndarray of Axes, shape (6, 2)
+    matplotlib Axes grid, shape (6, 2)
+        The axes drawn in (signals in V and mA, time in ms and us) [-].
     """
     import matplotlib
 
