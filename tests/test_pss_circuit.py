@@ -291,3 +291,13 @@ def test_library_rejects_bad_inputs():
     assert parse_load(design, "250 mA") == Load("current", 0.25)
     assert parse_load(design, "6 W") == Load("power", 6.0)
     assert parse_load(design, None) == design.output.load_nominal
+
+
+def test_cli_engine_trouble_is_a_clear_error_not_a_traceback():
+    """A cycle the engine cannot continue (here a grazing switching event on a
+    broken design) ends with a one-line reason and exit 1."""
+    out = runner.invoke(app, ["cycle", str(CASES / "fault_drive_capacitor_small.toml")])
+    assert out.exit_code == 1, out.output
+    assert "no periodic steady state" in out.output
+    assert "Traceback" not in out.output and out.exception is None or \
+        isinstance(out.exception, SystemExit)

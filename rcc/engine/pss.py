@@ -46,6 +46,7 @@ from typing import Callable
 import numpy as np
 
 from rcc.design import Load
+from rcc.engine.circuit import EngineError
 from rcc.engine.floquet import (
     CycleData,
     CycleError,
@@ -938,6 +939,23 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
     (a turn-on within 10 % of the previous period) is joined to the cycle;
     see ``notes/periodic_steady_state.md``.
     """
+    try:
+        return _periodic_steady_state(
+            design, line_voltage, load, temperature, hfe, bus_voltage=bus_voltage,
+            warmup_cycles=warmup_cycles, max_iterations=max_iterations,
+            fallback_cycles=fallback_cycles, tolerance=tolerance,
+            initial_state=initial_state, initial_topology=initial_topology)
+    except (CycleError, EngineError) as error:
+        # numerical trouble inside the engine is a clear error, never a traceback
+        raise PeriodicSteadyStateError(
+            f"the engine stopped: {error}") from error
+
+
+def _periodic_steady_state(design, line_voltage=None, load=None, temperature=None, hfe=None,
+                           *, bus_voltage=None, warmup_cycles: int = WARMUP_CYCLES,
+                           max_iterations: int = 12, fallback_cycles: int = 5000,
+                           tolerance: float = CIRCUIT_TOLERANCE,
+                           initial_state=None, initial_topology=None) -> PeriodicSteadyState:
     from rcc.cycle import bus_voltage as model_bus_voltage, reference_temperature
     from rcc.engine import (EngineError, advance_cycle, build_circuit, power_on_state,
                             simulate)
