@@ -221,3 +221,17 @@ def test_sweep_matches_operating_points(standby):
     direct = operating_points(standby, 265.0, 0.4)
     assert result.points.frequency[0, 1, 1] == pytest.approx(float(direct.frequency))
     assert result.points.output_voltage[0, 1, 1] == pytest.approx(float(direct.output_voltage))
+
+
+def test_sweep_verify_compares_with_the_periodic_steady_state():
+    # one converged point: the standby case at full load, lowest line (the
+    # engine settles to a period-1 orbit there; notes/periodic_steady_state.md)
+    result = runner.invoke(app, ["sweep", str(STANDBY), "--line", "85V", "--load", "0.5A",
+                                 "--verify", "--json"])
+    assert result.exit_code == 0, result.output
+    (row,) = json.loads(result.stdout)["verification"]
+    assert row["engine_converged"] is True and row["error"] == ""
+    assert row["frequency_diff"] == pytest.approx(
+        row["engine_frequency_hz"] / row["model_frequency_hz"] - 1, rel=1e-9)
+    # both models balance the same output power: the outputs agree within 2 %
+    assert abs(row["output_diff"]) < 0.02
