@@ -190,7 +190,7 @@ def check_design(design: Design) -> CheckReport:
     start-up resistor dissipation at the highest line; output voltage
     against ``voltage_target``.  See :mod:`rcc.stress`, :mod:`rcc.cycle`.
     """
-    env, sw, tr, out = design.environment, design.switch, design.transformer, design.output
+    env, sw, out = design.environment, design.switch, design.output
     temperatures = np.array([env.temperature_min, cycle.reference_temperature(design),
                              env.temperature_max])
     gains = np.array([sw.hfe_min, sw.hfe_typ, sw.hfe_max])

@@ -421,7 +421,7 @@ class _Cycle:
         ireg = regulation_current(d, output_voltage, self.temperature)
         itrip = trip_current(self.vbe_limiter, ireg, lim.base_resistance,
                              lim.sense_resistance)
-        rb, cb, tau = dr.resistance, dr.capacitance, self.tau
+        rb, tau = dr.resistance, self.tau
         # ---- on-time: drive-limited decision (switch leaves saturation)
         amplitude = np.maximum(self.v_on - vc0, 0.0) / rb
         offset = self.startup_current - self.bleed

@@ -23,7 +23,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from rcc.schema import KEYS, SECTIONS, Key, keys_of
+from rcc.schema import SECTIONS, Key, keys_of
 from rcc.units import DIMENSIONS, UnitError, parse_quantity
 
 __all__ = [

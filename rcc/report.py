@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import textwrap
 
-import numpy as np
 
 from rcc.units import format_si
 

@@ -13,7 +13,7 @@ import numpy as np
 
 from rcc.design import Design, Load
 
-__all__ = ["verification_rows"]
+__all__ = ["verification_rows", "split_loads"]
 
 
 def verification_rows(design: Design, line_voltages, loads, temperatures=None) -> list[dict]:
@@ -70,6 +70,18 @@ def verification_rows(design: Design, line_voltages, loads, temperatures=None) -
              for key, value in row.items()} for row in rows]
 
 
-def _scalar_loads(load: Load) -> list[Load]:
+def split_loads(load: Load) -> list[Load]:
+    """One scalar load per value of a load with an array of values.
+
+    Parameters
+    ----------
+    load : Load
+        Load kind with one or more values [A], [ohm] or [W].
+
+    Returns
+    -------
+    list of Load
+        Scalar loads of the same kind.
+    """
     values = np.atleast_1d(np.asarray(load.value, dtype=float))
     return [Load(load.kind, float(v)) for v in values]

@@ -58,9 +58,9 @@ def sweep(
     result = run(design, lines, loads, temperatures)
     data = result.to_json()
     if verify:
-        from rcc.verification import _scalar_loads, verification_rows
+        from rcc.verification import split_loads, verification_rows
 
-        data["verification"] = verification_rows(design, lines, _scalar_loads(loads),
+        data["verification"] = verification_rows(design, lines, split_loads(loads),
                                                  temperatures)
     if json_output:
         typer.echo(json.dumps(data, indent=2))

@@ -275,7 +275,6 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
     if scale is None:
         scale = np.maximum(np.abs(x), 1e-6 * max(float(np.max(np.abs(x))), 1e-300))
     scale = np.asarray(scale, dtype=float)
-    n = x.size
     try:
         cycle = advance_cycle(x)
     except CycleError as error:
@@ -957,7 +956,7 @@ def _periodic_steady_state(design, line_voltage=None, load=None, temperature=Non
                            tolerance: float = CIRCUIT_TOLERANCE,
                            initial_state=None, initial_topology=None) -> PeriodicSteadyState:
     from rcc.cycle import bus_voltage as model_bus_voltage, reference_temperature
-    from rcc.engine import (EngineError, advance_cycle, build_circuit, power_on_state,
+    from rcc.engine import (EngineError, build_circuit, power_on_state,
                             simulate)
 
     line = _default_line(design, line_voltage)
