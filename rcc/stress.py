@@ -2,9 +2,8 @@
 
 References
 ----------
-.. [1] C. Basso, *Switch-Mode Power Supplies: SPICE Simulations and
-   Practical Designs*, McGraw-Hill, 2008, ch. 7 (flyback: leakage spike and
-   RCD clamp).
+.. [1] C. Basso, *Switch-Mode Power Supplies*, McGraw-Hill, 2008, ch. 7
+   (flyback: leakage spike and RCD clamp).
 .. [2] C. W. T. McLyman, *Transformer and Inductor Design Handbook*, 3rd ed.,
    Marcel Dekker, 2004, ch. 1-2 (Faraday's law, ``N Ae B = L I``).
 """

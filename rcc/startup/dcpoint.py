@@ -315,8 +315,8 @@ def solve_dc_point(values: CircuitValues, max_iterations: int = 300,
     DC).  The saturation currents follow from the datasheet on-voltages:
     ``I_S = I_ref exp(-V_BE(T) / V_T)``, with ``V_T = kT/q`` and ``V_BE(T)``
     from :func:`rcc.devices.base_emitter_voltage`.  Newton steps are
-    limited to 0.1 V per node (a damping common in circuit simulators,
-    Nagel, "SPICE2", UCB/ERL M520, 1975).
+    limited to 0.1 V per node (junction-voltage limiting: L. W. Nagel,
+    UC Berkeley ERL memorandum M520, 1975).
     """
     v = values
     n = v.size
