@@ -93,14 +93,24 @@ def format_check_report(data: dict) -> str:
     ]), ""]
     startup = data.get("startup")
     if startup:
-        out += ["Start-up", ""]
-        verdict = "starts" if startup.get("starts") else "does NOT start"
-        out.append(f"    {verdict}; holding element: {startup.get('holding_element')}")
-        for key, unit in (("min_start_bus_v", "V"), ("min_start_line_v", "V"),
-                          ("start_time_s", "s"), ("growth_rate_per_s", "1/s"),
-                          ("growth_frequency_hz", "Hz")):
+        out += ["Start-up (lowest line, worst corner of hFE and temperature)", ""]
+        if startup.get("starts"):
+            out.append("    starts: the power-on DC point is unstable")
+        else:
+            out.append(f"    does NOT start: held by {startup.get('holding_element')}")
+        dc = startup.get("dc_point") or {}
+        if dc:
+            out.append(f"    DC point: {dc.get('region')}, Ic {format_si(dc.get('ic_a'), 'A', 3)}, "
+                       f"Ib {format_si(dc.get('ib_a'), 'A', 3)}, limiter "
+                       f"{'on' if dc.get('limiter_active') else 'off'}")
+        rows = (("growth rate", "growth_rate_per_s", lambda v: f"{v:.4g} 1/s"),
+                ("growth frequency", "growth_frequency_hz", lambda v: format_si(v, "Hz", 4)),
+                ("minimum start bus", "min_start_bus_v", lambda v: format_si(v, "V", 4)),
+                ("minimum start line", "min_start_line_v", lambda v: format_si(v, "V", 4)),
+                ("start-up time", "start_time_s", lambda v: format_si(v, "s", 4)))
+        for label, key, show in rows:
             if startup.get(key) is not None:
-                out.append(f"    {key}: {format_si(startup[key], unit, 4)}")
+                out.append(f"    {label}: {show(startup[key])}")
         out.append("")
     out += [f"Findings: verdict {data['verdict'].upper()}", ""]
     if not data["findings"]:
