@@ -43,6 +43,8 @@ __all__ = [
     "LimitsSpec",
     "load_design",
     "design_from_dict",
+    "parse_load",
+    "LOAD_KINDS",
     "default_zener_tempco",
     "DEFAULT_RING_QUALITY",
 ]
@@ -51,6 +53,10 @@ __all__ = [
 #: is given.  Ferrite-cored flyback primaries ring with Q of roughly 10 to 50
 #: at their self-resonance  # from memory
 DEFAULT_RING_QUALITY = 20.0
+
+
+#: Load kinds, each recognised by the dimension of its unit.
+LOAD_KINDS = ("current", "resistance", "power")
 
 
 class DesignError(ValueError):
@@ -364,6 +370,50 @@ class Design:
         return design_from_dict(data, source=self.source)
 
 
+def parse_load(value) -> Load:
+    """Read a load; its unit decides whether it is a current, resistance or power.
+
+    Parameters
+    ----------
+    value : str or Load
+        E.g. ``"0.3 A"``, ``"40 ohm"``, ``"4 W"`` [A], [ohm] or [W]; a
+        :class:`Load` is returned as it is.
+
+    Returns
+    -------
+    Load
+
+    Raises
+    ------
+    ValueError
+        A bare number (the kind would be ambiguous), a negative value, a
+        zero resistance or another unit; the message starts with "expected".
+    """
+    if isinstance(value, Load):
+        return value
+    bare = isinstance(value, (int, float)) and not isinstance(value, bool)
+    if isinstance(value, str):
+        try:
+            float(value)
+            bare = True
+        except ValueError:
+            pass
+    if bare:
+        raise ValueError("expected a load with its unit (give the unit: it decides the "
+                         "kind): a current ('0.5 A'), a resistance ('24 ohm') or a power "
+                         "('6 W')")
+    for kind in LOAD_KINDS:
+        try:
+            number = parse_quantity(value, kind)
+        except UnitError:
+            continue
+        if number < 0 or (kind == "resistance" and number == 0):
+            raise ValueError("expected a non-negative load (a resistance must be positive)")
+        return Load(kind, number)
+    raise ValueError("expected a current ('0.5 A'), a resistance ('24 ohm') or a power "
+                     "('6 W')")
+
+
 def default_zener_tempco(zener_voltage):
     """Relative temperature coefficient of a zener diode from its voltage.
 
@@ -542,23 +592,11 @@ class _Validator:
         return number
 
     def read_load(self, key: Key, value) -> Load | None:
-        if isinstance(value, (int, float)) and not isinstance(value, bool):
-            self.problem(key.path, value, "a load with its unit: a current "
-                         "('0.5 A'), a resistance ('24 ohm') or a power ('6 W')")
+        try:
+            return parse_load(value)
+        except ValueError as error:
+            self.problem(key.path, value, str(error).removeprefix("expected "))
             return None
-        for kind in ("current", "resistance", "power"):
-            try:
-                number = parse_quantity(value, kind)
-            except UnitError:
-                continue
-            if number < 0 or (kind == "resistance" and number == 0):
-                self.problem(key.path, value, "a non-negative load (a resistance "
-                             "must be positive)")
-                return None
-            return Load(kind, number)
-        self.problem(key.path, value, "a current ('0.5 A'), a resistance "
-                     "('24 ohm') or a power ('6 W')")
-        return None
 
     def check_groups(self, values: dict[str, dict[str, Any]]) -> None:
         raw_input = self.data.get("input", {}) if isinstance(self.data.get("input", {}), Mapping) else {}

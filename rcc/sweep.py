@@ -97,19 +97,26 @@ def parse_load_range(text: str, name: str = "--load") -> Load:
     Load
         With an array of values [A], [ohm] or [W].
     """
-    errors = []
-    for kind in ("current", "resistance", "power"):
-        try:
-            values = parse_range(text, kind, name)
-        except ValueError as error:
-            errors.append(str(error))
-            continue
-        if np.any(values < 0) or (kind == "resistance" and np.any(values <= 0)):
+    from rcc.design import parse_load
+
+    parts = text.split(":")
+    expected = (f"{name} {text!r}: expected currents ('0.05A:0.5A:20'), resistances "
+                "('24ohm:240ohm:10') or powers ('1W:6W:6')")
+    if len(parts) not in (1, 3):
+        raise ValueError(expected)
+    try:
+        ends = [parse_load(part) for part in parts[:2]]
+        count = int(parts[2]) if len(parts) == 3 else 1
+    except ValueError as error:
+        if "non-negative" in str(error):
             raise ValueError(f"{name} {text!r}: expected non-negative loads "
-                             "(positive resistances)")
-        return Load(kind, values)
-    raise ValueError(f"{name} {text!r}: expected currents ('0.05A:0.5A:20'), resistances "
-                     "('24ohm:240ohm:10') or powers ('1W:6W:6')")
+                             "(positive resistances)") from None
+        raise ValueError(expected) from None
+    if len({end.kind for end in ends}) != 1:
+        raise ValueError(f"{expected}; both ends of one kind")
+    if count < 1:
+        raise ValueError(f"{name} {text!r}: expected a count of at least 1")
+    return Load(ends[0].kind, np.linspace(ends[0].value, ends[-1].value, count))
 
 
 def sweep(design: Design, line_voltage, load: Load, temperature=None, hfe=None) -> SweepResult:

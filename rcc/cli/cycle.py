@@ -11,28 +11,14 @@ from typing import Optional
 import typer
 
 from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, fail_input, load_or_exit, refuse_overwrite
-
-
-def _parse_line(text: str) -> float:
-    from rcc.units import UnitError, parse_quantity
-
-    try:
-        value = parse_quantity(text, "voltage")
-    except UnitError as error:
-        raise ValueError(f"--line {text!r}: {error}") from None
-    if not (math.isfinite(value) and value > 0):
-        raise ValueError(f"--line {text!r}: expected a positive voltage such as '230 V' "
-                         "(RMS for AC input, DC otherwise)")
-    return value
+from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option
 
 
 @app.command()
 def cycle(
     design_file: Path = typer.Argument(..., help="TOML design file."),
-    line: Optional[str] = typer.Option(None, "--line", help="Line voltage, e.g. 230V: RMS "
-                                       "for AC input, DC otherwise. Default: nominal."),
-    load: Optional[str] = typer.Option(None, "--load", help="Load as a current, resistance "
-                                       "or power, e.g. 0.3A, 40ohm, 4W. Default: nominal."),
+    line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
+    load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write the one-period "
                                         "waveforms (PNG)."),
@@ -44,16 +30,16 @@ def cycle(
     Exit code 0 for a converged stable cycle, 1 when the cycle is unstable,
     not converged or the supply does not oscillate, 2 on bad input.
     """
-    from rcc.engine.pss import (PeriodicSteadyStateError, parse_load,
-                                periodic_steady_state, plot_periodic_steady_state)
+    from rcc.engine.pss import (PeriodicSteadyStateError, periodic_steady_state,
+                                plot_periodic_steady_state)
 
     design = load_or_exit(design_file)
     refuse_overwrite(plot, force)
     if plot is not None and plot.suffix.lower() != ".png":
         raise fail_input(f"--plot {str(plot)!r}: expected a .png file name")
     try:
-        line_voltage = _parse_line(line) if line is not None else None
-        load_value = parse_load(design, load, option="--load") if load is not None else None
+        line_voltage = line_option(design, line)
+        load_value = load_option(design, load)
     except ValueError as error:
         raise fail_input(str(error)) from None
     try:

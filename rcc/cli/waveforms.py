@@ -4,95 +4,20 @@ from the time-domain engine."""
 
 from __future__ import annotations
 
-import math
 from pathlib import Path
 from typing import Optional
 
 import typer
 
 from rcc.cli import EXIT_FINDING_FAILED, app, fail_input, load_or_exit, refuse_overwrite
-
-
-def parse_line_option(design, text: Optional[str]) -> tuple[float, float]:
-    """Line voltage [V] and the DC bus it gives [V].
-
-    ``--line`` is the RMS line voltage for AC input (the bus is its
-    rectified peak minus the bridge drop) or the DC voltage for DC input;
-    default the nominal value.
-    """
-    from rcc.mains import rectified_peak
-    from rcc.units import UnitError, parse_quantity
-
-    if text is None:
-        line = design.input.line_voltages[1]
-    else:
-        try:
-            line = parse_quantity(text, "voltage")
-        except UnitError as error:
-            raise ValueError(f"--line {text!r}: {error}") from None
-        if not (math.isfinite(line) and line > 0):
-            raise ValueError(f"--line {text!r}: expected a positive voltage such as "
-                             "'230 V' (RMS for AC input, DC otherwise)")
-    bus = float(rectified_peak(line, design.input.bridge_drop)) if design.input.is_ac else line
-    if bus <= 0:
-        raise ValueError(f"--line {text!r}: the bus would be {bus:.3g} V after the bridge "
-                         "drop; expected a higher line voltage")
-    return float(line), bus
-
-
-def parse_load_option(design, text: Optional[str]):
-    """A :class:`rcc.design.Load` from '0.3 A', '40 ohm' or '4 W' (default nominal)."""
-    from rcc.design import Load
-    from rcc.units import UnitError, parse_quantity
-
-    if text is None:
-        return design.output.load_nominal
-    try:
-        float(text)
-    except ValueError:
-        pass
-    else:
-        raise ValueError(f"--load {text!r}: give the unit, such as '0.3 A', '40 ohm' or '4 W' "
-                         "(the unit decides whether it is a current, resistance or power)")
-    for kind in ("current", "resistance", "power"):
-        try:
-            value = parse_quantity(text, kind)
-        except UnitError:
-            continue
-        if not (math.isfinite(value) and value >= 0) or (kind == "resistance" and value == 0):
-            raise ValueError(f"--load {text!r}: expected a positive {kind}")
-        return Load(kind, value)
-    raise ValueError(f"--load {text!r}: expected a current, resistance or power with its "
-                     "unit, such as '0.3 A', '40 ohm' or '4 W'")
-
-
-def parse_time_option(text: str) -> float:
-    from rcc.units import UnitError, parse_quantity
-
-    try:
-        value = parse_quantity(text, "time")
-    except UnitError as error:
-        raise ValueError(f"--time {text!r}: {error}") from None
-    if not (math.isfinite(value) and 0 < value <= 10.0):
-        raise ValueError(f"--time {text!r}: expected a duration in (0, 10 s], such as '20 ms'")
-    return value
-
-
-def nominal_temperature(design) -> float:
-    """25 degC, moved into the design's ambient range if outside it [K]."""
-    from rcc.devices import REFERENCE_TEMPERATURE
-
-    env = design.environment
-    return float(min(max(REFERENCE_TEMPERATURE, env.temperature_min), env.temperature_max))
+from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option, time_option
 
 
 @app.command()
 def waveforms(
     design_file: Path = typer.Argument(..., help="TOML design file."),
-    line: Optional[str] = typer.Option(None, "--line", help="Line voltage, e.g. 230V: RMS "
-                                       "for AC input, DC otherwise. Default: nominal."),
-    load: Optional[str] = typer.Option(None, "--load", help="Load as a current, resistance "
-                                       "or power, e.g. 0.3A, 40ohm, 4W. Default: nominal."),
+    line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
+    load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on."),
     from_dc_point: bool = typer.Option(False, "--from-dc-point", help="Start from the DC "
                                        "operating point instead of discharged capacitors."),
@@ -107,19 +32,26 @@ def waveforms(
     storm or an inconsistent circuit, 2 on bad input.
     """
     design = load_or_exit(design_file)
+    from rcc.cycle import bus_voltage as no_load_bus, reference_temperature
+
     try:
-        line_voltage, bus_voltage = parse_line_option(design, line)
-        load_value = parse_load_option(design, load)
-        duration = parse_time_option(time)
+        line_voltage = line_option(design, line)
+        load_value = load_option(design, load)
+        duration = time_option(time)
     except ValueError as error:
         raise fail_input(str(error)) from None
+    # the bus is held at its no-load value: the rectified peak for AC input
+    bus_voltage = float(no_load_bus(design, line_voltage))
+    if bus_voltage <= 0:
+        raise fail_input(f"--line {line!r}: the bus would be {bus_voltage:.3g} V after the "
+                         "bridge drop; expected a higher line voltage")
     if plot is not None and plot.suffix.lower() != ".png":
         raise fail_input(f"--plot {str(plot)!r}: expected a .png file name")
     refuse_overwrite(plot, force)
     refuse_overwrite(csv, force)
     from rcc.engine import EngineError, build_circuit, dc_initial_state, simulate
 
-    temperature = nominal_temperature(design)
+    temperature = reference_temperature(design)
     circuit = build_circuit(design, bus_voltage, load_value, temperature)
     try:
         x0 = dc_initial_state(circuit, from_dc_point=from_dc_point)

@@ -575,25 +575,14 @@ def parse_load(design, load, option: str = "load") -> Load:
     ValueError
         Naming the option, the value and what was expected.
     """
+    from rcc.design import parse_load as read_load
+
     if load is None:
         return design.output.load_nominal
-    if isinstance(load, Load):
-        return load
-    from rcc.units import UnitError, parse_quantity
-
-    expected = ("expected a current ('0.5 A'), a resistance ('24 ohm') or a power "
-                "('6 W'), with its unit")
-    if isinstance(load, str) and load.strip()[-1:].isalpha():
-        for kind in ("current", "resistance", "power"):
-            try:
-                value = parse_quantity(load, kind)
-            except UnitError:
-                continue
-            if not np.isfinite(value) or value < 0 or (kind == "resistance" and value == 0):
-                raise ValueError(f"{option} {load!r}: expected a non-negative load "
-                                 "(a resistance must be positive)")
-            return Load(kind, value)
-    raise ValueError(f"{option} {load!r}: {expected}")
+    try:
+        return read_load(load)
+    except ValueError as error:
+        raise ValueError(f"{option} {load!r}: {error}") from None
 
 
 def _switch_state_names(circuit):
