@@ -324,11 +324,7 @@ def hold_output_voltage(design: Design, temperature):
 
 def _load_power(load, output_voltage):
     if isinstance(load, Load):
-        if load.kind == "current":
-            return load.value * output_voltage
-        if load.kind == "resistance":
-            return output_voltage**2 / load.value
-        return np.full_like(output_voltage, load.value)
+        return load.power(output_voltage)
     return np.asarray(load, dtype=float) * output_voltage
 
 

@@ -98,6 +98,13 @@ class Load:
         with np.errstate(divide="ignore", invalid="ignore"):
             return np.where(output_voltage > 0, self.value / np.maximum(output_voltage, 1e-300), 0.0)
 
+    def power(self, output_voltage):
+        """Load power at ``output_voltage`` [V] -> [W]."""
+        output_voltage = np.asarray(output_voltage, dtype=float)
+        if self.kind == "power":
+            return np.full_like(output_voltage, self.value)
+        return output_voltage * self.current(output_voltage)
+
     def text(self) -> str:
         unit = {"current": "A", "resistance": "ohm", "power": "W"}[self.kind]
         return f"{self.value:.6g} {unit}"

@@ -382,15 +382,13 @@ Device = _Device
 # ------------------------------------------------------------- the builder
 def _expected_output_voltage(design: Design, temperature: float) -> float:
     """Output voltage the regulation aims at, for load breakpoints only [V]."""
+    from rcc.cycle import hold_output_voltage
+
     if design.output.voltage_target is not None:
         return design.output.voltage_target
-    reg = design.regulation
-    if reg.method == "feedback-winding":
-        vz = float(devices.zener_voltage(reg.zener_voltage, reg.zener_tempco, temperature))
-        return (design.transformer.output_turns / design.transformer.feedback_turns) * (
-            vz + design.limiter.vbe + reg.rectifier_drop) - design.output.rectifier_drop
-    if reg.method == "optocoupler":
-        return reg.reference_voltage + reg.led_drop
+    hold = hold_output_voltage(design, temperature)
+    if hold is not None:
+        return float(hold)
     return 12.0  # no regulation and no target: breakpoints only  # common practice
 
 

@@ -844,12 +844,9 @@ def _default_line(design, line_voltage):
 
 
 def _model_point(design, line, load, temperature, hfe):
-    """The cycle model's operating point (bus voltage and warm-start values),
-    or None if the cycle model is not available or not running there."""
-    try:
-        from rcc.cycle import operating_points
-    except ImportError:  # pragma: no cover - cycle model always present in the package
-        return None
+    """The cycle model's operating point (bus voltage and warm-start values)."""
+    from rcc.cycle import operating_points
+
     # one-element arrays: the vectorized model is exercised on arrays
     point = operating_points(design, np.atleast_1d(float(line)), load,
                              np.atleast_1d(float(temperature)), np.atleast_1d(float(hfe)))
@@ -944,7 +941,7 @@ def _periodic_steady_state(design, line_voltage=None, load=None, temperature=Non
                            max_iterations: int = 12, fallback_cycles: int = 5000,
                            tolerance: float = CIRCUIT_TOLERANCE,
                            initial_state=None, initial_topology=None) -> PeriodicSteadyState:
-    from rcc.cycle import bus_voltage as model_bus_voltage, reference_temperature
+    from rcc.cycle import reference_temperature
     from rcc.engine import (EngineError, build_circuit, power_on_state,
                             simulate)
 
@@ -955,18 +952,16 @@ def _periodic_steady_state(design, line_voltage=None, load=None, temperature=Non
     hfe_value = design.switch.hfe_typ if hfe is None else float(hfe)
     point = _model_point(design, line, load, temperature, hfe_value)
     if bus_voltage is None:
-        if design.input.is_ac:
-            power = float(np.ravel(point.input_power)[0]) if point is not None else 0.0
-            bus_voltage = float(np.ravel(model_bus_voltage(design, line, power))[0])
-        else:
-            bus_voltage = line
+        # the bus the cycle model computed this point at (the bulk valley for
+        # AC input), so that the two models are compared on the same bus
+        bus_voltage = float(np.ravel(point.bus_voltage)[0])
     circuit = build_circuit(design, float(bus_voltage), load, float(temperature), hfe_value)
     names = circuit.state_names
 
     try:
         if initial_state is None:
             x = power_on_state(circuit)
-            if point is not None and bool(np.ravel(point.running)[0]):
+            if bool(np.ravel(point.running)[0]):
                 vo = float(np.ravel(point.output_voltage)[0])
                 x[names.index("v_output_capacitor")] = vo
                 if "v_aux" in names:
