@@ -32,7 +32,7 @@ def test_lc_ring_zero_crossings_at_known_times():
         [Element("C", "c1", "n", "0", capacitance, state="v"),
          Element("L", "l1", "n", "0", inductance, state="i")],
         [comparator("sign", (("v", "n", 1.0),), 0.0, 1e-12)],
-        ("v", "i"), parameters={"gmin": 0.0})
+        ("v", "i"), parameters={"node_leak_conductance": 0.0})
     omega = 1.0 / math.sqrt(inductance * capacitance)
     trace = simulate(network, [1.0, 0.0], 10.2 * math.pi / omega, record=False)
     expected = (np.arange(10) + 0.5) * math.pi / omega
@@ -58,7 +58,7 @@ def test_rl_ramp_reaches_threshold_at_closed_form_time():
          Element("R", "r1", "a", "b", resistance),
          Element("L", "l1", "b", "0", inductance, state="i")],
         [comparator("trip", (("x", "i", -1.0),), -threshold, 1e-12)],
-        ("i",), parameters={"gmin": 0.0})
+        ("i",), parameters={"node_leak_conductance": 0.0})
     trace = simulate(network, [0.0], 1e-3, record=True)
     # the engine switches once the guard is below minus its tolerance
     # (1e-12 A here): the closed-form instant of i = threshold + 1e-12 A

@@ -64,8 +64,8 @@ by secants of the hyperbola ``i = P / v`` between geometrically spaced
 breakpoints (relative current error below 0.3 %), a resistance through the
 origin below the first breakpoint and a constant current above the last.
 
-A conductance ``GMIN`` from every node to ground keeps the nodal matrix
-regular in every topology  # common practice in circuit simulators
+A conductance ``NODE_LEAK_CONDUCTANCE`` from every node to ground keeps the
+nodal matrix regular in every topology  # common practice in nodal analysis
 
 References
 ----------
@@ -98,7 +98,7 @@ __all__ = [
 ]
 
 #: Conductance from every node to ground [S]  # common practice (gmin)
-GMIN = 1e-12
+NODE_LEAK_CONDUCTANCE = 1e-12
 #: Base spreading resistance of the switch [ohm]  # from memory: a few ohms for power BJTs
 SWITCH_BASE_RESISTANCE = 2.0
 #: Collector-emitter resistance added to Vce,sat in saturation [ohm]  # common practice
@@ -635,7 +635,8 @@ def build_network(elements, devices_, state_names, signals=None, parameters=None
     signals : dict, optional
         Signal name -> callable(device states by name) -> term list.
     parameters : dict, optional
-        ``"gmin"`` overrides the node-to-ground conductance :data:`GMIN` [S]
+        ``"node_leak_conductance"`` overrides the node-to-ground conductance
+        :data:`NODE_LEAK_CONDUCTANCE` [S]
         (0 for closed-form checks on networks without floating nodes).
 
     Returns
@@ -735,7 +736,8 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
     G = np.zeros((size, size))
     Bx = np.zeros((size, n))
     B0 = np.zeros(size)
-    G[np.arange(n_nodes), np.arange(n_nodes)] += circuit.parameters.get("gmin", GMIN)
+    G[np.arange(n_nodes), np.arange(n_nodes)] += circuit.parameters.get(
+        "node_leak_conductance", NODE_LEAK_CONDUCTANCE)
     primary = ("m", "c")
 
     def add(row, col, value):

@@ -43,8 +43,8 @@ REVERSE_GAIN = 1.0
 CUTOFF_CURRENT = 1e-6
 
 #: Shunt conductance from every node to ground that keeps the Jacobian
-#: regular when a transistor is fully off [S] (circuit-simulator habit).
-_GMIN = 1e-12
+#: regular when a transistor is fully off [S] (common practice in nodal analysis).
+_NODE_LEAK_CONDUCTANCE = 1e-12
 
 #: Largest change of a node voltage in one Newton step [V]: about four
 #: thermal voltages, so the junction exponentials change by at most e^4.
@@ -345,9 +345,9 @@ def solve_dc_point(values: CircuitValues, max_iterations: int = 300,
         r_p, v_bus = sel(rp), sel(vbus)
         ie1 = ic1 + ib1
         f = np.empty_like(xa)
-        f[:, 0] = g_st * (vb - v_bus) + g_be * (vb - ve) + ib1 + ic2 + _GMIN * vb
-        f[:, 1] = -ie1 + g_be * (ve - vb) + g_s * ve + g_lb * (ve - vl) + _GMIN * ve
-        f[:, 2] = g_lb * (vl - ve) + ib2 + _GMIN * vl
+        f[:, 0] = g_st * (vb - v_bus) + g_be * (vb - ve) + ib1 + ic2 + _NODE_LEAK_CONDUCTANCE * vb
+        f[:, 1] = -ie1 + g_be * (ve - vb) + g_s * ve + g_lb * (ve - vl) + _NODE_LEAK_CONDUCTANCE * ve
+        f[:, 2] = g_lb * (vl - ve) + ib2 + _NODE_LEAK_CONDUCTANCE * vl
         f[:, 3] = r_p * ic1 - (v_bus - vc)
         jac = np.zeros((xa.shape[0], 4, 4))
         # derivatives of Q1 currents w.r.t. (vb, ve, vc): vbe = vb - ve, vbc = vb - vc
@@ -357,17 +357,17 @@ def solve_dc_point(values: CircuitValues, max_iterations: int = 300,
         # Q2: vbe2 = vl, vbc2 = vl - vb
         dic2_dvb, dic2_dvl = -b2, a2 + b2
         dib2_dvb, dib2_dvl = -d2, c2 + d2
-        jac[:, 0, 0] = g_st + g_be + dib1[0] + dic2_dvb + _GMIN
+        jac[:, 0, 0] = g_st + g_be + dib1[0] + dic2_dvb + _NODE_LEAK_CONDUCTANCE
         jac[:, 0, 1] = -g_be + dib1[1]
         jac[:, 0, 2] = dic2_dvl
         jac[:, 0, 3] = dib1[2]
         jac[:, 1, 0] = -die1[0] - g_be
-        jac[:, 1, 1] = -die1[1] + g_be + g_s + g_lb + _GMIN
+        jac[:, 1, 1] = -die1[1] + g_be + g_s + g_lb + _NODE_LEAK_CONDUCTANCE
         jac[:, 1, 2] = -g_lb
         jac[:, 1, 3] = -die1[2]
         jac[:, 2, 0] = dib2_dvb
         jac[:, 2, 1] = -g_lb
-        jac[:, 2, 2] = g_lb + dib2_dvl + _GMIN
+        jac[:, 2, 2] = g_lb + dib2_dvl + _NODE_LEAK_CONDUCTANCE
         jac[:, 3, 0] = r_p * dic1[0]
         jac[:, 3, 1] = r_p * dic1[1]
         jac[:, 3, 3] = r_p * dic1[2] + 1.0
