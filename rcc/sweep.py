@@ -204,13 +204,13 @@ def plot_sweep(result: SweepResult, ax=None, temperature_index: int = 0):
     p = result.points
     x = result.load.value
     unit = {"current": "A", "resistance": "ohm", "power": "W"}[result.load.kind]
-    quantities = [("frequency", 1e-3, "frequency [kHz]"),
+    quantities = [("frequency", 1e-3, "frequency [kHz]\n(average over bursts)"),
                   ("output_voltage", 1.0, "output [V]"),
                   ("peak_current", 1.0, "peak current [A]")]
     for axis, (name, scale, label) in zip(ax, quantities):
         for j, line in enumerate(result.line_voltage):
             y = getattr(p, name)[temperature_index, j] * scale
-            (curve,) = axis.plot(x, y, "-", lw=1.2, label=f"{line:.0f} V")
+            (curve,) = axis.plot(x, y, "-", lw=1.2, label=f"{line:.0f}")
             for k in range(x.size):
                 mode = p.mode[temperature_index, j, k]
                 on_end = str(p.on_end[temperature_index, j, k])
@@ -220,7 +220,8 @@ def plot_sweep(result: SweepResult, ax=None, temperature_index: int = 0):
                 axis.plot(x[k], y[k], marker, color=curve.get_color(), mfc=face, ms=4)
         axis.set_ylabel(label)
         axis.grid(True, alpha=0.3)
-    ax[0].legend(title="line", fontsize=8)
+    line_title = "line [V RMS]" if result.design.input.is_ac else "bus [V DC]"
+    ax[0].legend(title=line_title, fontsize=8)
     ax[0].set_title(f"{result.design.title}\nmarkers: square drive, triangle limit, circle "
                     "regulation, x burst; open = drive-timed off", fontsize=9)
     ax[-1].set_xlabel(f"load [{unit}]")
