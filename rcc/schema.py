@@ -87,7 +87,7 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
        "Bulk (reservoir) capacitor after the bridge (AC input).", required=False),
     _q("input", "bridge_drop", "voltage",
        "Forward drop of the two conducting bridge diodes together.",
-       required=False, default=1.6, constraint="nonnegative"),
+       required=False, default=1.6, constraint="nonnegative"),  # 2 x 0.8 V, common practice
     _q("input", "dc_min", "voltage", "Lowest DC bus voltage (DC input).", required=False),
     _q("input", "dc_nominal", "voltage", "Nominal DC bus voltage (DC input).",
        required=False),
@@ -99,7 +99,7 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
     _q("switch", "hfe_typ", "dimensionless", "Typical DC current gain at 25 degC."),
     _q("switch", "hfe_max", "dimensionless", "Highest DC current gain at 25 degC."),
     _q("switch", "vbe", "voltage", "Base-emitter on voltage at 25 degC.",
-       required=False, default=0.7),
+       required=False, default=0.7),  # silicon junction, common practice
     _q("switch", "vbe_tempco", "voltage per kelvin",
        "Temperature coefficient of the base-emitter voltage.",
        required=False, default=-2e-3, constraint="any"),
@@ -120,7 +120,7 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
     _q("switch", "vebo", "voltage",
        "Emitter-base breakdown voltage; the base is clamped at minus this value "
        "when the feedback winding drives it hard negative.",
-       required=False, default=7.0),
+       required=False, default=7.0),  # VEBO of HV switching transistors 5-9 V, from memory
     _q("switch", "ic_max", "current", "Collector current rating."),
     # -------------------------------------------------------- transformer
     _q("transformer", "primary_turns", "dimensionless", "Primary turns."),
@@ -139,11 +139,11 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
        constraint="nonnegative"),
     _q("transformer", "winding_capacitance", "capacitance",
        "Primary self-capacitance (lumped across the primary).",
-       required=False, default=20e-12, constraint="nonnegative"),
+       required=False, default=20e-12, constraint="nonnegative"),  # small flyback, from memory
     _q("transformer", "core_area", "area", "Effective core cross-section Ae."),
     _q("transformer", "saturation_flux_density", "flux density",
        "Saturation flux density of the core material at the highest temperature.",
-       required=False, default=0.39),
+       required=False, default=0.39),  # MnZn power ferrite near 100 degC, from memory
     _q("transformer", "primary_resistance", "resistance",
        "Primary winding DC resistance.", required=False, default=0.0,
        constraint="nonnegative"),
@@ -156,7 +156,7 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
        "Start-up resistor from the bus to the switch base."),
     _q("startup", "power_rating", "power",
        "Power rating of the start-up resistor (the check allows half of it).",
-       required=False, default=0.25),
+       required=False, default=0.25),  # a 1/4 W part, common practice
     # -------------------------------------------------------------- drive
     _q("drive", "resistance", "resistance",
        "Series resistor from the feedback winding to the base."),
@@ -167,14 +167,14 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
     # ------------------------------------------------------------ limiter
     _q("limiter", "sense_resistance", "resistance", "Emitter (current-sense) resistor."),
     _q("limiter", "vbe", "voltage", "Limiter transistor base-emitter on voltage at 25 degC.",
-       required=False, default=0.6),
+       required=False, default=0.6),  # about 0.6 V over the sense resistor, common practice
     _q("limiter", "vbe_tempco", "voltage per kelvin",
        "Temperature coefficient of the limiter base-emitter voltage.",
        required=False, default=-2e-3, constraint="any"),
     _q("limiter", "base_resistance", "resistance",
        "Resistor from the sense resistor to the limiter base."),
     _q("limiter", "hfe", "dimensionless", "Limiter transistor current gain.",
-       required=False, default=100.0),
+       required=False, default=100.0),  # small-signal NPN, common practice
     # --------------------------------------------------------- regulation
     _c("regulation", "method", ("feedback-winding", "optocoupler", "none"),
        "Regulation path.", default="none"),
@@ -189,7 +189,7 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
        "(optocoupler).", required=False),
     _q("regulation", "rectifier_drop", "voltage",
        "Drop of the diode rectifying the feedback winding.", required=False,
-       default=0.7, constraint="nonnegative"),
+       default=0.7, constraint="nonnegative"),  # silicon diode, common practice
     _q("regulation", "filter_capacitance", "capacitance",
        "Capacitor the feedback winding is rectified onto.", required=False),
     _q("regulation", "reference_voltage", "voltage",
@@ -197,11 +197,11 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
     _q("regulation", "ctr", "dimensionless",
        "Optocoupler current transfer ratio.", required=False),
     _q("regulation", "led_drop", "voltage", "Optocoupler LED forward drop.",
-       required=False, default=1.1, constraint="nonnegative"),
+       required=False, default=1.1, constraint="nonnegative"),  # infrared LED, from memory
     # ------------------------------------------------------------- output
     _q("output", "voltage_target", "voltage", "Intended output voltage.", required=False),
     _q("output", "rectifier_drop", "voltage", "Output rectifier forward drop.",
-       required=False, default=0.7, constraint="nonnegative"),
+       required=False, default=0.7, constraint="nonnegative"),  # common practice
     _q("output", "capacitance", "capacitance", "Output capacitor."),
     _q("output", "esr", "resistance", "Output capacitor ESR.", required=False,
        default=0.0, constraint="nonnegative"),
@@ -226,7 +226,7 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
     _q("limits", "voltage_derating", "dimensionless",
        "Fraction of the switch voltage rating allowed (0.8: ECSS-Q-ST-30-11C "
        "about 80 %; NASA EEE-INST-002 about 75 % for bipolar transistors).",
-       required=False, default=0.8, constraint="unit-interval"),
+       required=False, default=0.8, constraint="unit-interval"),  # both sources from memory
     _q("limits", "flux_margin", "dimensionless",
        "Fraction of the saturation flux density allowed at the worst-case peak "
        "current (0.8 leaves 20 % for inductance and core-area tolerance).",
