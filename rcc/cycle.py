@@ -40,7 +40,7 @@ from rcc.design import Design, Load
 from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain,
                           storage_time_rising_current)
 from rcc.limiter import (auxiliary_voltage, regulation_current, trip_current)
-from rcc.mains import bulk_valley, rectified_peak
+from rcc.mains import bus_voltage
 from rcc.flyback import reflected_voltage
 
 __all__ = [
@@ -50,7 +50,6 @@ __all__ = [
     "ON_END",
     "OFF_END",
     "operating_points",
-    "bus_voltage",
     "reference_temperature",
     "hold_output_voltage",
     "limit_power_capability",
@@ -253,36 +252,6 @@ def reference_temperature(design: Design) -> float:
     """
     return float(np.clip(REFERENCE_TEMPERATURE, design.environment.temperature_min,
                          design.environment.temperature_max))
-
-
-def bus_voltage(design: Design, line_voltage, input_power=0.0):
-    """Bus voltage for a line voltage and input power.
-
-    Parameters
-    ----------
-    design : Design
-        The design.
-    line_voltage : float or array_like
-        RMS line voltage (AC input) or DC voltage (DC input) [V].
-    input_power : float or array_like, default 0
-        Power drawn from the bulk capacitor [W].
-
-    Returns
-    -------
-    ndarray
-        Bulk-capacitor valley (AC input) or the DC voltage [V].
-
-    Notes
-    -----
-    AC input: :func:`rcc.mains.rectified_peak` then
-    :func:`rcc.mains.bulk_valley` (energy balance over a half line cycle).
-    """
-    line_voltage = np.asarray(line_voltage, dtype=float)
-    if not design.input.is_ac:
-        return line_voltage + 0.0 * np.asarray(input_power, dtype=float)
-    peak = rectified_peak(line_voltage, design.input.bridge_drop)
-    return bulk_valley(peak, input_power, design.input.bulk_capacitance,
-                       design.input.line_frequency)
 
 
 def hold_output_voltage(design: Design, temperature):

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["rectified_peak", "bulk_valley", "bus_voltage_range"]
+__all__ = ["rectified_peak", "bulk_valley", "bus_voltage", "bus_voltage_range"]
 
 
 def rectified_peak(line_rms, bridge_drop=0.0):
@@ -62,20 +62,47 @@ def bulk_valley(peak_voltage, input_power, bulk_capacitance, line_frequency):
     return np.sqrt(np.maximum(peak * peak - drop, 0.0))
 
 
+def bus_voltage(design, line_voltage, input_power=0.0):
+    """Bus voltage for a line voltage and input power.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    line_voltage : float or array_like
+        RMS line voltage (AC input) or DC voltage (DC input) [V].
+    input_power : float or array_like, default 0
+        Power drawn from the bulk capacitor [W].
+
+    Returns
+    -------
+    ndarray
+        Bulk-capacitor valley (AC input) or the DC voltage [V].
+
+    Notes
+    -----
+    AC input: :func:`rcc.mains.rectified_peak` then
+    :func:`rcc.mains.bulk_valley` (energy balance over a half line cycle).
+    """
+    line_voltage = np.asarray(line_voltage, dtype=float)
+    if not design.input.is_ac:
+        return line_voltage + 0.0 * np.asarray(input_power, dtype=float)
+    peak = rectified_peak(line_voltage, design.input.bridge_drop)
+    return bulk_valley(peak, input_power, design.input.bulk_capacitance,
+                       design.input.line_frequency)
+
+
 def bus_voltage_range(design):
-    """Highest bus voltage the switch can see, and the no-load bus for each line.
+    """Bus voltage at no load for the design's min, nominal and max line.
 
     Parameters
     ----------
     design : rcc.design.Design
+        The design.
 
     Returns
     -------
     ndarray, shape (3,)
-        Bus voltage at no load for min, nominal and max line [V] (rectified
-        peak for AC input, the DC value for DC input).
+        Rectified peak for AC input, the DC value for DC input [V].
     """
-    lines = np.array(design.input.line_voltages, dtype=float)
-    if design.input.is_ac:
-        return rectified_peak(lines, design.input.bridge_drop)
-    return lines
+    return bus_voltage(design, design.input.line_voltages)

@@ -32,7 +32,8 @@ def waveforms(
     storm or an inconsistent circuit, 2 on bad input.
     """
     design = load_or_exit(design_file)
-    from rcc.cycle import bus_voltage as no_load_bus, reference_temperature
+    from rcc.cycle import reference_temperature
+    from rcc.mains import bus_voltage as no_load_bus
 
     try:
         line_voltage = line_option(design, line)

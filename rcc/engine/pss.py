@@ -878,7 +878,7 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
     bus_voltage : float, optional
         DC bus voltage [V]; default: the DC input, or for AC input the
         bulk-capacitor valley at the cycle model's input power
-        (:func:`rcc.cycle.bus_voltage`), the operating point the cycle
+        (:func:`rcc.mains.bus_voltage`), the operating point the cycle
         model describes.
     warmup_cycles : int
         Switching cycles of the warm-up transient [1].
