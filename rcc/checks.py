@@ -127,16 +127,11 @@ class CheckReport:
         return result
 
 
-def report_grid(design: Design):
-    """Lines (3,1) and loads for the report grid."""
-    lines = np.array(design.input.line_voltages, dtype=float)[:, None]
-    return lines
-
-
 def _grid_points(design: Design, temperature=None, hfe=None) -> cycle.OperatingPoints:
-    lines = report_grid(design)
+    """Report grid: (min, nominal, max line) x (min, nominal, max load)."""
+    lines = np.array(design.input.line_voltages, dtype=float)
     output = design.output
-    columns = [cycle.operating_points(design, lines[:, 0], load, temperature, hfe)
+    columns = [cycle.operating_points(design, lines, load, temperature, hfe)
                for load in (output.load_min, output.load_nominal, output.load_max)]
     return _stack(columns)
 
@@ -238,9 +233,13 @@ def _switch_and_core(design, high_line, findings) -> Stress:
         spike = max(above_bus - reflected, 0.0)
         how = f"zener clamp at {clamp.voltage:.0f} V above the bus"
     elif clamp.type == "rcd":
-        energy_rate = max(float(np.max(a.peak_current**2 * a.frequency)) for a in high_line)
+        # the clamp charges most where the leakage energy rate Ipk^2 f is highest
+        rate = np.concatenate([np.ravel(a.peak_current**2 * a.frequency) for a in high_line])
+        worst = int(np.argmax(rate))
+        peak = np.concatenate([np.ravel(a.peak_current) for a in high_line])[worst]
+        frequency = np.concatenate([np.ravel(a.frequency) for a in high_line])[worst]
         clamp_voltage = float(stress.rcd_clamp_voltage(
-            reflected, tr.leakage_inductance, 1.0, energy_rate, clamp.resistance))
+            reflected, tr.leakage_inductance, peak, frequency, clamp.resistance))
         spike = clamp_voltage - reflected
         how = f"RCD clamp settling at {clamp_voltage:.0f} V above the bus"
     else:
