@@ -50,9 +50,6 @@ def library_modules():
 #: (listed for the module owners; strict xfail, so fixing one makes its
 #: entry fail here until it is removed from this list).
 KNOWN_GAPS = {
-    "rcc.engine.simulate.simulate": "'x0' (state vector) without units",
-    "rcc.engine.simulate.advance_cycle": "'x0' (state vector) without units",
-    "rcc.engine.simulate.segment_energy": "'x0' (state vector) without units",
     "rcc.engine.simulate.simulate_reference": "'x0' (state vector) without units",
     "rcc.engine.simulate.expm_flushed": "'matrix' without units",
 }

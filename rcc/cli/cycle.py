@@ -81,6 +81,8 @@ def format_cycle(title: str, result) -> str:
         ("method", f"{result.method}, {result.iterations} iterations, "
                    f"residual {result.residual:.2g}"),
         ("stable", "yes" if result.stable else "NO"),
+        ("power", f"{result.power.input:.4g} W in, {result.power.output:.4g} W out, "
+                  f"{result.power.loss:.4g} W lost"),
     ]
     lines = [title]
     width = max(len(name) for name, _ in rows)
@@ -88,6 +90,10 @@ def format_cycle(title: str, result) -> str:
     lines.append("  Floquet multipliers (|m|, angle):")
     for m in result.multipliers[:6]:
         lines.append(f"    {abs(m):.6f}  {math.degrees(math.atan2(m.imag, m.real)):+.1f} deg")
+    shown = [(name, watts) for name, watts in result.power.losses.items()
+             if watts >= 0.01 * result.power.loss]
+    lines.append("  losses (1 % of the total and above): " + ", ".join(
+        f"{name.replace('_', ' ')} {watts * 1e3:.3g} mW" for name, watts in shown))
     lines.append(f"  events: {' '.join(result.event_sequence)}")
     for flag in result.flags:
         lines.append(f"  note: {flag}")

@@ -238,6 +238,12 @@ class Topology:
         the bus (``"input"``), taken by the load (``"output"``), dissipated
         in all other elements (``"loss"``) and flowing into the reactive
         elements (``"stored"``) [W].
+    loss_forms : dict of str to ndarray, shape (n+1, n+1)
+        The ``"loss"`` form split by element: fixed elements under their own
+        name (``"sense"``, ``"drive"``, ``"clamp"``, ...), the elements of a
+        device under the device name (``"switch"``, ``"limiter"``,
+        ``"clamp_diode"``, ...).  The windings of the ideal transformer
+        absorb no net power, so these sum to ``power_forms["loss"]`` [W].
     """
 
     code: int
@@ -256,6 +262,7 @@ class Topology:
     signal_matrix: np.ndarray
     signal_offset: np.ndarray
     power_forms: dict = field(repr=False)
+    loss_forms: dict = field(repr=False, default_factory=dict)
 
     def signals(self, x):
         """Named signals at state(s) ``x`` (shape (n,) or (k, n))."""
@@ -836,7 +843,9 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
         if name in circuit._signals:
             sm[row], so[row] = linear(circuit._signals[name](active))
 
-    power_forms = _power_forms(circuit, elements, nodes, branch_index, linear, n)
+    owner = {el.name: device.name for device in circuit._devices for st in device.states
+             for el in st.elements}
+    power_forms, loss_forms = _power_forms(elements, owner, linear, n)
     return Topology(
         code=code, device_states=device_states, label=circuit.label(code),
         A=A, b=bvec,
@@ -848,12 +857,13 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
         guard_deep=np.array([g.deep if g.deep > 0 else 1000.0 * g.tolerance
                              for _, g in guards]),
         guard_names=tuple(g.name for _, g in guards),
-        signal_matrix=sm, signal_offset=so, power_forms=power_forms,
+        signal_matrix=sm, signal_offset=so, power_forms=power_forms, loss_forms=loss_forms,
     )
 
 
-def _power_forms(circuit, elements, nodes, branch_index, linear, n):
-    """Quadratic forms in [x, 1] of input, output, loss and stored power.
+def _power_forms(elements, owner, linear, n):
+    """Quadratic forms in [x, 1] of input, output, loss and stored power,
+    and the loss split by element (device elements under ``owner[name]``).
 
     Every element's absorbed power is (voltage across) x (current through),
     both affine in x; Tellegen's theorem makes their sum zero, so input =
@@ -869,6 +879,7 @@ def _power_forms(circuit, elements, nodes, branch_index, linear, n):
         return 0.5 * (form + form.T)
 
     forms = {key: np.zeros((n + 1, n + 1)) for key in ("input", "output", "loss", "stored")}
+    losses = {}
     for el in elements:
         voltage = aug((("v", el.a, 1.0), ("v", el.b, -1.0)))
         if el.kind in ("R", "Rneg"):
@@ -894,13 +905,16 @@ def _power_forms(circuit, elements, nodes, branch_index, linear, n):
             forms["stored"] += absorbed
         else:
             forms["loss"] += absorbed
+            if el.kind != "W":  # the ideal windings absorb no net power
+                key = owner.get(el.name, el.name)
+                losses[key] = losses.get(key, 0.0) + absorbed
     # ideal transformer primary (current -sum ratio_k i_k from m to c)
     if not any(el.kind == "W" for el in elements):
-        return forms
+        return forms, losses
     primary_voltage = aug((("v", "m", 1.0), ("v", "c", -1.0)))
     current = np.zeros(n + 1)
     for el in elements:
         if el.kind == "W":
             current -= el.value * aug((("i", el.name, 1.0),))
     forms["loss"] += product(primary_voltage, current)
-    return forms
+    return forms, losses

@@ -47,6 +47,7 @@ import numpy as np
 
 from rcc.design import Load
 from rcc.engine.circuit import EngineError
+from rcc.engine.simulate import CyclePower, cycle_power
 from rcc.engine.floquet import (
     CycleData,
     CycleError,
@@ -493,6 +494,9 @@ class PeriodicSteadyState:
     scale : ndarray
         Typical magnitude of each state variable used for the residual
         [state units].
+    power : CyclePower
+        Exact power balance of the cycle: bus input, load output and the
+        loss in every element [W].
     """
 
     line_voltage: float
@@ -522,6 +526,7 @@ class PeriodicSteadyState:
     jacobian: np.ndarray
     turn_on_topology: int
     scale: np.ndarray
+    power: CyclePower
 
     def to_json(self) -> dict:
         """JSON-ready summary (SI units, temperature in degC, no NaN)."""
@@ -548,6 +553,9 @@ class PeriodicSteadyState:
             "iterations": int(self.iterations),
             "converged": bool(self.converged),
             "residual": float(self.residual),
+            "input_power_w": self.power.input,
+            "output_power_w": self.power.output,
+            "losses_w": dict(self.power.losses),
             "event_sequence": list(self.event_sequence),
             "state_at_turn_on": {name: float(v) for name, v in zip(self.state_names, self.state)},
         }
@@ -1126,6 +1134,7 @@ def _summarise(design, circuit, line, bus, load, temperature, hfe, orbit, final,
         jacobian=np.asarray(orbit.jacobian, dtype=float),
         turn_on_topology=int(topology),
         scale=np.asarray(scale, dtype=float),
+        power=cycle_power(circuit, final),
     )
 
 

@@ -62,6 +62,10 @@ __all__ = [
     "advance_cycle",
     "power_on_state",
     "segment_energy",
+    "segment_losses",
+    "cycle_power",
+    "CyclePower",
+    "segment_state_integral",
     "simulate_reference",
     "expm_flushed",
     "MIN_STEP",
@@ -727,7 +731,7 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
     ----------
     circuit : Circuit
     x0 : array_like, shape (n,)
-        Initial state (order ``circuit.state_names``).
+        Initial state (order ``circuit.state_names``) [state units].
     t_end : float
         End time [s].
     max_events : int
@@ -904,7 +908,7 @@ def advance_cycle(circuit: Circuit, x0, topology: int, max_time: float = 1e-2) -
     ----------
     circuit : Circuit
     x0 : array_like, shape (n,)
-        State at a switch turn-on event.
+        State at a switch turn-on event [state units].
     topology : int
         Topology code just after that turn-on (the active-region switch).
     max_time : float
@@ -1048,7 +1052,7 @@ def segment_energy(topology: Topology, x0, duration: float) -> dict:
     ----------
     topology : Topology
     x0 : array_like, shape (n,)
-        State at the segment start.
+        State at the segment start [state units].
     duration : float
         Segment length [s].
 
@@ -1060,13 +1064,127 @@ def segment_energy(topology: Topology, x0, duration: float) -> dict:
 
     Notes
     -----
-    With ``z = [x, 1]`` and ``dz/dt = M z``, the integral of ``z^T Q z`` over
-    ``[0, h]`` is ``z0^T W(h) z0`` with ``W(h) = int_0^h e^{M^T s} Q e^{M s} ds``,
-    the product ``F22^T F12`` of blocks of ``expm([[-M^T, Q], [0, M]] h)``
-    (Van Loan 1978, Theorem 1).  That block exponential overflows for stiff
-    ``M`` and long ``h``, so it is used only on a step ``h = T / 2**s`` with
-    ``||M h|| <= 1/2``, and the doubling ``W(2h) = W(h) + e^{M^T h} W(h) e^{M h}``
-    extends it exactly to the segment length ``T``.
+    Each power is a quadratic form ``z^T Q z`` in ``z = [x, 1]``, so its
+    integral is ``sum(Q * X)`` with the state integral ``X`` of
+    :func:`segment_state_integral`.
+    """
+    integral = segment_state_integral(topology, x0, duration)
+    return {key: float(np.sum(Q * integral)) for key, Q in topology.power_forms.items()}
+
+
+def segment_losses(topology: Topology, x0, duration: float) -> dict:
+    """Exact energy dissipated in each element over one segment.
+
+    Parameters
+    ----------
+    topology : Topology
+    x0 : array_like, shape (n,)
+        State at the segment start [state units].
+    duration : float
+        Segment length [s].
+
+    Returns
+    -------
+    dict of str to float
+        Energy by element or device (keys of :attr:`Topology.loss_forms`) [J].
+    """
+    integral = segment_state_integral(topology, x0, duration)
+    return {key: float(np.sum(Q * integral)) for key, Q in topology.loss_forms.items()}
+
+
+@dataclass(frozen=True)
+class CyclePower:
+    """Mean powers over one switching cycle, exact for the piecewise-linear circuit.
+
+    Attributes
+    ----------
+    input : float
+        Power delivered by the bus [W].
+    output : float
+        Power taken by the load [W].
+    losses : dict of str to float
+        Power dissipated in each element or device (keys of
+        :attr:`rcc.engine.circuit.Topology.loss_forms`), largest first [W].
+    stored : float
+        Mean rate of change of the stored energy (zero on a periodic orbit) [W].
+    """
+
+    input: float
+    output: float
+    losses: dict
+    stored: float
+
+    @property
+    def loss(self) -> float:
+        """Total dissipation [W]."""
+        return float(sum(self.losses.values()))
+
+
+def cycle_power(circuit: Circuit, cycle: CycleResult) -> CyclePower:
+    """Exact mean powers over a cycle from :func:`advance_cycle`.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    cycle : CycleResult
+
+    Returns
+    -------
+    CyclePower
+
+    Notes
+    -----
+    Integrates the quadratic power forms of every segment with
+    :func:`segment_state_integral` (Van Loan 1978); by Tellegen's theorem
+    ``input = output + sum(losses) + stored`` holds to rounding.
+    """
+    if not cycle.period > 0:
+        raise EngineError("cycle_power: the cycle has no duration")
+    totals = {"input": 0.0, "output": 0.0, "stored": 0.0}
+    losses: dict = {}
+    for segment in cycle.segments:
+        topology = circuit.topology(segment.topology)
+        integral = segment_state_integral(topology, segment.start_state, segment.duration)
+        for key in totals:
+            totals[key] += float(np.sum(topology.power_forms[key] * integral))
+        for key, form in topology.loss_forms.items():
+            losses[key] = losses.get(key, 0.0) + float(np.sum(form * integral))
+    rate = 1.0 / cycle.period
+    ordered = dict(sorted(((key, value * rate) for key, value in losses.items()),
+                          key=lambda item: -item[1]))
+    return CyclePower(input=totals["input"] * rate, output=totals["output"] * rate,
+                      losses=ordered, stored=totals["stored"] * rate)
+
+
+def segment_state_integral(topology: Topology, x0, duration: float) -> np.ndarray:
+    """``X = int_0^T z(s) z(s)^T ds`` along the exact segment solution.
+
+    Parameters
+    ----------
+    topology : Topology
+    x0 : array_like, shape (n,)
+        State at the segment start [state units].
+    duration : float
+        Segment length ``T`` [s].
+
+    Returns
+    -------
+    ndarray, shape (n+1, n+1)
+        With ``z = [x, 1]`` and ``dz/dt = M z`` [state units squared x s].
+
+    Notes
+    -----
+    ``X = int_0^T e^{M s} z0 z0^T e^{M^T s} ds`` is ``F22^T F12`` of the
+    blocks of ``expm([[-M, z0 z0^T], [0, M^T]] T)`` (Van Loan 1978,
+    Theorem 1, with ``A = M^T``).  That block exponential overflows for
+    stiff ``M`` and long ``T``, so it is used only on a step
+    ``h = T / 2**s`` with ``||M h|| <= 1/2``, and the doubling
+    ``X(2h) = X(h) + e^{M h} X(h) e^{M^T h}`` extends it exactly to ``T``.
+
+    References
+    ----------
+    .. [1] C. F. Van Loan, "Computing integrals involving the matrix
+       exponential", IEEE Trans. Automatic Control 23(3), 395-404, 1978.
     """
     n = len(topology.b)
     M = np.zeros((n + 1, n + 1))
@@ -1074,28 +1192,24 @@ def segment_energy(topology: Topology, x0, duration: float) -> dict:
     M[:n, n] = topology.b
     z0 = np.append(np.asarray(x0, dtype=float), 1.0)
     if duration <= 0:
-        return {key: 0.0 for key in topology.power_forms}
-    # balanced coordinates z = D w (Parlett & Reinsch): M -> D^-1 M D, Q -> D Q D
+        return np.zeros((n + 1, n + 1))
+    # balanced coordinates z = D w (Parlett & Reinsch): M -> D^-1 M D
     M, scale = _balance(M)
-    z0 = z0 / scale
+    w0 = z0 / scale
     s = _squarings(M * duration)
     h = duration * 2.0 ** (-s)
-    out = {}
-    for key, Q in topology.power_forms.items():
-        Q = Q * scale[:, None] * scale[None, :]
-        block = np.zeros((2 * (n + 1), 2 * (n + 1)))
-        block[: n + 1, : n + 1] = -M.T
-        block[: n + 1, n + 1:] = Q
-        block[n + 1:, n + 1:] = M
-        F = _taylor(block * h) if _squarings(block * h) == 0 else expm_flushed(block * h)
-        phi = F[n + 1:, n + 1:]
-        gramian = phi.T @ F[: n + 1, n + 1:]
-        for _ in range(s):
-            gramian = gramian + phi.T @ gramian @ phi
-            phi[np.abs(phi) < 1e-100] = 0.0
-            phi = phi @ phi
-        out[key] = float(z0 @ gramian @ z0)
-    return out
+    block = np.zeros((2 * (n + 1), 2 * (n + 1)))
+    block[: n + 1, : n + 1] = -M
+    block[: n + 1, n + 1:] = np.outer(w0, w0)
+    block[n + 1:, n + 1:] = M.T
+    F = _taylor(block * h) if _squarings(block * h) == 0 else expm_flushed(block * h)
+    phi = F[n + 1:, n + 1:]          # e^{M^T h}
+    integral = phi.T @ F[: n + 1, n + 1:]
+    for _ in range(s):
+        integral = integral + phi.T @ integral @ phi
+        phi[np.abs(phi) < 1e-100] = 0.0
+        phi = phi @ phi
+    return integral * scale[:, None] * scale[None, :]
 
 
 def simulate_reference(circuit: Circuit, x0, t_end: float, topology: int | None = None,
