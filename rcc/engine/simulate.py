@@ -67,6 +67,7 @@ __all__ = [
     "CyclePower",
     "segment_state_integral",
     "simulate_reference",
+    "ReferenceTrace",
     "expm_flushed",
     "MIN_STEP",
 ]
@@ -1212,15 +1213,48 @@ def segment_state_integral(topology: Topology, x0, duration: float) -> np.ndarra
     return integral * scale[:, None] * scale[None, :]
 
 
+@dataclass(frozen=True)
+class ReferenceTrace:
+    """Result of :func:`simulate_reference`.
+
+    Attributes
+    ----------
+    event_times : ndarray, shape (m,)
+        Switching instants [s] (a chain of switches at one instant repeats
+        the instant).
+    event_from, event_to : ndarray of int, shape (m,)
+        Topology codes before and after each single-device switch.
+    final_state : ndarray, shape (n,)
+        State at ``final_time`` (order ``circuit.state_names``).
+    final_topology : int
+        Topology code at the end.
+    final_time : float
+        Time reached [s].
+    steps : int
+        Integrator steps over all segments [1].
+    function_evaluations : int
+        Right-hand-side evaluations over all segments [1].
+    """
+
+    event_times: np.ndarray
+    event_from: np.ndarray
+    event_to: np.ndarray
+    final_state: np.ndarray
+    final_topology: int
+    final_time: float
+    steps: int
+    function_evaluations: int
+
+
 def simulate_reference(circuit: Circuit, x0, t_end: float, topology: int | None = None,
                        rtol: float = 1e-9, atol: float = 1e-12, method: str = "Radau",
-                       max_events: int = 100_000):
+                       max_events: int = 100_000) -> ReferenceTrace:
     """The same piecewise-linear equations integrated by scipy's ``solve_ivp``.
 
     For validation and benchmarks only: each topology is integrated with a
     general-purpose implicit integrator (Radau IIA of order 5 by default,
-    with the exact Jacobian ``A``), switching instants are located by
-    ``solve_ivp``'s event detection on the same guard functions, and the
+    with the exact constant Jacobian ``A``), switching instants are located
+    by ``solve_ivp``'s event detection on the same guard functions, and the
     next topology is settled exactly as the engine does.
 
     Parameters
@@ -1236,17 +1270,64 @@ def simulate_reference(circuit: Circuit, x0, t_end: float, topology: int | None 
     method : str
         ``solve_ivp`` method.
     max_events : int
+        Most switching events.
 
     Returns
     -------
-    tuple of (ndarray, ndarray, ndarray, ndarray)
-        Event times [s], codes before, codes after, final state.
+    ReferenceTrace
+        Event times [s] and codes, final state, time and topology, work
+        counters.
+
+    Raises
+    ------
+    EngineError
+        If the integrator fails or events repeat without a switch.
+
+    Notes
+    -----
+    The engine's switching rules, mirrored event by event:
+
+    * a guard that starts a segment at or above minus its tolerance fires
+      when it falls below minus its tolerance (the engine's bisection
+      target);
+    * a gated guard that starts a segment below minus its tolerance (kept
+      because it was rising) fires when it starts falling: the engine
+      checks "at or below zero and falling" before every step, so in the
+      limit of small steps it fires where the guard's rate crosses zero
+      downwards; here the rate ``grad . (A x + b)`` is the event function;
+    * ``solve_ivp`` locates a root to about ``4 eps`` in time, which leaves
+      the state up to ``|slope| * 4 eps * t`` on the wrong side of the
+      threshold: far more than the charge tolerance of the switch guard
+      (about 4e-20 C) at collector-charge slopes of 1e-2 C/s.  The state
+      handed to the topology settlement was therefore often still "before"
+      the crossing, nothing switched, and the next call found the same root
+      at the same instant again, for ever.  As the engine does (it commits
+      to the upper end of its bisection bracket), the state is now taken
+      just past the crossing: the event function is evaluated on the last
+      step's dense output at ``t_e + MIN_STEP * 2**k`` until it is negative,
+      then bisected to ``MIN_STEP``;
+    * after each event the topology is settled with the engine's rule
+      (:func:`settle_topology`: value below minus the tolerance and not
+      gated, below minus the deep threshold, or at or below zero and
+      falling), one device at a time in guard order; an event that
+      switches nothing (a guard touching its threshold tangentially) only
+      restarts the integration.  Switches of several devices at one instant
+      (zero-length segments) are recorded one by one, as the engine records
+      them.
+
+    Two guards that cross within about ``tol / slope`` (well under 1e-12 s)
+    of each other may be applied at one instant by one integrator and at
+    two instants by the other; the order of the recorded switches is the
+    same, so event sequences still compare one to one.
 
     References
     ----------
     .. [1] E. Hairer, G. Wanner, *Solving Ordinary Differential Equations
        II: Stiff and Differential-Algebraic Problems*, Springer, 1996
        (Radau IIA).
+    .. [2] L. F. Shampine, S. Thompson, "Event location for ordinary
+       differential equations", Computers & Mathematics with Applications
+       39(5-6), 43-54, 2000.
     """
     from scipy.integrate import solve_ivp
 
@@ -1254,49 +1335,86 @@ def simulate_reference(circuit: Circuit, x0, t_end: float, topology: int | None 
     code = settle_topology(circuit, x, 0 if topology is None else int(topology))
     t = 0.0
     times, before, after = [], [], []
-    no_switch = False
-    same_instant = 0
-    while t < t_end and len(times) < max_events:
+    steps = evaluations = 0
+    idle = 0
+    while t < t_end - _END_SLACK and len(times) < max_events:
         top = circuit.topology(code)
         A, b = top.A, top.b
-
-        def make_event(g):
-            def event(_t, y):
-                return top.guard_gradients[g] @ y + top.guard_offsets[g] + top.guard_tolerances[g]
-            event.terminal = True
-            event.direction = -1
-            return event
-
-        # as in the engine: a guard kept below minus its tolerance (gated,
-        # rising) only counts once it is back above it
-        start_values = top.guard_gradients @ x + top.guard_offsets
-        floor = 0.0 if no_switch else -0.5 * top.guard_tolerances
-        events = [make_event(g) for g in range(len(top.guard_offsets))
-                  if start_values[g] > np.broadcast_to(floor, start_values.shape)[g]]
-        solution = solve_ivp(lambda _t, y: A @ y + b, (t, t_end), x, method=method,
-                             jac=lambda _t, y: A, events=events, rtol=rtol, atol=atol)
+        events = _reference_events(top, x)
+        solution = solve_ivp(lambda _t, y, A=A, b=b: A @ y + b, (t, t_end), x, method=method,
+                             jac=A, events=events, rtol=rtol, atol=atol, dense_output=True)
         if solution.status == -1:
             raise EngineError(f"reference integrator failed: {solution.message}")
-        x = solution.y[:, -1].copy()
-        t = float(solution.t[-1])
-        if solution.status == 1:
-            same_instant = same_instant + 1 if times and times[-1] == t else 0
-            if same_instant > MAX_CHAIN:
-                raise EngineError(f"reference integrator: events repeat at t = {t:.9g} s "
-                                  "without progress")
-            new_code = settle_topology(circuit, x, code)
-            no_switch = new_code == code
-            if no_switch:
-                # an event the engine's admissibility rule does not act on
-                # (a gated guard at its band, within the integrator's noise)
-                continue
-            chain = _chain(circuit, code, new_code, x)
-            for c_from, c_to in chain:
-                times.append(t)
-                before.append(c_from)
-                after.append(c_to)
-            code = new_code
-    return np.array(times), np.array(before), np.array(after), x
+        steps += len(solution.t) - 1
+        evaluations += int(solution.nfev)
+        if solution.status != 1:
+            x = solution.y[:, -1].copy()
+            t = float(solution.t[-1])
+            break
+        fired = next(k for k, found in enumerate(solution.t_events) if len(found))
+        t, x = _past_crossing(solution, events[fired], float(solution.t_events[fired][0]))
+        new_code = settle_topology(circuit, x, code)
+        if new_code == code:
+            idle += 1
+            if idle > MAX_CHAIN:
+                raise EngineError(f"reference integrator: {MAX_CHAIN} events without a "
+                                  f"switch before t = {t:.9g} s")
+            continue
+        idle = 0
+        for c_from, c_to in _chain(circuit, code, new_code, x):
+            times.append(t)
+            before.append(c_from)
+            after.append(c_to)
+        code = new_code
+    return ReferenceTrace(
+        event_times=np.array(times, dtype=float),
+        event_from=np.array(before, dtype=np.int64), event_to=np.array(after, dtype=np.int64),
+        final_state=x, final_topology=int(code), final_time=float(t), steps=steps,
+        function_evaluations=evaluations)
+
+
+def _reference_events(top: Topology, x) -> list:
+    """Terminal, falling event functions of the guards of ``top`` from ``x``
+    (see the Notes of :func:`simulate_reference`)."""
+    gradients, offsets, tolerances = top.guard_gradients, top.guard_offsets, top.guard_tolerances
+    start = gradients @ x + offsets
+    rate_gradients = gradients @ top.A
+    rate_offsets = gradients @ top.b
+    events = []
+    for g in range(len(offsets)):
+        if start[g] >= -tolerances[g]:
+            def event(_t, y, g=g):
+                return gradients[g] @ y + offsets[g] + tolerances[g]
+        else:
+            def event(_t, y, g=g):
+                return rate_gradients[g] @ y + rate_offsets[g]
+        event.terminal = True
+        event.direction = -1
+        events.append(event)
+    return events
+
+
+def _past_crossing(solution, event, t_event: float):
+    """Time and state just past a located root of ``event`` (where it is
+    negative), within ``MIN_STEP``, on the last step's dense output."""
+    dense = solution.sol.interpolants[-1]
+    t_last = float(dense.t)
+    if event(t_event, dense(t_event)) < 0.0:
+        return t_event, dense(t_event)
+    low, delta, high = t_event, MIN_STEP, t_last
+    while t_event + delta < t_last:
+        if event(t_event + delta, dense(t_event + delta)) < 0.0:
+            high = t_event + delta
+            break
+        low = t_event + delta
+        delta *= 2.0
+    while high - low > MIN_STEP:
+        middle = 0.5 * (low + high)
+        if event(middle, dense(middle)) < 0.0:
+            high = middle
+        else:
+            low = middle
+    return high, dense(high)
 
 
 def _chain(circuit: Circuit, start: int, end: int, x):
