@@ -66,9 +66,9 @@ def test_switching_instants_and_states_match_radau(circuit):
 # ------------------------------------------------- several full cycles
 #: (worked case, load resistance [ohm]): the standby case at full load
 #: (12 V, 0.3 A) with an RCD clamp and primary-side regulation; the legacy
-#: case at its nominal 9 W (24 V into 64 ohm), no clamp network (the switch
-#: base-emitter breakdown and the limiter's collector-base junction carry
-#: the turn-off), many switches at one instant
+#: case at its nominal 9 W (24 V into 64 ohm), without a clamp network
+#: (``clamp.type = "none"``), with chains of up to a dozen switches at one
+#: instant at turn-off
 CASES = {"standby": (WORKED, 40.0), "legacy": (LEGACY, 64.0)}
 
 
@@ -123,8 +123,9 @@ def test_multi_cycle_window_covers_every_phase(multi_cycle):
     if name == "standby":
         required |= {("clamp_diode", "off", "on"), ("clamp_diode", "on", "off")}
     else:
-        # no clamp network: the node swing breaks the switch base-emitter
-        # junction down, and the ring brings it back
+        # no clamp network; at turn-off the feedback winding drives the
+        # switch base below -VEBO (base-emitter breakdown) until the
+        # flyback voltage falls
         required |= {("switch", "off", "breakdown"), ("switch", "breakdown", "off")}
     assert required <= found, sorted(required - found)
 
