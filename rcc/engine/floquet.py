@@ -1,7 +1,7 @@
 """Cycle sensitivities of switched piecewise-affine systems: saltation
 matrices, monodromy, Poincaré-map Jacobian and Floquet multipliers.
 
-The periodic-steady-state solver (:mod:`rcc.engine.pss`) sees one switching
+The periodic-steady-state solver (:mod:`rcc.engine.shooting`) sees one switching
 cycle through a small, engine-independent description, :class:`CycleData`:
 the smooth segments (their state-transition matrices) and the switching
 events between them (time, vector fields before and after, gradient of the

@@ -1,6 +1,8 @@
-"""Plots of engine traces: stacked waveforms, start-up and a steady-state zoom.
+"""Plots of engine results: stacked waveforms of a run (start-up and a
+steady-state zoom) and of one period of the periodic steady state.
 
-Plot functions take a :class:`rcc.engine.Trace` and optional axes, import
+Plot functions take a :class:`rcc.engine.Trace` or a
+:class:`rcc.engine.pss.PeriodicSteadyState` and optional axes, import
 matplotlib lazily (Agg backend) and never compute anything new.
 """
 
@@ -8,7 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["WAVEFORM_PANELS", "plot_waveforms", "zoom_window", "write_csv"]
+__all__ = ["WAVEFORM_PANELS", "plot_waveforms", "plot_periodic_steady_state", "zoom_window",
+           "write_csv"]
 
 #: Stacked panels: (signal name, axis label, display scale, unit).
 WAVEFORM_PANELS = (
@@ -125,3 +128,44 @@ def _unit(name: str) -> str:
     if name.endswith("voltage"):
         return "V"
     return "A"
+
+
+def plot_periodic_steady_state(result, axes=None):
+    """Stacked plots of one steady-state period.
+
+    Parameters
+    ----------
+    result : PeriodicSteadyState
+        From :func:`rcc.engine.pss.periodic_steady_state`.
+    axes : sequence of 6 matplotlib Axes, optional
+        Where to draw; default a new figure with six stacked axes.
+
+    Returns
+    -------
+    list of matplotlib Axes
+        Collector voltage [V], primary current [mA], base current [mA],
+        limiter current [mA], feedback winding voltage [V] and output
+        voltage [V] against time in [us].
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    wave = result.waveform
+    if axes is None:
+        figure, axes = plt.subplots(len(WAVEFORM_PANELS), 1, sharex=True, figsize=(8, 10))
+    axes = list(axes)
+    time_us = wave.time * 1e6
+    for ax, (name, label, scale, unit) in zip(axes, WAVEFORM_PANELS):
+        ax.plot(time_us, getattr(wave, name) * scale, linewidth=0.9)
+        ax.set_ylabel(f"{label} [{unit}]")
+        ax.grid(True, alpha=0.3)
+    axes[-1].set_xlabel("time from turn-on [us]")
+    status = "stable" if result.stable else "UNSTABLE"
+    axes[0].set_title(
+        f"periodic steady state: {result.frequency / 1e3:.4g} kHz, "
+        f"{result.output_voltage:.4g} V out, bus {result.bus_voltage:.4g} V, "
+        f"load {result.load.text()} ({result.method}, {status})", fontsize=9)
+    axes[0].figure.tight_layout()
+    return axes
