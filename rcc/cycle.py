@@ -38,7 +38,9 @@ import numpy as np
 
 from rcc.design import Design, Load
 from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain,
-                          storage_time_rising_current)
+                          fall_time_charge_control, storage_time_rising_current,
+                          turn_off_energy)
+from rcc.stress import clamp_power, leakage_spike, rcd_clamp_voltage
 from rcc.limiter import (auxiliary_voltage, regulation_current, trip_current)
 from rcc.mains import bus_voltage
 from rcc.flyback import reflected_voltage
@@ -85,14 +87,32 @@ class Losses:
         Sense resistor and primary winding resistance [W].
     core : ndarray
         Core-loss resistance during on- and off-time [W].
-    leakage : ndarray
-        Leakage-inductance energy dumped into the clamp or node [W].
+    clamp : ndarray
+        Clamp dissipation: the leakage energy times ``Vc / (Vc - V_R)``
+        (:func:`rcc.stress.clamp_power`; the part above the leakage energy
+        comes out of the magnetizing energy); with no clamp, the leakage
+        energy rung out in the node [W].
+    turn_off : ndarray
+        Switch turn-off, first part: after storage the collector current
+        follows the limiter's hold point while the collector rises to the
+        bus (fed by the bus; notes/cycle_model.md) [W].
+    turn_off_flyback : ndarray
+        Switch turn-off, second part: the rest of the current falls into the
+        node capacitance above the bus (:func:`rcc.devices.turn_off_energy`;
+        taken from the magnetizing energy) [W].
     capacitive : ndarray
-        Node-capacitance energy dissipated at turn-on [W].
+        Node-capacitance energy dissipated at turn-on, at the collector
+        voltage where the ring lifts the base [W].
     rectifier : ndarray
         Output rectifier forward drop [W].
     drive : ndarray
-        Base-drive energy taken from the feedback winding [W].
+        Base-drive energy taken from the feedback winding during the on-time [W].
+    reset : ndarray
+        Drive-capacitor reset during the flyback: the reversed feedback
+        winding drives the capacitor's charge back through the base clamps
+        and, with zener regulation, the limiter's collector-base junction
+        also draws the zener current from the auxiliary capacitor; taken
+        from the magnetizing energy [W].
     startup : ndarray
         Start-up resistor [W].
     regulation : ndarray
@@ -102,10 +122,13 @@ class Losses:
     switch_conduction: np.ndarray
     resistive: np.ndarray
     core: np.ndarray
-    leakage: np.ndarray
+    clamp: np.ndarray
+    turn_off: np.ndarray
+    turn_off_flyback: np.ndarray
     capacitive: np.ndarray
     rectifier: np.ndarray
     drive: np.ndarray
+    reset: np.ndarray
     startup: np.ndarray
     regulation: np.ndarray
 
@@ -137,13 +160,23 @@ class OperatingPoints:
     frequency : ndarray
         Switching frequency (average over bursts) [Hz].
     on_time : ndarray
-        On-time including the storage time [s].
+        On-time, turn-on to the collector reaching the bus at turn-off:
+        the current ramp from ``start_current``, the storage time and the
+        turn-off transition [s].
     off_time : ndarray
         Off-time [s].
     duty : ndarray
         Duty cycle [1].
     peak_current : ndarray
-        Peak primary current including the storage overshoot [A].
+        Peak primary current, including the storage overshoot and the rise
+        during the turn-off transition [A].
+    start_current : ndarray
+        Primary current at turn-on: negative on the ring (the magnetizing
+        current that discharges the node capacitance), the residual current
+        in CCM [A].
+    turn_off_time : ndarray
+        Turn-off transition after storage, until the collector reaches the
+        bus (included in ``on_time``) [s].
     trip_current : ndarray
         Current at which the limiter (with the regulation current) acts [A].
     drive_capability : ndarray
@@ -193,6 +226,8 @@ class OperatingPoints:
     off_time: np.ndarray
     duty: np.ndarray
     peak_current: np.ndarray
+    start_current: np.ndarray
+    turn_off_time: np.ndarray
     trip_current: np.ndarray
     drive_capability: np.ndarray
     reflected_voltage: np.ndarray
@@ -366,6 +401,15 @@ class _Cycle:
         # storage-time constant from the datasheet storage time, measured with
         # I_B1 = I_B2 and hard overdrive: t_s = tau_S ln 2 (charge control)
         self.storage_constant = sw.storage_time / np.log(2.0)
+        self.transit_time = 1.0 / (2.0 * np.pi * sw.transition_frequency)
+        # limiter transconductance: limiter collector current per ampere of
+        # switch current through the sense resistor
+        self.limiter_gain = lim.hfe * lim.sense_resistance / lim.base_resistance
+        if design.regulation.method == "feedback-winding":
+            series = design.regulation.series_resistance
+            self.zener_share = lim.base_resistance / (lim.base_resistance + series)
+        else:
+            self.zener_share = 0.0
         # base threshold: the drive-capacitor voltage at which the base reaches Vbe
         rb = dr.resistance
         if rbe is None:
@@ -374,6 +418,7 @@ class _Cycle:
             self.v_threshold = self.startup_current * rb - self.vbe * (rb + rbe) / rbe
         self._tau_slow = np.inf if rbe is None else (rb + rbe) * dr.capacitance
         self.omega = 1.0 / np.sqrt(self.lm * design.node_capacitance)
+        self.ring_impedance = np.sqrt(self.lm / design.node_capacitance)
         quality = tr.core_loss_resistance * np.sqrt(design.node_capacitance / self.lm)
         self.ring_damping = np.exp(-np.pi / (2.0 * quality))
 
@@ -409,10 +454,27 @@ class _Cycle:
                                               base_decision, i_decision, self.slope, self.hfe)
         overshoot = np.where(drive_ends, 0.0, self.slope * storage)
         peak = i_decision + overshoot
-        t_on = (peak - i0) / self.slope
-        on_end = np.where(drive_ends, 0, np.where(ireg > 0.0, 2, 1))
-        base_end = amplitude * np.exp(-t_on / tau) + offset
+        # turn-off transition after storage (notes/cycle_model.md): the
+        # collector current follows the limiter's hold point (or, when the
+        # drive ends the on-time, the switch's own gain) while the collector
+        # rises and the feedback winding loses voltage, dI_C/dv = -m; the node
+        # capacitance takes the rest of the still rising primary current, so
+        # the collector reaches the bus, where the winding reverses, after
+        # t_rise = (C/m) ln(1 + m^2 V_bus / (s C))
+        node = d.node_capacitance
+        droop = np.where(drive_ends, self.hfe, 1.0 / self.limiter_gain) * self.nb / rb
+        rise = node / droop
+        t_rise = rise * np.log1p(droop**2 * self.bus / (self.slope * node))
+        v_reverse = np.minimum(self.bus, peak / droop)
+        crossing = rise * (peak * v_reverse - 0.5 * droop * v_reverse**2)
+        left = np.maximum(peak - droop * self.bus, 0.0)
+        # the drive has to hold the switch up to the end of storage only
+        t_switch = (peak - i0) / self.slope
+        base_end = amplitude * np.exp(-t_switch / tau) + offset
         drive_capability = self.hfe * np.maximum(base_end, 0.0)
+        peak = peak + self.slope * np.maximum(t_rise - rise, 0.0)
+        t_on = t_switch + t_rise
+        on_end = np.where(drive_ends, 0, np.where(ireg > 0.0, 2, 1))
         vc_end = self.v_on + (vc0 - self.v_on) * np.exp(-t_on / tau)
         charge_base = amplitude * tau * (1.0 - np.exp(-t_on / tau)) + offset * t_on
         # ---- off-time: flyback plateau
@@ -437,33 +499,69 @@ class _Cycle:
         restarts = ccm | ring_on | np.isfinite(t_wait)
         t_wait = np.where(np.isfinite(t_wait), t_wait, 0.0)
         t_off = np.where(ccm, t_cross, np.where(ring_on, t_demag + t_ring, t_demag + t_wait))
-        residual = np.where(ccm, np.maximum(peak - vr * t_cross / self.lm, 0.0), 0.0)
+        # current at the next turn-on: what is left in CCM; on the ring the
+        # magnetizing current is negative (it discharges the node
+        # capacitance), -(V_R / Z0) sin(phase) with Z0 = sqrt(Lm / C), damped
+        ring_current = vr / self.ring_impedance * np.sin(phase) \
+            * self.ring_damping ** (phase / np.pi)
+        residual = np.where(ccm, np.maximum(peak - vr * t_cross / self.lm, 0.0),
+                            np.where(ring_on, -ring_current, 0.0))
         vc_next = np.where(ccm, limit_plateau, np.where(ring_on, vc_demag, self.v_threshold))
         mode = np.where(ccm, 2, np.where(ring_on, 1, 0))
         off_end = np.where(ring_on & ~ccm, 0, 1)
         period = t_on + t_off
         frequency = 1.0 / period
         # ---- energy per cycle
+        aux = np.maximum(auxiliary_voltage(output_voltage, d.output.rectifier_drop,
+                                           tr.feedback_turns, tr.output_turns,
+                                           d.regulation.rectifier_drop), 0.0)
         transferred = 0.5 * self.lm * (peak**2 - residual**2)
         t_flyback = np.where(ccm, t_cross, t_demag)
         core_off = vr**2 / tr.core_loss_resistance * t_flyback
-        secondary = np.maximum(transferred - core_off, 0.0)
+        # the clamp takes the leakage energy and, while the leakage current
+        # falls, part of the magnetizing energy
+        leakage_rate = 0.5 * tr.leakage_inductance * peak**2 * frequency
+        clamp_level = self._clamp_level(vr, peak, frequency)
+        clamp_rate = np.where(d.clamp.type == "none", leakage_rate,
+                              clamp_power(vr, clamp_level, tr.leakage_inductance, peak,
+                                          frequency))
+        # turn-off, second part: above the bus the reversed winding, in series
+        # with the drive capacitor charged during the on-time, pulls the rest
+        # of the forward charge out through R_b while the junction still sits
+        # at Vbe; taken from the magnetizing energy, while the first part
+        # (below the bus) is fed by the bus
+        reverse_base = (self.nb * vr + np.maximum(vc_end, 0.0) + self.vbe) / rb
+        fall = fall_time_charge_control(self.transit_time, left, reverse_base)
+        reversal = (turn_off_energy(left, fall, node, clamp_level)
+                    + 0.5 * self.bus * left * fall)
+        # drive reset during the plateau: the reversed feedback winding drives
+        # the drive capacitor's charge back through the base clamps; with
+        # zener regulation the limiter's collector-base junction also pulls
+        # the regulation zener's current from the auxiliary capacitor
+        # (Thevenin share R_lb || R_z / R_z of the junction charge)
+        reset_charge = dr.capacitance * np.maximum(
+            vc_end - np.where(ccm, limit_plateau, vc_demag), 0.0)
+        reset_energy = self.nb * vr * reset_charge + aux * self.zener_share * reset_charge
+        secondary = np.maximum(
+            transferred - core_off - (clamp_rate - leakage_rate) / frequency - reversal
+            - reset_energy, 0.0)
         share_out = output_voltage / (output_voltage + d.output.rectifier_drop)
-        aux = auxiliary_voltage(output_voltage, d.output.rectifier_drop, tr.feedback_turns,
-                                tr.output_turns, d.regulation.rectifier_drop)
-        regulation_power = np.where(ireg > 0.0, np.maximum(aux, 0.0) * ireg, 0.0)
+        regulation_power = np.where(ireg > 0.0, aux * ireg, 0.0)
         delivered = secondary * share_out * frequency - regulation_power
         state = dict(
             vr=vr, ireg=ireg, itrip=itrip, peak=peak, t_on=t_on, t_off=t_off,
+            start=np.broadcast_to(i0, np.shape(peak)), t_turn_off=t_rise,
             frequency=frequency, delivered=delivered, on_end=on_end, off_end=off_end,
             mode=mode, vc_next=vc_next, residual=residual, restarts=restarts,
             drive_capability=drive_capability,
         )
         if not losses:
             return state
-        valley = np.where(ring_on & ~ccm,
-                          np.maximum(self.bus - vr * self.ring_damping, 0.0),
-                          np.where(ccm, self.bus + vr, self.bus))
+        # collector voltage at turn-on: on the ring where the winding lifts
+        # the base (not necessarily the valley), on the plateau in CCM
+        ring_turn_on = self.bus + vr * np.cos(phase) * self.ring_damping ** (phase / np.pi)
+        turn_on_voltage = np.where(ring_on & ~ccm, np.maximum(ring_turn_on, 0.0),
+                                   np.where(ccm, self.bus + vr, self.bus))
         mean_current = 0.5 * (peak + i0)
         square_current = (peak**2 + peak * i0 + i0**2) / 3.0
         state["losses"] = Losses(
@@ -471,14 +569,28 @@ class _Cycle:
             resistive=(lim.sense_resistance + tr.primary_resistance) * square_current * t_on
             * frequency,
             core=(self.bus**2 * t_on + vr**2 * t_flyback) / tr.core_loss_resistance * frequency,
-            leakage=0.5 * tr.leakage_inductance * peak**2 * frequency,
-            capacitive=0.5 * d.node_capacitance * valley**2 * frequency,
+            clamp=clamp_rate,
+            turn_off=crossing * frequency,
+            turn_off_flyback=reversal * frequency,
+            capacitive=0.5 * d.node_capacitance * turn_on_voltage**2 * frequency,
             rectifier=secondary * (1.0 - share_out) * frequency,
             drive=self.winding_on * charge_base * frequency,
+            reset=reset_energy * frequency,
             startup=self.bus * self.startup_current,
             regulation=regulation_power,
         )
         return state
+
+    def _clamp_level(self, vr, peak, frequency):
+        """Collector voltage above the bus while the clamp conducts [V]."""
+        d = self.design
+        tr, clamp = d.transformer, d.clamp
+        if clamp.type == "zener":
+            return np.broadcast_to(clamp.voltage, np.shape(vr)).astype(float)
+        if clamp.type == "rcd":
+            return rcd_clamp_voltage(vr, tr.leakage_inductance, peak, frequency,
+                                     clamp.resistance)
+        return vr + leakage_spike(peak, tr.leakage_inductance, d.node_capacitance)
 
     # ------------------------------------------------ drive-capacitor reset
     # While the feedback winding holds the base negative, three paths reset
@@ -706,8 +818,11 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     first = np.where(any_positive, first, fractions.size - 1)
     # from power-on the output rises from zero and stops at the *lowest*
     # balance; a deficit anywhere below the operating point blocks the way up
+    # (a deficit of less than 0.1 % of the full load power, as at the
+    # near-zero end of the scan where both powers vanish, is no barrier)
     below = np.arange(fractions.size).reshape((-1,) + (1,) * bus.ndim) > first[None]
-    lockup = any_positive & np.any(below & ~positive, axis=0)
+    deficit = scan_surplus < -1e-3 * _load_power(load, top)
+    lockup = any_positive & np.any(below & deficit, axis=0)
     take = lambda array, idx: np.take_along_axis(array, idx[None], axis=0)[0]  # noqa: E731
     low = take(scan_voltage, first)
     high = take(scan_voltage, np.maximum(first - 1, 0))
@@ -790,6 +905,8 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         off_time=off_time,
         duty=np.where(running & (period > 0), t_on / np.maximum(period, 1e-300), 0.0),
         peak_current=np.where(running, state["peak"], 0.0),
+        start_current=np.where(running, state["start"], 0.0),
+        turn_off_time=np.where(running, state["t_turn_off"], 0.0),
         trip_current=state["itrip"],
         drive_capability=state["drive_capability"],
         reflected_voltage=state["vr"],

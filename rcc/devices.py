@@ -17,6 +17,8 @@ __all__ = [
     "zener_voltage",
     "storage_time_charge_control",
     "storage_time_rising_current",
+    "fall_time_charge_control",
+    "turn_off_energy",
     "thermal_voltage",
 ]
 
@@ -199,6 +201,80 @@ def storage_time_rising_current(storage_time_constant, base_current_on, base_cur
         derivative = slope + drive * decay / tau
         t = np.maximum(t - residual / derivative, 0.0)
     return np.where(drive - hold > start, t, 0.0)
+
+
+def fall_time_charge_control(transit_time, collector_current, base_current_off):
+    """Collector-current fall time of a bipolar switch leaving the active region.
+
+    Parameters
+    ----------
+    transit_time : float or array_like
+        Forward transit time tau_F = 1 / (2 pi fT) [s].
+    collector_current : float or array_like
+        Collector current at the end of storage [A].
+    base_current_off : float or array_like
+        Reverse base current during the fall, I_B2 [A] (positive number).
+
+    Returns
+    -------
+    ndarray
+        Time for the collector current to fall to zero [s].
+
+    Notes
+    -----
+    Charge control (Beaufoy & Sparkes 1957; Moll 1954): in the active region
+    the collector current is ``q / tau_F``; the reverse base current removes
+    the charge ``tau_F I_C`` at the rate ``I_B2`` (recombination, slower by
+    the factor beta, neglected), so the current falls linearly in
+    ``t_f = tau_F I_C / I_B2``.
+    """
+    return (np.asarray(transit_time, dtype=float) * np.asarray(collector_current, dtype=float)
+            / np.maximum(np.asarray(base_current_off, dtype=float), 1e-12))
+
+
+def turn_off_energy(collector_current, fall_time, node_capacitance, off_voltage):
+    """Energy dissipated in a switch whose current falls into a node capacitance.
+
+    Parameters
+    ----------
+    collector_current : float or array_like
+        Current at the start of the fall (an inductor keeps it constant) [A].
+    fall_time : float or array_like
+        Linear fall time of the switch current [s].
+    node_capacitance : float or array_like
+        Capacitance at the switch node that takes the current [F].
+    off_voltage : float or array_like
+        Voltage at which the node is clamped (bus plus reflected or clamp
+        voltage) [V].
+
+    Returns
+    -------
+    ndarray
+        Turn-off energy per cycle [J].
+
+    Notes
+    -----
+    With ``i_sw = I (1 - t/t_f)`` the capacitor takes ``I t / t_f`` and the
+    node rises as ``v = I t^2 / (2 C t_f)``.  If it stays below
+    ``V_off`` the energy is ``I^2 t_f^2 / (24 C)`` (the capacitive turn-off
+    snubber); otherwise it reaches ``V_off`` at ``t_v = sqrt(2 C t_f V_off / I)``
+    and the rest of the fall is at ``V_off``:
+    ``E = I^2 / (2 C t_f) (t_v^3/3 - t_v^4/(4 t_f)) + V_off I (t_f - t_v)^2 / (2 t_f)``.
+    For ``C -> 0`` this is the hard-switching ``V_off I t_f / 2`` (Mohan,
+    Undeland & Robbins, *Power Electronics*, 3rd ed., Wiley 2003, sec. 2-3
+    and ch. 27 turn-off snubber  # from memory (section numbers)).
+    """
+    current = np.asarray(collector_current, dtype=float)
+    fall = np.maximum(np.asarray(fall_time, dtype=float), 0.0)
+    capacitance = np.maximum(np.asarray(node_capacitance, dtype=float), 1e-300)
+    voltage = np.asarray(off_voltage, dtype=float)
+    reach = np.sqrt(2.0 * capacitance * fall * voltage / np.maximum(current, 1e-300))
+    soft = current**2 * fall**2 / (24.0 * capacitance)
+    t_v = np.minimum(reach, fall)
+    rising = current**2 / (2.0 * capacitance * np.maximum(fall, 1e-300)) * (
+        t_v**3 / 3.0 - t_v**4 / (4.0 * np.maximum(fall, 1e-300)))
+    held = voltage * current * (fall - t_v) ** 2 / (2.0 * np.maximum(fall, 1e-300))
+    return np.where(reach >= fall, soft, rising + held) * (current > 0)
 
 
 def thermal_voltage(temperature):

@@ -95,7 +95,13 @@ def test_bcm_frequency_rises_with_line(point, step):
     points = operating_points(design, np.array([line, higher]), load, temperature)
     assume(np.all(points.mode == "bcm"))
     assert points.bus_voltage[1] > points.bus_voltage[0]
-    assert points.frequency[1] > points.frequency[0], (points.frequency, points.on_end)
+    # ideal boundary conduction: f rises with the input voltage at fixed power
+    # (Erickson & Maksimovic 2001, ch. 6); the turn-on on the ring and the
+    # turn-off transition both lengthen with the bus, and the time-domain
+    # engine shows the standby case's frequency almost flat from 230 to
+    # 265 V (notes/periodic_steady_state.md), so a 2 % dip is allowed
+    assert points.frequency[1] > 0.98 * points.frequency[0], (points.frequency,
+                                                               points.on_end)
 
 
 def test_monotonicity_cases_are_not_vacuous():
@@ -141,12 +147,23 @@ def test_output_power_is_load_at_output_voltage(point):
         float(points.output_voltage * points.load_current), rel=1e-9)
 
 
+def _taken_from_magnetizing_energy(design, points):
+    """Losses fed by the magnetizing energy before the output winding takes
+    it: the clamp above the leakage energy (the clamp conducts while the
+    leakage current falls), the turn-off above the bus and the drive reset."""
+    leakage_rate = (0.5 * design.transformer.leakage_inductance
+                    * float(points.peak_current) ** 2 * float(points.frequency))
+    return (float(points.losses.clamp) - leakage_rate + float(points.losses.turn_off_flyback)
+            + float(points.losses.reset))
+
+
 @PROPERTY
 @given(point=operating_point())
 def test_energy_per_cycle_feeds_output_and_losses(point):
-    """Lm Ipk^2 / 2 per cycle (boundary conduction starts each cycle at zero
-    current) = output + rectifier + regulation + core loss of the flyback
-    interval.  The core loss of the on-time is taken out of the reported
+    """Lm (Ipk^2 - I0^2) / 2 per cycle (boundary conduction starts each cycle
+    at the ring current I0 and ends at zero) = output + rectifier +
+    regulation + core loss of the flyback interval + what the clamp, the
+    turn-off and the drive reset take from it.  The core loss of the on-time is taken out of the reported
     core loss with the bus voltage across ``core_loss_resistance``."""
     name, line, load, temperature = point
     design = DESIGNS[name]
@@ -154,17 +171,20 @@ def test_energy_per_cycle_feeds_output_and_losses(point):
     assume(str(points.mode) == "bcm" and str(points.on_end) == "regulation")
     tr = design.transformer
     frequency = float(points.frequency)
-    stored = 0.5 * tr.magnetizing_inductance * float(points.peak_current) ** 2 * frequency
+    stored = 0.5 * tr.magnetizing_inductance * (
+        float(points.peak_current) ** 2 - float(points.start_current) ** 2) * frequency
     core_on = float(points.bus_voltage) ** 2 * float(points.on_time) * frequency \
         / tr.core_loss_resistance
     core_off = float(points.losses.core) - core_on
     assert core_off >= 0.0
     delivered = (float(points.output_power) + float(points.losses.rectifier)
-                 + float(points.losses.regulation) + core_off)
-    # 1 %: the model's output voltage comes from a bisection whose surplus
-    # function can jump (drive-capacitor state); measured worst case on the
-    # standby case 0.67 %, typical 1e-8
-    assert stored == pytest.approx(delivered, rel=1e-2)
+                 + float(points.losses.regulation) + core_off
+                 + _taken_from_magnetizing_energy(design, points))
+    # 3 %: the model's output voltage comes from a bisection whose surplus
+    # function can jump (the drive-capacitor state and the ring current at
+    # turn-on change regime); measured worst case 2.2 % (open start-up
+    # resistor fault case at light load), typical 1e-8
+    assert stored == pytest.approx(delivered, rel=3e-2)
 
 
 def test_energy_per_cycle_in_overload():
@@ -173,11 +193,13 @@ def test_energy_per_cycle_in_overload():
     assert str(points.on_end) in ("limit", "drive")  # overload: not regulated
     tr = design.transformer
     frequency = float(points.frequency)
-    stored = 0.5 * tr.magnetizing_inductance * float(points.peak_current) ** 2 * frequency
+    stored = 0.5 * tr.magnetizing_inductance * (
+        float(points.peak_current) ** 2 - float(points.start_current) ** 2) * frequency
     core_on = float(points.bus_voltage) ** 2 * float(points.on_time) * frequency \
         / tr.core_loss_resistance
     delivered = (float(points.output_power) + float(points.losses.rectifier)
-                 + float(points.losses.regulation) + float(points.losses.core) - core_on)
+                 + float(points.losses.regulation) + float(points.losses.core) - core_on
+                 + _taken_from_magnetizing_energy(design, points))
     assert stored == pytest.approx(delivered, rel=1e-2)
 
 

@@ -158,15 +158,16 @@ def test_power_balance_and_losses_against_sampled_waveforms(legacy):
 
 def test_rcd_clamp_loss_matches_textbook_clamp_formula():
     """The engine's exact RCD-clamp dissipation at the standby case's full-load
-    orbit (85 V) vs the textbook clamp balance Vc (Vc - V_R) = R L_lk Ipk^2 f / 2,
+    orbit (230 V) vs the textbook clamp balance Vc (Vc - V_R) = R L_lk Ipk^2 f / 2,
     P = Vc^2 / R (Basso, *Switch-Mode Power Supplies*, 2008, ch. 7, RCD clamp;
     rcc.stress.rcd_clamp_voltage), fed with the engine's own peak current,
-    frequency and reflected voltage: within 10 % (the formula neglects the
-    clamp diode's 1 V and the leakage ring after the clamp lets go)."""
+    frequency and reflected voltage: within 15 % and below it (the formula
+    neglects the clamp diode's 1 V and the leakage ring after the clamp lets
+    go, which hands part of the energy back)."""
     from rcc.stress import rcd_clamp_voltage
 
     design = rcc.load_design(STANDBY)
-    result = periodic_steady_state(design, 85.0, design.output.load_max)
+    result = periodic_steady_state(design, 230.0, design.output.load_max)
     assert result.converged
     tr = design.transformer
     reflected = (result.output_voltage + design.output.rectifier_drop) \
@@ -175,7 +176,10 @@ def test_rcd_clamp_loss_matches_textbook_clamp_formula():
                                             result.peak_current, result.frequency,
                                             design.clamp.resistance))
     textbook = clamp_voltage**2 / design.clamp.resistance
-    assert result.power.losses["clamp"] == pytest.approx(textbook, rel=0.10)
+    # measured: engine 13 % below the formula at 230 V, 8 % at 85 V (the
+    # formula is the upper bound of a clamp that keeps all the ring energy)
+    assert result.power.losses["clamp"] == pytest.approx(textbook, rel=0.15)
+    assert result.power.losses["clamp"] <= textbook
     # and it is well above the bare leakage energy rate the cycle model books
     # (the clamp also takes magnetizing energy while the leakage current falls)
     leakage_rate = 0.5 * tr.leakage_inductance * result.peak_current**2 * result.frequency
@@ -198,38 +202,40 @@ def test_multipliers_stable_and_sorted(legacy):
 # issue's tolerances is listed with its reason: a documented gap between the
 # two models, not a silent one.  strict=False: a case that starts to agree
 # after a model change shows up as XPASS.
-_PEAK_REASON = ("the cycle model books too little loss, so its power balance needs "
-                "less peak current: the engine's exact per-element losses (PeriodicSteadyState"
-                ".power) at 85 V full load on the standby case are 1.74 W against the model's "
-                "0.69 W: RCD clamp 0.45 W (model 0.13 W, it books only the leakage energy), "
-                "switch turn-off and turn-on 0.26 W (model 0.02 W), drive reset in the "
-                "flyback with the regulation zener pulled through the limiter's "
-                "collector-base junction 0.53 W (model 0.18 W); peak current 14-30 % high, "
-                "frequency 14-27 % low, output within 2.5 % (notes/periodic_steady_state.md)")
-_BURST_REASON = ("light load: the cycle model reports burst operation (an average "
-                 "frequency); the engine bursts or settles to another regime; there is "
-                 "no period-1 orbit to compare")
+_TURN_ON_REASON = ("high line: the cycle model leaves the turn-on transition out of the "
+                   "on-time (the collector falling from the ring while the switch's "
+                   "charge builds, 0.2-0.4 us in the engine), so its period is 5-8 % "
+                   "short and, with the same power, its peak current up to 9 % low "
+                   "(notes/cycle_model.md, limitations)")
+_AUX_REASON = ("output 2-3 % above the cycle model's: in the engine the regulation zener "
+               "also conducts through the limiter's collector-base junction during the "
+               "flyback and drains the auxiliary capacitor, so the regulation point sits "
+               "at a higher output; the cycle model books that charge as loss but keeps "
+               "the auxiliary voltage at the plateau value")
 _IRREGULAR_REASON = ("the engine does not settle to a period-1 orbit here (irregular or "
                      "burst switching still after 5000 cycles; the result is the "
                      "transient fall-back, not converged): nothing to compare")
+_FLOOR_REASON = ("Newton does not converge and the long transient stops at a scaled "
+                 "residual of 2e-8 against the 1e-8 tolerance (a switching event grazes "
+                 "its guard); the transient's values agree with the cycle model within "
+                 "1.2 % (notes/periodic_steady_state.md)")
 _NO_START_REASON = ("the engine's circuit does not oscillate at 36 V / 1 A (fewer than "
                     "1000 cycles in 1.2 s from power-on) while the cycle model runs")
 XFAIL = {
-    ("legacy_24v_substitute", 0, 0.1): _BURST_REASON,
-    ("legacy_24v_substitute", 0, 1.0): _PEAK_REASON,
-    ("legacy_24v_substitute", 1, 0.1): _BURST_REASON,
-    ("legacy_24v_substitute", 1, 1.0): _PEAK_REASON,
-    ("legacy_24v_substitute", 2, 0.1): _BURST_REASON,
+    ("legacy_24v_substitute", 0, 0.1): _IRREGULAR_REASON,
+    ("legacy_24v_substitute", 0, 1.0): _AUX_REASON,
+    ("legacy_24v_substitute", 1, 0.1): _IRREGULAR_REASON,
+    ("legacy_24v_substitute", 1, 1.0): _TURN_ON_REASON + "; " + _AUX_REASON,
+    ("legacy_24v_substitute", 2, 0.1): _IRREGULAR_REASON,
     ("legacy_24v_substitute", 2, 1.0): _IRREGULAR_REASON,
-    ("standby_12v_universal", 0, 0.1): _IRREGULAR_REASON,
-    ("standby_12v_universal", 0, 1.0): _PEAK_REASON,
+    ("standby_12v_universal", 0, 1.0): _FLOOR_REASON,
     ("standby_12v_universal", 1, 0.1): _IRREGULAR_REASON,
-    ("standby_12v_universal", 1, 1.0): _PEAK_REASON,
+    ("standby_12v_universal", 1, 1.0): _TURN_ON_REASON,
     ("standby_12v_universal", 2, 0.1): _IRREGULAR_REASON,
-    ("standby_12v_universal", 2, 1.0): _PEAK_REASON,
+    ("standby_12v_universal", 2, 1.0): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 0, 0.1): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 0, 1.0): _NO_START_REASON,
-    ("aux_5v_48v_dc", 1, 0.1): _BURST_REASON,
+    ("aux_5v_48v_dc", 1, 0.1): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 1, 1.0): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 2, 0.1): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 2, 1.0): _IRREGULAR_REASON,
@@ -265,22 +271,30 @@ def test_cycle_model_agrees_with_periodic_steady_state(case, line_index, fractio
     assert abs(point.peak_current_difference) < 0.05
 
 
-@pytest.mark.parametrize("line_index", [0, 1, 2])
-def test_converged_full_load_points_output_and_documented_gap(line_index):
-    """Where the engine has a period-1 orbit (standby case, full load, every
-    line) the output voltages agree within the issue's 2 %, and the
-    frequency and peak-current gaps are the documented ones (frequency
-    10-30 % low, peak current 10-35 % high; notes/periodic_steady_state.md).
-    If the models are brought together this fails, and the xfail entries
-    above and the notes must be updated."""
-    design = rcc.load_design(STANDBY)
+@pytest.mark.parametrize("case, line_index, fraction, bands", [
+    # (frequency, output, peak current) bands around the measured gaps
+    ("standby_12v_universal", 0, 0.3, ((-0.05, 0.05), (-0.02, 0.02), (-0.05, 0.05))),
+    ("standby_12v_universal", 1, 1.0, ((-0.09, -0.02), (-0.02, 0.02), (0.04, 0.11))),
+    ("legacy_24v_substitute", 0, 1.0, ((-0.06, 0.0), (0.0, 0.04), (-0.04, 0.03))),
+    ("legacy_24v_substitute", 1, 1.0, ((-0.10, -0.04), (0.0, 0.04), (-0.02, 0.05))),
+])
+def test_converged_points_agree_or_show_the_documented_gap(case, line_index, fraction, bands):
+    """Where the engine has a period-1 orbit the two models agree within the
+    issue's tolerances (standby, 85 V, 30 % load) or show the documented gaps
+    (turn-on transition at high line, auxiliary capacitor drained in the
+    flyback on the legacy case; notes/periodic_steady_state.md).  If a model
+    change moves a gap out of its band this fails, and the xfail table above
+    and the notes must be updated."""
+    design = rcc.load_design(CASES / f"{case}.toml")
+    top = design.output.load_max
     line = design.input.line_voltages[line_index]
-    (point,) = verify_operating_points(design, [line], [design.output.load_max])
+    (point,) = verify_operating_points(design, [line], [Load(top.kind, top.value * fraction)])
     assert point.steady_state is not None and point.steady_state.converged
     assert point.steady_state.stable
-    assert abs(point.output_voltage_difference) < 0.02
-    assert -0.30 < point.frequency_difference < -0.10
-    assert 0.10 < point.peak_current_difference < 0.35
+    differences = (point.frequency_difference, point.output_voltage_difference,
+                   point.peak_current_difference)
+    for difference, (low, high) in zip(differences, bands):
+        assert low < difference < high, differences
 
 
 # ----------------------------------------------------------------- command
@@ -350,9 +364,11 @@ def test_library_rejects_bad_inputs():
 
 
 def test_cli_engine_trouble_is_a_clear_error_not_a_traceback():
-    """A cycle the engine cannot continue (here a grazing switching event on a
-    broken design) ends with a one-line reason and exit 1."""
-    out = runner.invoke(app, ["cycle", str(CASES / "fault_drive_capacitor_small.toml")])
+    """A supply the engine cannot run into a cycle (here the 5 V case at its
+    lowest input and full load, where the engine's circuit does not
+    oscillate) ends with a one-line reason and exit 1."""
+    out = runner.invoke(app, ["cycle", str(CASES / "aux_5v_48v_dc.toml"), "--line", "36V",
+                              "--load", "1A"])
     assert out.exit_code == 1, out.output
     assert "no periodic steady state" in out.output
     assert "Traceback" not in out.output and out.exception is None or \
