@@ -38,6 +38,45 @@ that the storage time at the datasheet drive ``I_B1 = I_B2`` with hard
 overdrive equals ``switch.storage_time``: ``tau_S = t_s / ln 2``.
 Base-emitter reverse breakdown at ``switch.vebo``.
 
+*Switch collector-base capacitance* (Miller feedback): the switch's
+``output_capacitance`` is the datasheet Cob, measured common-base with the
+emitter open, i.e. the collector-base capacitance ``C_mu`` of the
+hybrid-pi model [4]_, [5]_; the start-up analysis places it between
+collector and base (``notes/circuit.md``).  Here it stays part of the
+collector-node capacitor ``C_node`` (with the winding capacitance), and in
+every switch state a current-controlled source takes its share
+``C_mu / C_node`` of the node-capacitor current out of ground and injects it
+into the base: the collector swing fed back into the base, against the
+feedback winding.  This takes the base as quiet against the collector (the
+injected current is ``C_mu dv_c/dt`` instead of ``C_mu d(v_c - v_b)/dt``:
+the base moves by junction voltages, or by the feedback-winding share
+``Nf/Np`` of the collector swing, while the collector swings by hundreds of
+volts), the Miller approximation [6]_, [5]_, and keeps the state vector
+unchanged.  A separate collector-base capacitor state (measured on the
+worked cases as they were when the feedback was added) gives the same
+dominant pole at the DC point within 0.1 % and the same periodic steady
+state of the standby case at full load (frequency and peak current within
+0.1 %), but adds a mode of about -2e10 1/s and runs several times slower.
+Without the feedback (``C_mu`` lumped to ground) the engine's
+regenerative pole at the DC point of the standby worked case (325 V bus,
+hFE 30, 25 degC) comes out 29 % faster than the start-up analysis's (1.70e7
+against 1.32e7 1/s); with it they agree within 0.5 % (measured 0.4 %,
+``tests/test_engine_startup.py``).  The feedback also lifts the base into
+the active region for some 100 ns when the collector rises fast at
+turn-off without a clamp (a real effect); such an excursion ends in
+cut-off without saturating and is not counted as a turn-on
+(:func:`rcc.engine.simulate.turn_on_indices`).  The source belongs to the
+switch, so its power is booked in the switch's loss (``loss_forms``); the
+energy balance still closes (Tellegen), but a real ``C_mu`` is lossless and
+the source's cycle average ``-C_mu <v_b dv_c/dt>`` is the approximation's
+error there: -4 mW and -12 mW against 0.89 W and 1.29 W of switch loss on
+the standby and legacy worked cases at 325 V (under 1 %).  The remaining
+difference at the DC point is the fixed junction resistance
+``SWITCH_BASE_RESISTANCE`` in place of the
+incremental ``r_pi = hFE V_T / I_C`` of the real junction [5]_: 1-4 % on
+the standby case, up to about 20 % for a low-gain switch at a few mA
+(``r_pi`` of 100-200 ohm next to the drive resistor).
+
 *Limiter* (NPN): cut-off, active (``i_C = hFE i_B``), saturated, and a
 "collector-open" state when its collector is pulled below the saturation
 voltage with the base driven (the inverse-mode current is neglected, so the
@@ -53,9 +92,13 @@ the switch base negative.
 parallel) and a leakage inductance in series on the primary side, then an
 ideal transformer with the feedback, output and auxiliary windings.  This
 magnetizing-plus-leakage form stays well conditioned for coupling near 1.
-The feedback winding sees the magnetizing voltage only, so the leakage ring
-at turn-off cannot reach the base: that is how the false turn-on from the
-leakage ring is kept out of the model (a real winding couples part of it).
+The feedback winding sees the magnetizing voltage only (a real winding
+couples part of the leakage ring too).  The leakage ring at turn-off still
+reaches the base through the switch's collector-base capacitance (above):
+on a case without a clamp network the collector rise can lift the base into
+the active region for about a hundred nanoseconds, as in a real transistor.  Such an
+excursion ends in cut-off without saturating and is not a turn-on
+(:func:`rcc.engine.simulate.turn_on_indices`).
 
 *Load*: a resistance; a constant current (below ``LOAD_KNEE_FRACTION`` of
 the expected output voltage it behaves as a resistance through the origin,
@@ -75,6 +118,15 @@ References
    transistors", Proc. IRE 42(12), 1954.
 .. [3] R. Beaufoy, J. J. Sparkes, "The junction transistor as a
    charge-controlled device", ATE Journal 13, 1957.
+.. [4] L. J. Giacoletto, "Study of p-n-p alloy junction transistor from
+   d-c through medium frequencies", RCA Review 15, 1954.
+.. [5] P. R. Gray, P. J. Hurst, S. H. Lewis, R. G. Meyer, *Analysis and
+   Design of Analog Integrated Circuits*, 5th ed., Wiley, 2009, sec. 1.4
+   (hybrid-pi model: ``r_pi = beta_0 / g_m``, ``C_mu`` collector-base) and
+   sec. 7.2 (Miller effect).
+.. [6] J. M. Miller, "Dependence of the input impedance of a
+   three-electrode vacuum tube upon the load in the plate circuit",
+   Scientific Papers of the Bureau of Standards 15(351), 1920.
 """
 
 from __future__ import annotations
@@ -501,6 +553,11 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     devs = []
     # ----- switch
     be_on = E("V", "q1_be", "b", "e", vbe, SWITCH_BASE_RESISTANCE)
+    # collector-base capacitance: its share of the node-capacitor current,
+    # from ground into the base, in every state (Miller feedback, see the
+    # module docstring)
+    miller = E("CCCS", "q1_collector_base", "0", "b",
+               sw.output_capacitance / design.node_capacitance, control="node")
     v_tol, i_tol = VOLTAGE_TOLERANCE, CURRENT_TOLERANCE
     # charge tolerance: the charge of 1 pA of collector current; the guards
     # are gated (a negative charge that is rising again does not switch back:
@@ -510,23 +567,24 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     q_deep = tau_f * 1e3 * CURRENT_TOLERANCE   # the charge of 1 uA of collector current
     vbe_open = (("v", "b", 1.0), ("v", "e", -1.0))
     devs.append(_Device("switch", (
-        DS("off", (), (
+        DS("off", (miller,), (
             G((("c", "", vbe),) + _scale(vbe_open, -1.0), 1, v_tol, "switch base reaches Vbe"),
             G((("c", "", sw.vebo),) + vbe_open, 3, v_tol, "switch base-emitter breakdown"),
         ), (("x", "q_base", -1.0 / tau_bf),)),
-        DS("active", (be_on, E("Istate", "q1_collector", "c", "e", 1.0 / tau_f, state="q_base")), (
+        DS("active", (be_on, miller,
+                      E("Istate", "q1_collector", "c", "e", 1.0 / tau_f, state="q_base")), (
             G((("x", "q_base", 1.0),), 0, q_tol, "switch stored charge gone",
               deep=math.inf),
             G((("v", "c", 1.0), ("v", "e", -1.0), ("c", "", -sw.vce_sat)), 2, v_tol,
               "switch saturates"),
         ), (("i", "q1_be", 1.0), ("x", "q_base", -1.0 / tau_bf))),
-        DS("saturated", (be_on, E("V", "q1_ce", "c", "e", sw.vce_sat,
-                                  SWITCH_SATURATION_RESISTANCE)), (
+        DS("saturated", (be_on, miller, E("V", "q1_ce", "c", "e", sw.vce_sat,
+                                          SWITCH_SATURATION_RESISTANCE)), (
             G((("x", "q_base", 1.0), ("i", "q1_ce", -tau_f)), 1, q_tol,
               "switch excess charge gone (end of storage)", deep=q_deep),
         ), (("i", "q1_be", 1.0), ("i", "q1_ce", -1.0 / gain), ("x", "q_base", -1.0 / tau_s),
             ("i", "q1_ce", tau_f / tau_s))),
-        DS("breakdown", (E("V", "q1_eb", "e", "b", sw.vebo, BREAKDOWN_RESISTANCE),), (
+        DS("breakdown", (miller, E("V", "q1_eb", "e", "b", sw.vebo, BREAKDOWN_RESISTANCE)), (
             G((("i", "q1_eb", 1.0),), 0, i_tol, "base-emitter breakdown ends"),
         ), (("x", "q_base", -1.0 / tau_bf),)),
     )))
@@ -612,6 +670,7 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         "zener_voltage": zener_v, "leakage_inductance": leakage,
         "magnetizing_inductance": tr.magnetizing_inductance,
         "node_capacitance": design.node_capacitance,
+        "collector_base_capacitance": sw.output_capacitance,
         "expected_output_voltage": expected,
         "feedback_ratio": sign * tr.feedback_turns / np_turns,
         "output_ratio": tr.output_turns / np_turns,

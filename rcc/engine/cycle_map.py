@@ -24,6 +24,16 @@ The engine's cycle is adapted before the saltation product
   the cycle start is a re-trigger of the same turn-on and is joined to the
   following cycle.
 
+The section is the switch's turn-on as the engine defines it
+(:func:`rcc.engine.simulate.turn_on_indices`): a switch from cut-off to the
+active region that reaches saturation before it is cut off again.  Locally
+it is the guard surface "base reaches Vbe" of the off topology; the extra
+condition (saturation follows) only picks which crossings of that surface
+count, so the saltation product at the closing crossing stays the exact
+Jacobian of the return map.  A brief active excursion at turn-off (the
+collector rise fed into the base through the collector-base capacitance)
+is an ordinary pair of events inside the cycle.
+
 References
 ----------
 .. [1] M. di Bernardo, C. J. Budd, A. R. Champneys, P. Kowalczyk,
@@ -113,7 +123,16 @@ def is_turn_on(circuit, device: int, before: int, after: int) -> bool:
     -------
     bool
         The switch went from cut-off (off or breakdown) to conduction
-        (active or saturated).
+        (active or saturated): a *candidate* turn-on.
+
+    Notes
+    -----
+    A candidate is a turn-on when the switch then saturates before it is
+    cut off again (:func:`rcc.engine.simulate.turn_on_indices`, the rule
+    the engine stops on).  On an event list this function alone cannot
+    decide that; use :meth:`rcc.engine.Trace.turn_on_times` there.  The
+    engine's cycles (:func:`rcc.engine.advance_cycle`) end at a confirmed
+    turn-on, so their last candidate is the section crossing.
     """
     switch = circuit.device_index("switch")
     if device != switch:
@@ -132,7 +151,10 @@ def _event_label(circuit, event) -> str:
 def _engine_cycle_data(circuit, result) -> CycleData:
     """Convert the engine's cycle (:class:`rcc.engine.CycleResult`) to
     :class:`CycleData`, ending at the closing turn-on (events at the same
-    instant after it only change the topology, not the state)."""
+    instant after it only change the topology, not the state).  The engine
+    stops a cycle at a confirmed turn-on, so the last candidate of the cycle
+    is the closing one; earlier candidates (active excursions at turn-off
+    that end in cut-off) stay events inside the cycle."""
     closing = None
     for k in range(len(result.events) - 1, -1, -1):
         event = result.events[k]
@@ -252,8 +274,11 @@ class CircuitCycleMap:
 
         A state exactly on the turn-on surface can be read by the engine as
         still off (the stored base charge a rounding error below zero); it
-        then turns on again picoseconds later.  That sliver is joined to the
-        following full cycle, so the map always spans one real period.
+        then turns on again picoseconds later, and that turn-on saturates
+        (it is the same on-time).  That sliver is joined to the following
+        full cycle, so the map always spans one real period.  (Active
+        excursions at turn-off are not turn-ons at all: the switch is cut
+        off again before it saturates, :func:`rcc.engine.simulate.turn_on_indices`.)
         """
         state = np.array(state, dtype=float)
         try:

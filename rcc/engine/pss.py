@@ -55,7 +55,7 @@ import numpy as np
 from rcc.design import Load
 from rcc.engine.circuit import SIGNAL_NAMES, EngineError, build_circuit
 from rcc.engine.comparison import VerifiedPoint, benchmark_iterations, verify_operating_points
-from rcc.engine.cycle_map import CircuitCycleMap, affine_flow, is_turn_on
+from rcc.engine.cycle_map import CircuitCycleMap, affine_flow
 from rcc.engine.floquet import CycleError
 from rcc.engine.plotting import plot_periodic_steady_state
 from rcc.engine.shooting import (FallbackWarning, PeriodicOrbit, PeriodicSteadyStateError,
@@ -372,7 +372,9 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
     (``notes/circuit.md``); the circuit then runs ``warmup_cycles``
     switching cycles from power-on, so Newton starts inside the basin of
     the steady state.  Newton's method on the Poincaré map at the turn-on
-    event (Aprille & Trick 1972) then converges quadratically; see
+    event (Aprille & Trick 1972) then converges quadratically; a turn-on is
+    a switch from cut-off to the active region that then saturates
+    (:func:`rcc.engine.simulate.turn_on_indices`); see
     :func:`find_periodic_orbit`.  The bus is held constant (DC), so for AC
     input the line ripple is not in the cycle.
 
@@ -511,9 +513,7 @@ def _switching_pattern(circuit, cycle_map, state) -> str:
         run = cycle_map.run(state, PATTERN_CYCLES)
     except (EngineError, CycleError):
         return ""
-    turn_ons = [t for t, before, after, device in zip(run.event_times, run.event_from,
-                                                      run.event_to, run.event_devices)
-                if is_turn_on(circuit, device, before, after)]
+    turn_ons = run.turn_on_times()   # the engine's turn-on rule (saturation follows)
     if len(turn_ons) < 3:
         return ""
     intervals = np.diff(turn_ons)

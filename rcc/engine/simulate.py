@@ -50,7 +50,13 @@ import numpy as np
 import scipy.linalg
 from numba import njit
 
-from rcc.engine.circuit import SIGNAL_NAMES, Circuit, EngineError, Topology
+from rcc.engine.circuit import (
+    SIGNAL_NAMES,
+    SWITCH_STATES,
+    Circuit,
+    EngineError,
+    Topology,
+)
 
 __all__ = [
     "Trace",
@@ -69,6 +75,7 @@ __all__ = [
     "simulate_reference",
     "ReferenceTrace",
     "expm_flushed",
+    "turn_on_indices",
     "MIN_STEP",
 ]
 
@@ -92,6 +99,10 @@ _END_SLACK = 2.0 * MIN_STEP
 
 # kernel status codes
 _DONE, _NEED, _FULL, _STOP, _STORM, _CHAIN, _EVENTS = 0, 1, 2, 3, 4, 5, 6
+# switch states used by the turn-on rule (see turn_on_indices)
+_SWITCH_OFF = SWITCH_STATES.index("off")
+_SWITCH_ACTIVE = SWITCH_STATES.index("active")
+_SWITCH_SATURATED = SWITCH_STATES.index("saturated")
 
 
 # ---------------------------------------------------------------- results
@@ -170,8 +181,78 @@ class Trace:
         return self.event_times[mask]
 
     def turn_on_times(self) -> np.ndarray:
-        """Instants where the switch went from cut-off to active [s]."""
-        return self.device_transitions("switch", 0, 1)
+        """Instants of the switch turn-ons [s].
+
+        A turn-on is a switch from cut-off to the active region that starts
+        an on-time: the switch saturates before it is cut off again
+        (:func:`turn_on_indices`).  A brief active excursion while the
+        collector is still rising at turn-off (the collector-base
+        capacitance feeding the edge into the base) is not one.  A trace
+        that stopped on a turn-on (``stopped``) ends at a confirmed one; a
+        trace that ends by time between a candidate and its outcome does not
+        count that candidate.
+        """
+        if "switch" not in self.device_names:
+            return np.empty(0)
+        d = self.device_names.index("switch")
+        indices = turn_on_indices(self.event_devices, self.event_from, self.event_to, d,
+                                  self.topology_weights[d], self.topology_radices[d],
+                                  self.stopped)
+        return self.event_times[indices]
+
+
+def turn_on_indices(event_devices, event_from, event_to, switch: int, weight: int, radix: int,
+                    stopped: bool = False) -> np.ndarray:
+    """Indices of the switch turn-ons in an event list.
+
+    Parameters
+    ----------
+    event_devices, event_from, event_to : array_like of int, shape (m,)
+        Device and topology codes before and after every switching event
+        (as in :class:`Trace`).
+    switch : int
+        Index of the switch device.
+    weight, radix : int
+        Mixed-radix weight and number of states of the switch in the
+        topology codes.
+    stopped : bool
+        The list ends at a turn-on confirmed by the engine
+        (``simulate(..., stop_on_turn_on=k)``): its last candidate counts.
+
+    Returns
+    -------
+    ndarray of int
+        Event indices, in time order.
+
+    Notes
+    -----
+    The rule, the same one the engine stops on: a *candidate* is a switch of
+    the switch from cut-off (``off``) to ``active``; it is a turn-on when
+    the switch next leaves the active region into saturation, and it is
+    dropped when the switch leaves the active region back to cut-off first.
+    A turn-on that starts an on-time drives the collector down to
+    saturation by the regenerative feedback winding; with the collector-base
+    capacitance fed back into the base (``rcc.engine.circuit``), the fast
+    collector rise at turn-off can lift the base into the active region for
+    a few nanoseconds while the collector is still hundreds of volts up
+    (the Miller effect), and the switch is cut off again without
+    saturating.  A candidate with no outcome in the list is counted only
+    when ``stopped``.
+    """
+    devices = np.asarray(event_devices)
+    old = (np.asarray(event_from) // weight) % radix
+    new = (np.asarray(event_to) // weight) % radix
+    found, candidate = [], -1
+    for k in np.flatnonzero(devices == switch):
+        if old[k] == _SWITCH_OFF and new[k] == _SWITCH_ACTIVE:
+            candidate = int(k)
+        elif old[k] == _SWITCH_ACTIVE and candidate >= 0:
+            if new[k] == _SWITCH_SATURATED:
+                found.append(candidate)
+            candidate = -1
+    if stopped and candidate >= 0:
+        found.append(candidate)
+    return np.array(found, dtype=np.int64)
 
 
 @dataclass(frozen=True)
@@ -308,9 +389,22 @@ def _kernel(x, t, slot, t_end, max_step,
             gc, gd, gt, gdeep, gdev, gtarget, ng,
             rec_t, rec_x, rec_code, rec_n, record,
             ev_t, ev_from, ev_to, ev_dev, ev_guard, ev_n, max_events,
-            stop_dev, stop_to, stop_after,
-            storm, storm_pos):
+            stop_dev, stop_to, stop_confirm, stop_after,
+            storm, storm_pos, pending, pending_x, pending_storm, ev_base, rec_base):
     """Advance until t_end, a stop event, a missing topology or a full buffer.
+
+    The stop event is a *confirmed* turn-on of device ``stop_dev``: a switch
+    from state 0 (cut-off) to ``stop_to`` after ``stop_after`` is remembered
+    (``pending``: flag, time, slot, event and record counts including the
+    flushed ones from ``ev_base`` and ``rec_base``, storm position; the state
+    in ``pending_x``, the storm buffer in ``pending_storm``) and confirmed
+    when the device next switches from ``stop_to`` to ``stop_confirm``; any
+    other switch of the device from ``stop_to`` drops it.  On confirmation
+    the run is put back exactly at the remembered event (state, time, slot,
+    storm buffer) and ``_STOP`` is returned; the caller discards the events
+    and samples after it (``pending[3]``, ``pending[4]``).  The pending
+    record lives in the arrays, so it survives the returns for a missing
+    topology or a full buffer.
 
     Returns (status, slot, t, missing_code, rec_n, ev_n, storm_pos).
     """
@@ -378,14 +472,32 @@ def _kernel(x, t, slot, t_end, max_step,
                 return _STORM, new_slot, t, -1, rec_n, ev_n, storm_pos
             slot = new_slot
             switched = True
-            if dev == stop_dev and current == 0 and gtarget[slot_of_code[code], fired] == stop_to \
-                    and t > stop_after:
-                if record:
-                    rec_t[rec_n] = t
-                    rec_x[rec_n, :] = x
-                    rec_code[rec_n] = new_code
-                    rec_n += 1
-                return _STOP, slot, t, -1, rec_n, ev_n, storm_pos
+            if dev == stop_dev:
+                target = gtarget[slot_of_code[code], fired]
+                if current == 0 and target == stop_to:
+                    # a candidate turn-on: remember it, decide later
+                    if t > stop_after:
+                        pending[0] = 1.0
+                        pending[1] = t
+                        pending[2] = slot
+                        pending[3] = ev_base + ev_n
+                        pending[4] = rec_base + rec_n
+                        pending[5] = storm_pos
+                        for j in range(n):
+                            pending_x[j] = x[j]
+                        for j in range(storm.shape[0]):
+                            pending_storm[j] = storm[j]
+                elif current == stop_to and pending[0] > 0.0:
+                    if target == stop_confirm:
+                        # confirmed: back to the turn-on event
+                        pending[0] = 0.0
+                        for j in range(n):
+                            x[j] = pending_x[j]
+                        for j in range(storm.shape[0]):
+                            storm[j] = pending_storm[j]
+                        return _STOP, int(pending[2]), pending[1], -1, rec_n, ev_n, \
+                            int(pending[5])
+                    pending[0] = 0.0
         # ---- one step (or a bisection to the next event)
         if t >= t_end:
             return _DONE, slot, t, -1, rec_n, ev_n, storm_pos
@@ -747,8 +859,11 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
     progress : callable, optional
         Called as ``progress(t, t_end)`` about a hundred times.
     stop_on_turn_on : int
-        Stop at this many switch turn-ons (cut-off -> active) after
-        ``stop_after``; 0 runs to ``t_end``.
+        Stop at this many switch turn-ons after ``stop_after`` (a switch
+        from cut-off to the active region that reaches saturation before it
+        is cut off again, :func:`turn_on_indices`); the run ends exactly at
+        the last turn-on event, not at the saturation that confirmed it;
+        0 runs to ``t_end``.
     stop_after : float
         Turn-ons at or before this time are not counted [s].
     t_start : float
@@ -794,6 +909,11 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
         rec_n = 1
     switch = circuit.device_index("switch") if "switch" in circuit.device_names else -1
     stop_dev = switch if stop_on_turn_on > 0 else -1
+    # a candidate turn-on waiting for the switch to saturate (see _kernel)
+    pending = np.zeros(6)
+    pending_x = np.empty(circuit.n_states)
+    pending_storm = np.empty(STORM_EVENTS)
+    total_records = 0
     turn_ons = 0
     stopped = False
     settle_only = False
@@ -808,7 +928,8 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
             store.gc, store.gd, store.gt, store.gdeep, store.gdev, store.gtarget, store.ng,
             rec_t, rec_x, rec_code, rec_n, record,
             ev_t, ev_from, ev_to, ev_dev, ev_guard, ev_n, max_events - total_events,
-            -1 if settle_only else stop_dev, 1, stop_after, storm, storm_pos)
+            -1 if settle_only else stop_dev, _SWITCH_ACTIVE, _SWITCH_SATURATED, stop_after,
+            storm, storm_pos, pending, pending_x, pending_storm, total_events, total_records)
         if status == _NEED:
             store.ensure(int(missing))
             continue
@@ -840,10 +961,23 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
         for target, array in zip(events, (ev_t, ev_from, ev_to, ev_dev)):
             target.append(array[:ev_n].copy())
         total_events += ev_n
+        total_records += rec_n
         rec_n = ev_n = 0
         if status == _FULL:
             continue
         if status == _STOP:
+            # back at the confirmed turn-on: drop what was simulated after it
+            total_events = int(pending[3])
+            total_records = int(pending[4])
+            _truncate(chunks_t, total_records), _truncate(chunks_x, total_records)
+            _truncate(chunks_c, total_records)
+            for target in events:
+                _truncate(target, total_events)
+            if record:
+                chunks_t.append(np.array([t]))
+                chunks_x.append(x.copy()[None, :])
+                chunks_c.append(np.array([store.code_of_slot[slot]], dtype=np.int64))
+                total_records += 1
             turn_ons += 1
             if turn_ons >= stop_on_turn_on:
                 stopped = settle_only = True
@@ -870,6 +1004,17 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
         state_names=circuit.state_names, device_names=circuit.device_names,
         topology_weights=circuit.weights, topology_radices=circuit.radices,
     )
+
+
+def _truncate(chunks: list, length: int) -> None:
+    """Cut a list of array chunks to ``length`` rows in total (in place)."""
+    total = 0
+    for k, chunk in enumerate(chunks):
+        if total + len(chunk) >= length:
+            chunks[k] = chunk[:length - total]
+            del chunks[k + 1:]
+            return
+        total += len(chunk)
 
 
 def _with_state(error: EngineError, x, t, code) -> EngineError:
