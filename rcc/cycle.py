@@ -251,7 +251,10 @@ class OperatingPoints:
         flat = {name: np.ravel(getattr(self, name)) for name in (
             "line_voltage", "bus_voltage", "load_current", "temperature", "output_voltage",
             "frequency", "on_time", "off_time", "duty", "peak_current", "mode", "on_end",
-            "off_end")}
+            "off_end", "input_power")}
+        losses = {item.name: np.ravel(np.broadcast_to(getattr(self.losses, item.name),
+                                                      self.shape))
+                  for item in fields(Losses)}
         rows = []
         for i in range(flat["frequency"].size):
             rows.append({
@@ -268,6 +271,8 @@ class OperatingPoints:
                 "mode": str(flat["mode"][i]),
                 "on_end": str(flat["on_end"][i]),
                 "off_end": str(flat["off_end"][i]),
+                "input_power_w": float(flat["input_power"][i]),
+                "losses_w": {name: float(values[i]) for name, values in losses.items()},
             })
         return rows
 
