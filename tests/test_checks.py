@@ -149,7 +149,13 @@ def test_report_json_has_the_documented_keys(standby_report):
     assert len(data["operating_points"]) == 9
     assert set(data["operating_points"][0]) == {
         "line_v", "bus_v", "load_a", "temperature_c", "output_v", "frequency_hz",
-        "on_time_s", "off_time_s", "duty", "peak_current_a", "mode", "on_end", "off_end"}
+        "on_time_s", "off_time_s", "duty", "peak_current_a", "mode", "on_end", "off_end",
+        "input_power_w", "losses_w"}
+    # the losses and the load make up the input power (energy balance)
+    point = data["operating_points"][0]
+    output_power = point["output_v"] * point["load_a"]
+    assert point["input_power_w"] == pytest.approx(
+        output_power + sum(point["losses_w"].values()), rel=1e-9)
     assert {"switch_peak_v", "switch_rating_v", "rating_basis", "core_peak_flux_t",
             "core_limit_t"} <= set(data["stress"])
     json.dumps(data, allow_nan=False)
