@@ -730,6 +730,10 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
     (the saturated limiter pulls the base below the emitter, which sits at
     the sense voltage): the storage time approaches the datasheet value under
     hard overdrive and shortens where the drive barely holds the current.
+    After storage the limiter holds the collector current while the collector
+    rises to the bus (turn-off transition, included in the on-time; derived in
+    ``notes/cycle_model.md``, charge control after Beaufoy & Sparkes 1957);
+    the ramp starts at the negative ring current of the previous off-time.
 
     Off-time: demagnetization ``Lm Ipk / V_R`` [1]_, then the ring of ``Lm``
     with the node capacitance turns the switch on as soon as the feedback
@@ -741,14 +745,17 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
     ``-switch.vebo`` where the winding drives it below that.
 
     The output voltage balances ``E f - P_reg`` (energy per cycle less core,
-    rectifier and regulation losses) against the load power [2]_.  When even
+    rectifier and regulation losses, the clamp's share above the leakage
+    energy, the turn-off above the bus and the drive reset in the flyback)
+    against the load power [2]_.  When even
     the storage-time-limited minimum energy per cycle exceeds the load, the
     supply bursts at the output where the regulation path holds the limiter
     on (mode ``burst``); the reported frequency is the average.
 
-    Simplifications: the leakage ring on the feedback winding and the sense
-    voltage in the base loop are neglected; the output is taken ripple-free.  The
-    periodic-steady-state engine (``rcc cycle``) checks these.
+    Simplifications: the leakage ring on the feedback winding, the sense
+    voltage in the base loop and the switch's turn-on transition are
+    neglected; the output is taken ripple-free.  The periodic-steady-state
+    engine (``rcc cycle``) checks these (``notes/periodic_steady_state.md``).
     """
     if temperature is None:
         temperature = reference_temperature(design)
