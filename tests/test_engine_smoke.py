@@ -35,3 +35,29 @@ def test_power_on_run_switches_and_stays_finite(circuit):
     assert len(turn_ons) >= 2  # start-up bursts of the worked case, about 1 ms apart
     # the bus current at the first instant is zero (capacitors discharged)
     assert trace["primary_current"][0] == 0.0
+
+
+def test_turn_on_rule_on_a_handmade_event_list():
+    """turn_on_indices: a cut-off -> active switch counts when saturation
+    follows before cut-off (the on-time of the switch; common practice),
+    not when the switch drops back to cut-off; an undecided last candidate
+    counts only in a run that stopped on it.  Switch states in code order
+    off, active, saturated, breakdown (weight 1, radix 4); device 1 is
+    another device whose events are ignored."""
+    from rcc.engine.simulate import turn_on_indices
+
+    off, active, saturated, breakdown = 0, 1, 2, 3
+    steps = [(0, off, active), (1, 0, 1), (0, active, saturated),    # 0: turn-on
+             (0, saturated, active), (0, active, off),
+             (0, off, active), (0, active, off),                     # 5: excursion
+             (0, off, breakdown), (0, breakdown, off),
+             (0, off, active), (1, 1, 0), (0, active, saturated),    # 9: turn-on
+             (0, saturated, active), (0, active, off),
+             (0, off, active)]                                       # 14: undecided
+    devices = np.array([d for d, _, _ in steps])
+    before = np.array([a if d == 0 else 4 * a for d, a, _ in steps])
+    after = np.array([b if d == 0 else 4 * b for d, _, b in steps])
+    found = turn_on_indices(devices, before, after, 0, 1, 4)
+    np.testing.assert_array_equal(found, [0, 9])
+    found = turn_on_indices(devices, before, after, 0, 1, 4, stopped=True)
+    np.testing.assert_array_equal(found, [0, 9, 14])
