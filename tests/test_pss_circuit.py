@@ -215,10 +215,6 @@ _AUX_REASON = ("output 2-3 % above the cycle model's: at the trip the engine's l
 _IRREGULAR_REASON = ("the engine does not settle to a period-1 orbit here (irregular or "
                      "burst switching still after 5000 cycles; the result is the "
                      "transient fall-back, not converged): nothing to compare")
-_FLOOR_REASON = ("Newton does not converge and the long transient stops at a scaled "
-                 "residual of 2e-8 against the 1e-8 tolerance (a switching event grazes "
-                 "its guard); the transient's values agree with the cycle model within "
-                 "1.2 % (notes/periodic_steady_state.md)")
 _NO_START_REASON = ("the engine's circuit does not oscillate at 36 V / 1 A (fewer than "
                     "1000 cycles in 1.2 s from power-on) while the cycle model runs")
 XFAIL = {
@@ -228,7 +224,6 @@ XFAIL = {
     ("legacy_24v_substitute", 1, 1.0): _TURN_ON_REASON + "; " + _AUX_REASON,
     ("legacy_24v_substitute", 2, 0.1): _IRREGULAR_REASON,
     ("legacy_24v_substitute", 2, 1.0): _IRREGULAR_REASON,
-    ("standby_12v_universal", 0, 1.0): _FLOOR_REASON,
     ("standby_12v_universal", 1, 0.1): _IRREGULAR_REASON,
     ("standby_12v_universal", 1, 1.0): _TURN_ON_REASON,
     ("standby_12v_universal", 2, 0.1): _IRREGULAR_REASON,

@@ -194,8 +194,7 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
                         multiplier_margin: float = 0.05,
                         picard_threshold: float = 0.0, transient=None,
                         transient_chunk: int = 100,
-                        retry_newton: bool = True,
-                        transient_tolerance: float | None = None) -> PeriodicOrbit:
+                        retry_newton: bool = True) -> PeriodicOrbit:
     """Fixed point of the Poincaré map by Newton's method, transient fall-back.
 
     Parameters
@@ -236,11 +235,6 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
     retry_newton : bool, default True
         With ``transient``: try Newton again after chunks 1, 4, 16, ...,
         from the state the transient reached.
-    transient_tolerance : float, optional
-        The fall-back transient counts as converged once its scaled residual
-        is below this (default ``tolerance``): a switching event that grazes
-        its guard leaves the piecewise-smooth map a residual floor above
-        Newton's tolerance, which the transient cannot go below [1].
 
     Returns
     -------
@@ -316,7 +310,6 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
                     iterations, history
         return False, x, cycle, iterations, history
 
-    floor = tolerance if transient_tolerance is None else max(transient_tolerance, tolerance)
     converged, x, cycle, iterations, history = newton(start, start_cycle, max_iterations)
     method = "newton"
     transient_cycles = 0
@@ -338,7 +331,7 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
                     f"the transient fall-back lost the oscillation: {error}") from None
             transient_cycles += 1
             residual = _scaled(cycle.end_state - x, scale)
-            if residual < floor:
+            if residual < tolerance:
                 converged, method, iterations = True, "transient-fallback", transient_cycles
                 history.append(residual)
                 break
