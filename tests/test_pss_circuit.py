@@ -308,6 +308,10 @@ def test_cli_json(tmp_path):
     assert all(math.isfinite(data[key]) for key in ("frequency_hz", "output_v"))
     assert all(len(pair) == 2 for pair in data["multipliers"])
     assert data["stable"] is True
+    # the power balance (Tellegen): input = output + losses + stored
+    assert data["input_power_w"] == pytest.approx(
+        data["output_power_w"] + sum(data["losses_w"].values()) + data["stored_power_w"],
+        rel=1e-6)
 
 
 def test_cli_plot_and_overwrite(tmp_path):

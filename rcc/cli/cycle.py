@@ -82,7 +82,10 @@ def format_cycle(title: str, result) -> str:
                    f"residual {result.residual:.2g}"),
         ("stable", "yes" if result.stable else "NO"),
         ("power", f"{result.power.input:.4g} W in, {result.power.output:.4g} W out, "
-                  f"{result.power.loss:.4g} W lost"),
+                  f"{result.power.loss:.4g} W lost"
+                  + ("" if abs(result.power.stored) <= 0.01 * abs(result.power.input)
+                     else f", {-result.power.stored:.4g} W from stored energy "
+                          "(this cycle is not periodic)")),
     ]
     lines = [title]
     width = max(len(name) for name, _ in rows)

@@ -254,6 +254,7 @@ class PeriodicSteadyState:
             "residual": float(self.residual),
             "input_power_w": self.power.input,
             "output_power_w": self.power.output,
+            "stored_power_w": self.power.stored,
             "losses_w": dict(self.power.losses),
             "event_sequence": list(self.event_sequence),
             "state_at_turn_on": {name: float(v) for name, v in zip(self.state_names, self.state)},
