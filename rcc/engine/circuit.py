@@ -296,6 +296,8 @@ class Topology:
         device under the device name (``"switch"``, ``"limiter"``,
         ``"clamp_diode"``, ...).  The windings of the ideal transformer
         absorb no net power, so these sum to ``power_forms["loss"]`` [W].
+    forms_builder : callable
+        Builds ``(power_forms, loss_forms)`` on first use.
     """
 
     code: int
@@ -313,8 +315,22 @@ class Topology:
     guard_names: tuple
     signal_matrix: np.ndarray
     signal_offset: np.ndarray
-    power_forms: dict = field(repr=False)
-    loss_forms: dict = field(repr=False, default_factory=dict)
+    forms_builder: object = field(repr=False, compare=False)
+    _forms: dict = field(repr=False, compare=False, default_factory=dict)
+
+    @property
+    def power_forms(self) -> dict:
+        """See the class attributes (built on first use: only the energy
+        integrals need them, not the simulation)."""
+        if not self._forms:
+            self._forms["power"], self._forms["loss"] = self.forms_builder()
+        return self._forms["power"]
+
+    @property
+    def loss_forms(self) -> dict:
+        """See the class attributes (built on first use)."""
+        self.power_forms  # noqa: B018 - builds both
+        return self._forms["loss"]
 
     def signals(self, x):
         """Named signals at state(s) ``x`` (shape (n,) or (k, n))."""
@@ -904,7 +920,6 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
 
     owner = {el.name: device.name for device in circuit._devices for st in device.states
              for el in st.elements}
-    power_forms, loss_forms = _power_forms(elements, owner, linear, n)
     return Topology(
         code=code, device_states=device_states, label=circuit.label(code),
         A=A, b=bvec,
@@ -916,7 +931,8 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
         guard_deep=np.array([g.deep if g.deep > 0 else 1000.0 * g.tolerance
                              for _, g in guards]),
         guard_names=tuple(g.name for _, g in guards),
-        signal_matrix=sm, signal_offset=so, power_forms=power_forms, loss_forms=loss_forms,
+        signal_matrix=sm, signal_offset=so,
+        forms_builder=lambda: _power_forms(elements, owner, linear, n),
     )
 
 

@@ -677,24 +677,25 @@ def _ladder(augmented: np.ndarray, h_top: float, levels: int) -> np.ndarray:
     augmented, scale = _balance(augmented)
     norm = np.abs(augmented).sum(axis=0).max()
     size = augmented.shape[0]
-    for level in range(levels - 1, -1, -1):
-        h = h_top * 2.0 ** (-level)
-        if level == levels - 1 or norm * h <= 0.5:
-            scaled = augmented * h
-            scaled[np.abs(scaled) < 1e-100] = 0.0
-            total = np.eye(size)
-            term = np.eye(size)
-            for k in range(1, 60):
-                term = term @ scaled / k
-                term[np.abs(term) < 1e-100] = 0.0
-                total += term
-                if np.abs(term).max() <= 1e-18 * np.abs(total).max():
-                    break
-            out[level] = total
-        else:
-            finer = out[level + 1].copy()
-            finer[np.abs(finer) < 1e-100] = 0.0
-            out[level] = finer @ finer
+    steps = h_top * 2.0 ** (-np.arange(levels))
+    # the Taylor levels (all of them at once, as a stack) ...
+    taylor = np.flatnonzero((norm * steps <= 0.5) | (np.arange(levels) == levels - 1))
+    scaled = augmented[None, :, :] * steps[taylor, None, None]
+    scaled[np.abs(scaled) < 1e-100] = 0.0
+    total = np.broadcast_to(np.eye(size), scaled.shape).copy()
+    term = total.copy()
+    for k in range(1, 60):
+        term = term @ scaled / k
+        term[np.abs(term) < 1e-100] = 0.0
+        total += term
+        if np.all(np.abs(term).max(axis=(1, 2)) <= 1e-18 * np.abs(total).max(axis=(1, 2))):
+            break
+    out[taylor] = total
+    # ... and the coarser ones by squaring
+    for level in range(int(taylor[0]) - 1, -1, -1):
+        finer = out[level + 1].copy()
+        finer[np.abs(finer) < 1e-100] = 0.0
+        out[level] = finer @ finer
     return out * scale[:, None] / scale[None, :]
 
 
@@ -945,11 +946,6 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
                 f"one instant ({_describe_switches(circuit, ev_from[:ev_n][-4:], ev_to[:ev_n][-4:])}; "
                 f"last: {circuit.label(int(store.code_of_slot[slot]))})"), x, t,
                 int(store.code_of_slot[slot]))
-        if False:
-            raise EngineError(
-                f"no consistent topology at t = {t:.9g} s after {MAX_CHAIN} switches at "
-                f"one instant ({_describe_switches(circuit, ev_from[:ev_n][-4:], ev_to[:ev_n][-4:])}; "
-                f"last: {circuit.label(int(store.code_of_slot[slot]))})")
         if status == _EVENTS:
             raise EngineError(
                 f"more than {max_events} switching events before t = {t:.9g} s; "
@@ -967,12 +963,12 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
             continue
         if status == _STOP:
             # back at the confirmed turn-on: drop what was simulated after it
-            total_events = int(pending[3])
-            total_records = int(pending[4])
-            _truncate(chunks_t, total_records), _truncate(chunks_x, total_records)
-            _truncate(chunks_c, total_records)
+            kept_events, kept_records = int(pending[3]), int(pending[4])
+            for chunks in (chunks_t, chunks_x, chunks_c):
+                _truncate(chunks, kept_records, total_records)
             for target in events:
-                _truncate(target, total_events)
+                _truncate(target, kept_events, total_events)
+            total_events, total_records = kept_events, kept_records
             if record:
                 chunks_t.append(np.array([t]))
                 chunks_x.append(x.copy()[None, :])
@@ -1006,15 +1002,13 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
     )
 
 
-def _truncate(chunks: list, length: int) -> None:
-    """Cut a list of array chunks to ``length`` rows in total (in place)."""
-    total = 0
-    for k, chunk in enumerate(chunks):
-        if total + len(chunk) >= length:
-            chunks[k] = chunk[:length - total]
-            del chunks[k + 1:]
-            return
-        total += len(chunk)
+def _truncate(chunks: list, length: int, total: int) -> None:
+    """Cut a list of array chunks holding ``total`` rows to ``length`` rows
+    (in place), working back from the end: only the last few rows go."""
+    while chunks and total - len(chunks[-1]) >= length:
+        total -= len(chunks.pop())
+    if chunks and total > length:
+        chunks[-1] = chunks[-1][:len(chunks[-1]) - (total - length)]
 
 
 def _with_state(error: EngineError, x, t, code) -> EngineError:
