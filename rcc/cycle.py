@@ -881,7 +881,8 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     load_power = np.where(collapsed, delivered, load_power)
     state["output"] = np.where(collapsed, _voltage_for_power(load, delivered, output), output)
     output_power = np.where(running, load_power, 0.0)
-    state.update(scale=scale, running=running, settled=settled, lockup=lockup & running, losses=scaled, output_power=output_power,
+    state.update(scale=scale, running=running, settled=settled, lockup=lockup & running,
+                 losses=scaled, output_power=output_power,
                  input_power=output_power + scaled.total)
     return state
 

@@ -163,8 +163,9 @@ def test_energy_per_cycle_feeds_output_and_losses(point):
     """Lm (Ipk^2 - I0^2) / 2 per cycle (boundary conduction starts each cycle
     at the ring current I0 and ends at zero) = output + rectifier +
     regulation + core loss of the flyback interval + what the clamp, the
-    turn-off and the drive reset take from it.  The core loss of the on-time is taken out of the reported
-    core loss with the bus voltage across ``core_loss_resistance``."""
+    turn-off and the drive reset take from it.  The core loss of the on-time
+    is taken out of the reported core loss with the bus voltage across
+    ``core_loss_resistance``."""
     name, line, load, temperature = point
     design = DESIGNS[name]
     points = operating_points(design, line, load, temperature)

@@ -943,7 +943,8 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
         if status == _CHAIN:
             raise _with_state(EngineError(
                 f"no consistent topology at t = {t:.9g} s after {MAX_CHAIN} switches at "
-                f"one instant ({_describe_switches(circuit, ev_from[:ev_n][-4:], ev_to[:ev_n][-4:])}; "
+                "one instant ("
+                f"{_describe_switches(circuit, ev_from[:ev_n][-4:], ev_to[:ev_n][-4:])}; "
                 f"last: {circuit.label(int(store.code_of_slot[slot]))})"), x, t,
                 int(store.code_of_slot[slot]))
         if status == _EVENTS:
