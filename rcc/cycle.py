@@ -40,7 +40,7 @@ from rcc.design import Design, Load
 from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain,
                           fall_time_charge_control, storage_time_rising_current,
                           turn_off_energy)
-from rcc.stress import clamp_power, leakage_spike, rcd_clamp_voltage
+from rcc.stress import clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_voltage
 from rcc.limiter import (auxiliary_voltage, regulation_current, trip_current)
 from rcc.mains import bus_voltage
 from rcc.flyback import reflected_voltage
@@ -525,7 +525,7 @@ class _Cycle:
         core_off = vr**2 / tr.core_loss_resistance * t_flyback
         # the clamp takes the leakage energy and, while the leakage current
         # falls, part of the magnetizing energy
-        leakage_rate = 0.5 * tr.leakage_inductance * peak**2 * frequency
+        leakage_rate = leakage_energy_rate(tr.leakage_inductance, peak, frequency)
         clamp_level = self._clamp_level(vr, peak, frequency)
         clamp_rate = np.where(d.clamp.type == "none", leakage_rate,
                               clamp_power(vr, clamp_level, tr.leakage_inductance, peak,

@@ -16,6 +16,7 @@ __all__ = [
     "leakage_spike",
     "rcd_clamp_voltage",
     "clamp_power",
+    "leakage_energy_rate",
     "peak_flux_density",
     "storage_overshoot",
     "switch_peak_voltage",
@@ -87,8 +88,29 @@ def rcd_clamp_voltage(reflected_voltage, leakage_inductance, peak_current,
     [1]_ (RCD clamp design)  # from memory (derivation re-done here)
     """
     vr = _as(reflected_voltage)
-    energy_rate = 0.5 * _as(leakage_inductance) * _as(peak_current) ** 2 * _as(switching_frequency)
+    energy_rate = leakage_energy_rate(leakage_inductance, peak_current, switching_frequency)
     return 0.5 * vr + np.sqrt(0.25 * vr * vr + _as(clamp_resistance) * energy_rate)
+
+
+def leakage_energy_rate(leakage_inductance, peak_current, switching_frequency):
+    """Leakage-inductance energy per second released at turn-off.
+
+    Parameters
+    ----------
+    leakage_inductance : float or array_like
+        Primary leakage inductance [H].
+    peak_current : float or array_like
+        Primary current at turn-off [A].
+    switching_frequency : float or array_like
+        Switching frequency [Hz].
+
+    Returns
+    -------
+    ndarray
+        ``L_lk Ipk^2 f / 2``, the energy an inductor stores, times the
+        switching frequency [W].
+    """
+    return 0.5 * _as(leakage_inductance) * _as(peak_current) ** 2 * _as(switching_frequency)
 
 
 def clamp_power(reflected_voltage, clamp_voltage, leakage_inductance, peak_current,
@@ -125,7 +147,7 @@ def clamp_power(reflected_voltage, clamp_voltage, leakage_inductance, peak_curre
     """
     vr = _as(reflected_voltage)
     vc = np.maximum(_as(clamp_voltage), vr * (1.0 + 1e-9))
-    energy_rate = 0.5 * _as(leakage_inductance) * _as(peak_current) ** 2 * _as(switching_frequency)
+    energy_rate = leakage_energy_rate(leakage_inductance, peak_current, switching_frequency)
     return energy_rate * vc / (vc - vr)
 
 

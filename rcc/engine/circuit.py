@@ -322,15 +322,17 @@ class Topology:
     def power_forms(self) -> dict:
         """See the class attributes (built on first use: only the energy
         integrals need them, not the simulation)."""
-        if not self._forms:
-            self._forms["power"], self._forms["loss"] = self.forms_builder()
-        return self._forms["power"]
+        return self._built_forms()["power"]
 
     @property
     def loss_forms(self) -> dict:
         """See the class attributes (built on first use)."""
-        self.power_forms  # noqa: B018 - builds both
-        return self._forms["loss"]
+        return self._built_forms()["loss"]
+
+    def _built_forms(self) -> dict:
+        if not self._forms:
+            self._forms["power"], self._forms["loss"] = self.forms_builder()
+        return self._forms
 
     def signals(self, x):
         """Named signals at state(s) ``x`` (shape (n,) or (k, n))."""
@@ -670,15 +672,6 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         "bus_current": lambda on: (("i", "bus", -1.0),),
     }
 
-    nodes = {"0"}
-    for element in els:
-        nodes.update((element.a, element.b))
-    for device in devs:
-        for state in device.states:
-            for element in state.elements:
-                nodes.update((element.a, element.b))
-    node_list = ("0",) + tuple(sorted(nodes - {"0"}))
-
     parameters = {
         "vbe": vbe, "vce_sat": sw.vce_sat, "vebo": sw.vebo, "hfe": gain,
         "tau_forward": tau_f, "tau_base": tau_bf, "tau_storage": tau_s,
@@ -691,15 +684,9 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         "feedback_ratio": sign * tr.feedback_turns / np_turns,
         "output_ratio": tr.output_turns / np_turns,
     }
-    return Circuit(
-        design=design, bus_voltage=float(bus_voltage), load=load,
-        temperature=float(temperature), hfe=gain,
-        state_names=tuple(states),
-        device_names=tuple(d.name for d in devs),
-        device_state_names=tuple(tuple(s.name for s in d.states) for d in devs),
-        parameters=parameters,
-        _elements=tuple(els), _devices=tuple(devs), _nodes=node_list, _signals=signals,
-    )
+    return _make_circuit(els, devs, states, signals, parameters, design=design,
+                         bus_voltage=float(bus_voltage), load=load,
+                         temperature=float(temperature), hfe=gain)
 
 
 def build_network(elements, devices_, state_names, signals=None, parameters=None) -> Circuit:
@@ -726,6 +713,14 @@ def build_network(elements, devices_, state_names, signals=None, parameters=None
     Circuit
         With ``design=None`` and no bus or load.
     """
+    return _make_circuit(elements, devices_, state_names, signals or {}, parameters or {},
+                         design=None, bus_voltage=float("nan"), load=None,
+                         temperature=float("nan"), hfe=float("nan"))
+
+
+def _make_circuit(elements, devices_, state_names, signals, parameters, **condition) -> Circuit:
+    """The circuit of an element and device list; its nodes are those the
+    elements (fixed or in any device state) connect."""
     nodes = {"0"}
     for element in elements:
         nodes.update((element.a, element.b))
@@ -734,13 +729,11 @@ def build_network(elements, devices_, state_names, signals=None, parameters=None
             for element in state.elements:
                 nodes.update((element.a, element.b))
     return Circuit(
-        design=None, bus_voltage=float("nan"), load=None, temperature=float("nan"),
-        hfe=float("nan"), state_names=tuple(state_names),
+        state_names=tuple(state_names),
         device_names=tuple(d.name for d in devices_),
         device_state_names=tuple(tuple(s.name for s in d.states) for d in devices_),
-        parameters=dict(parameters or {}), _elements=tuple(elements),
-        _devices=tuple(devices_), _nodes=("0",) + tuple(sorted(nodes - {"0"})),
-        _signals=dict(signals or {}))
+        parameters=dict(parameters), _elements=tuple(elements), _devices=tuple(devices_),
+        _nodes=("0",) + tuple(sorted(nodes - {"0"})), _signals=dict(signals), **condition)
 
 
 def _scale(terms, factor):

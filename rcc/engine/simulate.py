@@ -68,7 +68,6 @@ __all__ = [
     "advance_cycle",
     "power_on_state",
     "segment_energy",
-    "segment_losses",
     "cycle_power",
     "CyclePower",
     "segment_state_integral",
@@ -1209,28 +1208,14 @@ def segment_energy(topology: Topology, x0, duration: float) -> dict:
     integral is ``sum(Q * X)`` with the state integral ``X`` of
     :func:`segment_state_integral`.
     """
-    integral = segment_state_integral(topology, x0, duration)
-    return {key: float(np.sum(Q * integral)) for key, Q in topology.power_forms.items()}
+    return _form_integrals(topology.power_forms,
+                           segment_state_integral(topology, x0, duration))
 
 
-def segment_losses(topology: Topology, x0, duration: float) -> dict:
-    """Exact energy dissipated in each element over one segment.
-
-    Parameters
-    ----------
-    topology : Topology
-    x0 : array_like, shape (n,)
-        State at the segment start [state units].
-    duration : float
-        Segment length [s].
-
-    Returns
-    -------
-    dict of str to float
-        Energy by element or device (keys of :attr:`Topology.loss_forms`) [J].
-    """
-    integral = segment_state_integral(topology, x0, duration)
-    return {key: float(np.sum(Q * integral)) for key, Q in topology.loss_forms.items()}
+def _form_integrals(forms: dict, integral: np.ndarray) -> dict:
+    """Integrals ``sum(Q * X)`` of quadratic forms over a segment with state
+    integral ``X`` [J]."""
+    return {key: float(np.sum(form * integral)) for key, form in forms.items()}
 
 
 @dataclass(frozen=True)
@@ -1281,20 +1266,20 @@ def cycle_power(circuit: Circuit, cycle: CycleResult) -> CyclePower:
     """
     if not cycle.period > 0:
         raise EngineError("cycle_power: the cycle has no duration")
-    totals = {"input": 0.0, "output": 0.0, "stored": 0.0}
+    totals: dict = {}
     losses: dict = {}
     for segment in cycle.segments:
         topology = circuit.topology(segment.topology)
         integral = segment_state_integral(topology, segment.start_state, segment.duration)
-        for key in totals:
-            totals[key] += float(np.sum(topology.power_forms[key] * integral))
-        for key, form in topology.loss_forms.items():
-            losses[key] = losses.get(key, 0.0) + float(np.sum(form * integral))
+        for target, forms in ((totals, topology.power_forms), (losses, topology.loss_forms)):
+            for key, energy in _form_integrals(forms, integral).items():
+                target[key] = target.get(key, 0.0) + energy
     rate = 1.0 / cycle.period
     ordered = dict(sorted(((key, value * rate) for key, value in losses.items()),
                           key=lambda item: -item[1]))
-    return CyclePower(input=totals["input"] * rate, output=totals["output"] * rate,
-                      losses=ordered, stored=totals["stored"] * rate)
+    return CyclePower(input=totals.get("input", 0.0) * rate,
+                      output=totals.get("output", 0.0) * rate,
+                      losses=ordered, stored=totals.get("stored", 0.0) * rate)
 
 
 def segment_state_integral(topology: Topology, x0, duration: float) -> np.ndarray:
