@@ -636,7 +636,8 @@ def test_cycle_bcm_points_follow_the_flyback_relations(name):
     extra = (points.on_time - ramp)[bcm]
     assert np.all(extra >= -1e-9 * ramp[bcm])
     assert np.all(extra <= points.turn_off_time[bcm] * (1 + 1e-9))
-    # the ring current at turn-on is at most V_R / sqrt(Lm / C) (LC ring)
+    # the ring current at turn-on is at most V_R / sqrt(Lm / C): an LC ring
+    # trades C V^2 / 2 for L I^2 / 2  # common practice (lossless LC tank)
     assert np.all(points.start_current[bcm] <= 0.0)
     vr = flyback.reflected_voltage(points.output_voltage, design.output.rectifier_drop,
                                    tr.primary_turns, tr.output_turns)
