@@ -206,7 +206,8 @@ EXP_LIMIT = 40.0
  P_LLK, P_LM, P_RCORE, P_RP, P_RF, P_RO, P_RA, P_RST, P_RD, P_CD, P_GBE, P_RS, P_RLB,
  P_COUT, P_ESR, P_RKNEE, P_OIS, P_OR, P_AIS, P_AR, P_HAS_AUX, P_HAS_OPTO, P_CLAMP,
  P_LOADKIND, P_LOADVAL, P_LOADKNEE, P_CAUX, P_RREG, P_ZIS, P_VREF, P_CTR, P_LEDKNEE,
- P_LEDIS, P_CZIS, P_RCLAMP, P_CCLAMP, P_CDIS, P_IOUT, P_IAUX, P_ICLAMP, P_SIZE) = range(53)
+ P_LEDIS, P_CZIS, P_RCLAMP, P_CCLAMP, P_CDIS, P_IOUT, P_IAUX, P_ICLAMP, P_BR2,
+ P_SIZE) = range(54)
 
 #: Named signals, in the order of the kernel's signal vector.
 SIGNALS = ("collector_current", "primary_current", "collector_voltage", "base_voltage",
@@ -340,7 +341,7 @@ def _equations(y, p, dy, sig, guess):
     guess[0] = v_m
     ic1, ib1, c_be1, c_bc1, i_f1 = _bjt(v_b - v_e, v_b - v_c, p[P_IS1], p[P_HFE],
                                        REVERSE_GAIN, p[P_TAUF], p[P_TAUR], 0.0, p[P_CBC], vt)
-    ic2, ib2, c_be2, c_bc2, _ = _bjt(v_l, v_l - v_b, p[P_IS2], p[P_HFE2], REVERSE_GAIN,
+    ic2, ib2, c_be2, c_bc2, _ = _bjt(v_l, v_l - v_b, p[P_IS2], p[P_HFE2], p[P_BR2],
                                      LIMITER_FORWARD_TRANSIT, LIMITER_REVERSE_TRANSIT,
                                      LIMITER_EMITTER_CAPACITANCE,
                                      LIMITER_COLLECTOR_CAPACITANCE, vt)
@@ -414,7 +415,10 @@ def _equations(y, p, dy, sig, guess):
         dy[i_aux] = (i_a - i_z) / p[P_CAUX]
     if i_clamp_state >= 0:
         dy[i_clamp_state] = (i_cl - y[i_clamp_state] / p[P_RCLAMP]) / p[P_CCLAMP]
-    sig[0], sig[1], sig[2], sig[3], sig[4] = ic1, i_lk, v_c, v_b, v_e
+    # collector terminal current without the depletion part of C_bc (what
+    # flows through the junctions, transport plus stored-charge current)
+    collector = i_lk - i_cl - p[P_CW] * cur[0] - p[P_CBC] * (cur[0] - cur[1])
+    sig[0], sig[1], sig[2], sig[3], sig[4] = collector, i_lk, v_c, v_b, v_e
     sig[5], sig[6], sig[7], sig[8], sig[9] = v_o, v_drive, ic2, v_m, p[P_RF] * v_m
     sig[10], sig[11], sig[12], sig[13] = ib1, i_o, i_cl, i_bd
     sig[14], sig[15], sig[16], sig[17], sig[18] = v_a, i_z, i_a, i_led, v_l
@@ -539,7 +543,8 @@ class SmoothCircuit:
 
     def state_from(self, values: dict) -> np.ndarray:
         """State vector from named values; missing names take defaults: the
-        limiter base at the emitter voltage, the output terminal at the
+        limiter base at the emitter voltage but at most one limiter
+        junction drop above the base, the output terminal at the
         output capacitor, everything else zero.  Unknown names raise."""
         unknown = set(values) - set(self.state_names)
         if unknown:
@@ -549,8 +554,11 @@ class SmoothCircuit:
         idx = self.index
         for name, value in values.items():
             x[idx[name]] = float(value)
-        if "v_limiter_base" not in values and "v_emitter" in values:
-            x[idx["v_limiter_base"]] = float(values["v_emitter"])
+        if "v_limiter_base" not in values:
+            # tied to the emitter through R_lb, but no more than one junction
+            # drop above the base (the limiter's collector-base junction)
+            x[idx["v_limiter_base"]] = min(x[idx["v_emitter"]],
+                                           x[idx["v_base"]] + self.parameters["limiter_vbe"])
         if "v_output" in idx and "v_output" not in values:
             x[idx["v_output"]] = x[idx["v_output_capacitor"]]
         return x
@@ -614,7 +622,7 @@ def state_names(design: Design) -> tuple:
 
 
 def build_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=None,
-                 hfe=None) -> SmoothCircuit:
+                 hfe=None, limiter_reverse_gain: float = REVERSE_GAIN) -> SmoothCircuit:
     """The smooth circuit of a design (device constants: module docstring).
 
     Parameters
@@ -627,6 +635,10 @@ def build_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=
         Junction temperature [K]; default 25 degC.
     hfe : float, optional
         Switch gain at 25 degC [1]; default ``switch.hfe_typ``.
+    limiter_reverse_gain : float
+        Inverse current gain of the limiter [1] (default :data:`REVERSE_GAIN`);
+        a study parameter: the limiter works inverted while its
+        collector-base junction resets the drive capacitor.
 
     Returns
     -------
@@ -712,6 +724,7 @@ def build_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=
         dr.resistance, dr.capacitance, p["base_emitter_conductance"], lim.sense_resistance,
         lim.base_resistance, out.capacitance, out.esr, rect_knee]
     v[P_OIS], v[P_OR] = p["output_rectifier"]
+    v[P_BR2] = limiter_reverse_gain
     v[P_AIS], v[P_AR] = p["aux_rectifier"]
     v[P_HAS_AUX], v[P_HAS_OPTO] = float(p["has_aux"]), float(p["has_optocoupler"])
     v[P_CLAMP] = {"none": 0.0, "zener": 1.0, "rcd": 2.0}[clamp.type]
@@ -772,8 +785,9 @@ class SmoothRun:
     states : dict of str to ndarray
         Every state (names: :func:`state_names`) [state units].
     signals : dict of str to ndarray
-        ``collector_current`` (Ebers-Moll transport collector current,
-        without the charging currents) [A], ``primary_current`` [A],
+        ``collector_current`` (collector terminal current less the
+        displacement current of the depletion capacitance ``C_bc``: the
+        Ebers-Moll transport current plus the stored-charge current) [A], ``primary_current`` [A],
         ``collector_voltage``, ``base_voltage``, ``emitter_voltage``,
         ``output_voltage`` (terminal), ``drive_capacitor_voltage``,
         ``feedback_voltage``, ``magnetizing_voltage`` [V],
@@ -784,8 +798,9 @@ class SmoothRun:
         with an optocoupler ``led_current`` [A].
     turn_on_times : ndarray
         Instants the collector current rises through ``turn_on_threshold``
-        after a cut-off interval (below half the threshold for at least
-        ``CUTOFF_INTERVAL``), linearly interpolated [s].
+        after a cut-off interval (below half the threshold, with the
+        collector above half the bus, for at least ``CUTOFF_INTERVAL``),
+        linearly interpolated [s].
     peak_currents : ndarray
         Largest primary current between consecutive turn-ons, one per full
         cycle [A].
@@ -840,12 +855,14 @@ class SmoothRun:
 CUTOFF_INTERVAL = 100e-9
 
 
-def _turn_ons(time, current, threshold):
-    """Rising crossings of ``threshold`` after at least CUTOFF_INTERVAL below
-    ``threshold / 2`` (module SmoothRun docstring)."""
-    below = current < 0.5 * threshold
+def _turn_ons(time, current, threshold, collector_voltage, bus_voltage):
+    """Rising crossings of ``threshold`` after a cut-off interval: at least
+    CUTOFF_INTERVAL with the current below ``threshold / 2`` and the
+    collector above half the bus (so the dip after the node-capacitance
+    discharge spike at turn-on, with the collector already down, is not one)."""
+    below = (current < 0.5 * threshold) & (collector_voltage > 0.5 * bus_voltage)
     found = []
-    last_low_start = None
+    last_low_start = time[0] if len(time) and below[0] else None
     armed = False
     for k in range(1, len(time)):
         if below[k] and not below[k - 1]:
@@ -862,7 +879,8 @@ def _turn_ons(time, current, threshold):
 
 def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=None,
                     hfe=None, duration: float, initial=None, rtol: float = 1e-6, atol=None,
-                    max_step=None, method: str = "Radau") -> SmoothRun:
+                    max_step=None, method: str = "Radau",
+                    limiter_reverse_gain: float = REVERSE_GAIN) -> SmoothRun:
     """Integrate the smooth reference circuit.
 
     Parameters
@@ -891,6 +909,8 @@ def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperatu
         Longest step [s].
     method : str
         ``"Radau"`` or ``"BDF"`` (scipy's stiff solvers).
+    limiter_reverse_gain : float
+        See :func:`build_smooth` [1].
 
     Returns
     -------
@@ -906,7 +926,8 @@ def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperatu
     The right-hand side and a forward-difference Jacobian are compiled
     (numba); scipy's Radau IIA [7]_ (or BDF) does the rest.
     """
-    circuit = build_smooth(design, bus_voltage, load, temperature=temperature, hfe=hfe)
+    circuit = build_smooth(design, bus_voltage, load, temperature=temperature, hfe=hfe,
+                           limiter_reverse_gain=limiter_reverse_gain)
     names = circuit.state_names
     x0 = circuit.power_on_state() if initial is None else circuit.state_from(initial)
     if atol is None:
@@ -923,7 +944,8 @@ def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperatu
     signals = circuit.signals(states)
     p = design.limiter
     threshold = 0.1 * p.vbe / p.sense_resistance
-    ons = _turn_ons(t, signals["collector_current"], threshold)
+    ons = _turn_ons(t, signals["collector_current"], threshold, signals["collector_voltage"],
+                    float(bus_voltage))
     peaks = np.array([signals["primary_current"][(t >= a) & (t < b)].max()
                       for a, b in zip(ons[:-1], ons[1:])])
     return SmoothRun(time=t, states={n: states[k] for k, n in enumerate(names)},
