@@ -250,12 +250,20 @@ def _w_of_exp(x):
 
 
 @njit(cache=True)
-def _series(v, i0, a, r, i1):
-    """Junction ``i = i0 exp((v - i r)/a) - i1`` with series resistance r:
-    ``i + i1 = (a/r) W((i0 r/a) exp((v + i1 r)/a))``; returns (i, di/dv)."""
-    x = math.log(i0 * r / a) + (v + i1 * r) / a
+def _series_log(v, log_i0, a, r, i1):
+    """Junction ``i = i0 exp((v - i r)/a) - i1`` with series resistance r,
+    given ``ln i0`` (a breakdown law at tens of volts has ``i0`` below the
+    smallest double): ``i + i1 = (a/r) W((i0 r/a) exp((v + i1 r)/a))``;
+    returns (i, di/dv)."""
+    x = log_i0 + math.log(r / a) + (v + i1 * r) / a
     w = _w_of_exp(x)
     return w * a / r - i1, w / ((1.0 + w) * r)
+
+
+@njit(cache=True)
+def _series(v, i0, a, r, i1):
+    """:func:`_series_log` with the saturation current itself."""
+    return _series_log(v, math.log(i0), a, r, i1)
 
 
 @njit(cache=True)
@@ -351,13 +359,13 @@ def _equations(y, p, dy, sig, guess):
     i_led = 0.0
     i_inject = 0.0
     if i_aux >= 0:
-        i_z, _ = _series(v_a - v_l, p[P_ZIS], p[P_KNEE], p[P_RREG], 0.0)
+        i_z, _ = _series_log(v_a - v_l, p[P_ZIS], p[P_KNEE], p[P_RREG], 0.0)
     elif p[P_HAS_OPTO] > 0.0:
         i_led, _ = _series(v_o - p[P_VREF], p[P_LEDIS], p[P_LEDKNEE], p[P_RREG], p[P_LEDIS])
         i_inject = p[P_CTR] * i_led
     i_cl = 0.0
     if p[P_CLAMP] == 1.0:
-        i_cl, _ = _series(v_c - bus, p[P_CZIS], p[P_KNEE], CLAMP_ZENER_RESISTANCE, 0.0)
+        i_cl, _ = _series_log(v_c - bus, p[P_CZIS], p[P_KNEE], CLAMP_ZENER_RESISTANCE, 0.0)
     elif p[P_CLAMP] == 2.0:
         i_cl, _ = _series(v_c - bus - y[i_clamp_state], p[P_CDIS], p[P_RKNEE],
                           CLAMP_DIODE[2], p[P_CDIS])
@@ -498,7 +506,8 @@ def series_junction_current(voltage, saturation_current, knee_voltage, resistanc
         ``i`` [A] and ``di/dv`` [S].
     """
     i1 = saturation_current if offset_current is None else offset_current
-    return _series(float(voltage), saturation_current, knee_voltage, resistance, i1)
+    return _series_log(float(voltage), math.log(saturation_current), knee_voltage,
+                       resistance, i1)
 
 
 # ------------------------------------------------------------------ circuit
@@ -622,7 +631,8 @@ def state_names(design: Design) -> tuple:
 
 
 def build_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=None,
-                 hfe=None, limiter_reverse_gain: float = REVERSE_GAIN) -> SmoothCircuit:
+                 hfe=None, limiter_reverse_gain: float = REVERSE_GAIN,
+                 limiter_vbe_current: float = LIMITER_VBE_CURRENT) -> SmoothCircuit:
     """The smooth circuit of a design (device constants: module docstring).
 
     Parameters
@@ -639,6 +649,10 @@ def build_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=
         Inverse current gain of the limiter [1] (default :data:`REVERSE_GAIN`);
         a study parameter: the limiter works inverted while its
         collector-base junction resets the drive capacitor.
+    limiter_vbe_current : float
+        Collector current at which the limiter's base-emitter voltage is
+        ``limiter.vbe`` [A] (default :data:`LIMITER_VBE_CURRENT`, as
+        ``notes/circuit.md``); a study parameter.
 
     Returns
     -------
@@ -666,7 +680,7 @@ def build_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=
     p = {
         "thermal_voltage": vt, "hfe": gain, "vbe": vbe, "limiter_vbe": limiter_vbe,
         "switch_saturation_current": trip * math.exp(-vbe / vt),
-        "limiter_saturation_current": LIMITER_VBE_CURRENT * math.exp(-limiter_vbe / vt),
+        "limiter_saturation_current": limiter_vbe_current * math.exp(-limiter_vbe / vt),
         "limiter_hfe": lim.hfe, "tau_forward": tau_f, "tau_reverse": tau_r,
         "tau_storage": tau_s, "vebo": sw.vebo, "knee": knee,
         "collector_base_capacitance": sw.output_capacitance,
@@ -699,14 +713,14 @@ def build_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=
         vz = float(devices.zener_voltage(reg.zener_voltage, reg.zener_tempco, temperature))
         p.update(zener_voltage=vz, aux_capacitance=reg.filter_capacitance,
                  regulation_resistance=reg.series_resistance,
-                 zener_saturation_current=ZENER_TEST_CURRENT * math.exp(-vz / knee))
+                 zener_log_saturation_current=math.log(ZENER_TEST_CURRENT) - vz / knee)
     if p["has_optocoupler"]:
         led_knee = LED_EMISSION * vt
         p.update(reference_voltage=reg.reference_voltage, ctr=reg.ctr, led_knee=led_knee,
                  regulation_resistance=reg.series_resistance,
                  led_saturation_current=LED_CURRENT * math.exp(-reg.led_drop / led_knee))
     if clamp.type == "zener":
-        p["clamp_zener_saturation"] = CLAMP_ZENER_CURRENT * math.exp(-clamp.voltage / knee)
+        p["clamp_zener_log_saturation"] = math.log(CLAMP_ZENER_CURRENT) - clamp.voltage / knee
     elif clamp.type == "rcd":
         drop, current, _ = CLAMP_DIODE
         p.update(clamp_resistance=clamp.resistance, clamp_capacitance=clamp.capacitance,
@@ -732,13 +746,13 @@ def build_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=
     v[P_LOADVAL], v[P_LOADKNEE] = load.value, p["load_knee"]
     if p["has_aux"]:
         v[P_CAUX], v[P_RREG], v[P_ZIS] = (reg.filter_capacitance, reg.series_resistance,
-                                          p["zener_saturation_current"])
+                                          p["zener_log_saturation_current"])
     if p["has_optocoupler"]:
         v[P_VREF], v[P_CTR], v[P_LEDKNEE], v[P_LEDIS], v[P_RREG] = (
             reg.reference_voltage, reg.ctr, p["led_knee"], p["led_saturation_current"],
             reg.series_resistance)
     if clamp.type == "zener":
-        v[P_CZIS] = p["clamp_zener_saturation"]
+        v[P_CZIS] = p["clamp_zener_log_saturation"]
     elif clamp.type == "rcd":
         v[P_RCLAMP], v[P_CCLAMP], v[P_CDIS] = (clamp.resistance, clamp.capacitance,
                                                p["clamp_diode_saturation"])
@@ -880,7 +894,8 @@ def _turn_ons(time, current, threshold, collector_voltage, bus_voltage):
 def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperature=None,
                     hfe=None, duration: float, initial=None, rtol: float = 1e-6, atol=None,
                     max_step=None, method: str = "Radau",
-                    limiter_reverse_gain: float = REVERSE_GAIN) -> SmoothRun:
+                    limiter_reverse_gain: float = REVERSE_GAIN,
+                    limiter_vbe_current: float = LIMITER_VBE_CURRENT) -> SmoothRun:
     """Integrate the smooth reference circuit.
 
     Parameters
@@ -911,6 +926,8 @@ def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperatu
         ``"Radau"`` or ``"BDF"`` (scipy's stiff solvers).
     limiter_reverse_gain : float
         See :func:`build_smooth` [1].
+    limiter_vbe_current : float
+        See :func:`build_smooth` [A].
 
     Returns
     -------
@@ -927,7 +944,8 @@ def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperatu
     (numba); scipy's Radau IIA [7]_ (or BDF) does the rest.
     """
     circuit = build_smooth(design, bus_voltage, load, temperature=temperature, hfe=hfe,
-                           limiter_reverse_gain=limiter_reverse_gain)
+                           limiter_reverse_gain=limiter_reverse_gain,
+                           limiter_vbe_current=limiter_vbe_current)
     names = circuit.state_names
     x0 = circuit.power_on_state() if initial is None else circuit.state_from(initial)
     if atol is None:

@@ -65,7 +65,8 @@ def test_zener_knee_is_60_mv_per_decade():
     # 60 mV (Sze & Ng 2007 ch. 2; the figure is common practice)
     circuit = build_smooth(load_design(STANDBY), 325.0, Load("current", 0.3))
     p = circuit.parameters
-    currents = [series_junction_current(p["zener_voltage"] + dv, p["zener_saturation_current"],
+    currents = [series_junction_current(p["zener_voltage"] + dv,
+                                        math.exp(p["zener_log_saturation_current"]),
                                         p["knee"], 1e-6, 0.0)[0] for dv in (0.0, 0.060)]
     assert currents[0] == pytest.approx(5e-3, rel=1e-4)   # test current at Vz
     assert currents[1] / currents[0] == pytest.approx(10.0, rel=1e-3)
