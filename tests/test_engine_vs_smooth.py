@@ -98,8 +98,12 @@ def _common_state(bus):
 
 
 #: bus voltages: 85 V and 230 V RMS rectified (DOMAIN check values: 120.2 V
-#: and 325.3 V peak); reference durations cover two of its cycles
-CASES = {"85V": (120.0, 30e-6), "230V": (325.0, 28e-6)}
+#: and 325.3 V peak); reference durations: two cycles at 85 V; at 230 V the
+#: first burst (10 pulses from the common state) and 0.6 ms of the pause
+#: after it
+CASES = {"85V": (120.0, 30e-6), "230V": (325.0, 0.72e-3)}
+#: Least pause that makes a burst [s]: far above any switching period here
+BURST_PAUSE = 100e-6
 
 
 @pytest.fixture(scope="module", params=sorted(CASES))
@@ -109,6 +113,12 @@ def compared(request):
     reference = simulate_smooth(design, bus, LOAD, duration=duration, initial=common)
     engine_ons = engine.turn_on_times() - t_mid
     return bus, design, engine, t_mid, engine_ons, reference
+
+
+def _longest_quiet(turn_ons, start, end):
+    """Longest interval without a turn-on in [start, end] [s]."""
+    marks = np.concatenate([[start], turn_ons[(turn_ons > start) & (turn_ons < end)], [end]])
+    return float(np.max(np.diff(marks)))
 
 
 def _ramp_slope(time, current, low, high):
@@ -174,8 +184,50 @@ def test_switching_cycle_agrees(compared):
 
 
 def test_output_holds_over_the_compared_cycles(compared):
-    # over two cycles the 470 uF output moves by millivolts in both: the
-    # outputs agree within 0.5 % (the common state fixes the capacitor)
+    # over the compared cycles the 470 uF output capacitor moves by tens of
+    # millivolts in both: it agrees within 0.5 % at the engine's last
+    # turn-on (the common state fixes it; the terminal voltage is not
+    # compared: it carries the ESR drop of the rectifier pulse, whose size
+    # is the peak current of test_switching_cycle_agrees)
     bus, design, engine, t_mid, engine_ons, reference = compared
-    assert reference.signals["output_voltage"][-1] == pytest.approx(
-        engine["output_voltage"][-1], rel=5e-3)
+    at = engine.times[-1] - t_mid
+    capacitor = engine.states[-1, engine.state_names.index("v_output_capacitor")]
+    assert np.interp(at, reference.time, reference.states["v_output_capacitor"]) == \
+        pytest.approx(capacitor, rel=5e-3)
+
+
+@pytest.fixture(scope="module")
+def bursts(compared):
+    bus, design, engine, t_mid, engine_ons, reference = compared
+    if bus < 300:
+        pytest.skip("regular switching at 85 V: no bursts in either model")
+    duration = reference.time[-1]
+    circuit = build_circuit(design, bus, LOAD, TEMPERATURE)
+    x0 = engine.states[0]
+    long_engine = simulate(circuit, x0, t_mid + duration, t_start=t_mid, record=False,
+                           topology=int(engine.topologies[0]))
+    return (_longest_quiet(reference.turn_on_times, 0.0, duration),
+            _longest_quiet(long_engine.turn_on_times() - t_mid, 0.0, duration))
+
+
+def test_both_burst_at_high_line(bursts):
+    # the standby case at 230 V and 0.3 A bursts: the regulation zener's
+    # current holds the limiter on after demagnetization until the
+    # auxiliary capacitor has drained (DOMAIN "Operation" 5).  The
+    # reference's pause after its first burst is 885 us (the general-purpose
+    # simulation quoted in issue 8: about 830 us after groups of about 25
+    # pulses 11-17 us apart; the reference's next burst, not run here:
+    # 30+ pulses 10-16 us apart, peaks 0.30-0.50 A); the engine pauses too
+    reference_quiet, engine_quiet = bursts
+    assert reference_quiet > 5 * BURST_PAUSE
+    assert engine_quiet > BURST_PAUSE
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "engine pauses 162 us after bursts of about 19 pulses, the reference 885 us after 10-30+: "
+    "inference, not settled: the engine's low trip current (see test_switching_cycle_agrees) "
+    "puts less energy into each pulse and the auxiliary capacitor, so its bursts are short"))
+def test_burst_pause_agrees(bursts):
+    # the pause (dead time of the burst) within 20 %
+    reference_quiet, engine_quiet = bursts
+    assert engine_quiet == pytest.approx(reference_quiet, rel=0.2)
