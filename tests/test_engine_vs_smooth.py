@@ -7,7 +7,9 @@ Sources: the reference itself (its own checks against closed forms are in
 ``tests/test_smooth_reference.py``); the parallel RLC ring (Alexander &
 Sadiku, *Fundamentals of Electric Circuits*, 5th ed., 2013, sec. 8.5) and
 the RL ramp ``di/dt = V / L`` (Faraday's law) as closed forms both must
-meet.  The worked case is invented demo data.  The comparisons start both
+meet; the behaviour issue 8 quotes from a general-purpose simulation with
+physical device models (bursts at 230 V, lock-up of the 48 V case).  The
+worked cases are invented demo data.  The standby comparisons start both
 models from one common state, taken from the engine in the middle of an
 off-time after a 1500-cycle warm-up from power-on (about 20-27 ms), where
 every junction is off and the fast nodes follow the slow ones; disagreements
@@ -231,3 +233,43 @@ def test_burst_pause_agrees(bursts):
     # the pause (dead time of the burst) within 20 %
     reference_quiet, engine_quiet = bursts
     assert engine_quiet == pytest.approx(reference_quiet, rel=0.2)
+
+
+# ------------------------- another design: the 48 V case from power-on
+AUX = "worked_cases/aux_5v_48v_dc.toml"
+AUX_BUS, AUX_LOAD, AUX_DURATION = 48.0, Load("current", 0.6), 0.32e-3
+
+
+@pytest.fixture(scope="module")
+def aux_power_on():
+    design = load_design(AUX)
+    circuit = build_circuit(design, AUX_BUS, AUX_LOAD, TEMPERATURE)
+    engine = simulate(circuit, power_on_state(circuit), AUX_DURATION)
+    reference = simulate_smooth(design, AUX_BUS, AUX_LOAD, duration=AUX_DURATION)
+    return engine, reference
+
+
+def test_aux_case_locks_up_in_both(aux_power_on):
+    # issue 8: from power-on at 48 V and 0.6 A the case does not start into
+    # its load (the general-purpose simulation quoted there: output near
+    # 1.6-1.8 V); in both models one pulse at switch-on, then a hiccup
+    # restart after more than 100 us, the 5 V output below 1 V
+    engine, reference = aux_power_on
+    engine_restarts = engine.turn_on_times()[1:]
+    assert len(engine_restarts) >= 1 and engine_restarts[0] > 100e-6
+    # the reference counts turn-ons after a cut-off with the collector up,
+    # so the pulse at switch-on (collector still at 0 V) is not among them
+    assert len(reference.turn_on_times) >= 1 and reference.turn_on_times[0] > 100e-6
+    assert engine["output_voltage"].max() < 1.0
+    assert reference.signals["output_voltage"].max() < 1.0
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "hiccup restart: engine after 253 us, reference after 151 us; the engine's switch waits "
+    "for its base to reach the threshold switch.vbe = 0.75 V, while the exponential junction "
+    "regenerates from about 0.5 V, and the reference's reset ends higher (base -0.3 V against "
+    "-0.9 V) through the limiter's inverse-mode current (notes/smooth_reference.md)"))
+def test_aux_case_restart_agrees(aux_power_on):
+    # the first restart after the pulse at switch-on, within 10 %
+    engine, reference = aux_power_on
+    assert engine.turn_on_times()[1] == pytest.approx(reference.turn_on_times[0], rel=0.1)
