@@ -240,6 +240,12 @@ AUX = "worked_cases/aux_5v_48v_dc.toml"
 AUX_BUS, AUX_LOAD, AUX_DURATION = 48.0, Load("current", 0.6), 0.32e-3
 
 
+def _restarts(turn_ons):
+    """Turn-ons after the pulse at switch-on (the reference does not count
+    that one: its collector has not been up yet) [s]."""
+    return turn_ons[turn_ons > 20e-6]
+
+
 @pytest.fixture(scope="module")
 def aux_power_on():
     design = load_design(AUX)
@@ -255,11 +261,8 @@ def test_aux_case_locks_up_in_both(aux_power_on):
     # 1.6-1.8 V); in both models one pulse at switch-on, then a hiccup
     # restart after more than 100 us, the 5 V output below 1 V
     engine, reference = aux_power_on
-    engine_restarts = engine.turn_on_times()[1:]
-    assert len(engine_restarts) >= 1 and engine_restarts[0] > 100e-6
-    # the reference counts turn-ons after a cut-off with the collector up,
-    # so the pulse at switch-on (collector still at 0 V) is not among them
-    assert len(reference.turn_on_times) >= 1 and reference.turn_on_times[0] > 100e-6
+    for restarts in _restarts(engine.turn_on_times()), _restarts(reference.turn_on_times):
+        assert len(restarts) >= 1 and restarts[0] > 100e-6
     assert engine["output_voltage"].max() < 1.0
     assert reference.signals["output_voltage"].max() < 1.0
 
@@ -272,4 +275,5 @@ def test_aux_case_locks_up_in_both(aux_power_on):
 def test_aux_case_restart_agrees(aux_power_on):
     # the first restart after the pulse at switch-on, within 10 %
     engine, reference = aux_power_on
-    assert engine.turn_on_times()[1] == pytest.approx(reference.turn_on_times[0], rel=0.1)
+    assert _restarts(engine.turn_on_times())[0] == pytest.approx(
+        _restarts(reference.turn_on_times)[0], rel=0.1)
