@@ -32,7 +32,7 @@ delivers (the ideal transformer's power balance gives the primary current
 ``sum_k r_k i_k``).  Every ``i_k`` is non-decreasing in its winding voltage,
 so the left side is strictly decreasing in ``v_m``: it has one root, found by
 Newton's method safeguarded with bisection inside the RHS (bracket in
-``_magnetizing_voltage``).  Because KCL at m makes the current into the
+``_magnetizing``).  Because KCL at m makes the current into the
 collector node equal to ``i_lk``, node c sees ``i_lk`` and the collector
 currents of the switch and the clamp.
 
@@ -48,8 +48,10 @@ emitter-ground (time constant ``R_s C_e`` = 0.16 ns at 1.6 ohm; it takes
 hundreds of mA through the sense resistor) and ``C_o`` = 10 nF at the output
 terminal, shunted by the ESR (0.1 ohm x 10 nF = 1 ns; against a reflected
 leakage of about 1 uH it rings with quality factor ``R_esr sqrt(C_o/L)``
-below 0.02, i.e. not at all).  Both change the waveforms by far less than
-the tolerance of any comparison (stated where checked).
+below 0.02, i.e. not at all).  Measured on the standby case at 85 V (two
+cycles from a common state): with both at a tenth of these values the
+turn-on instants move by 0.2 ns and the peak currents by under 1e-5
+relative; so do they between ``rtol`` 1e-5, 1e-6 and 1e-8.
 
 Device laws (every choice and its source)
 -----------------------------------------
@@ -801,13 +803,15 @@ class SmoothRun:
     signals : dict of str to ndarray
         ``collector_current`` (collector terminal current less the
         displacement current of the depletion capacitance ``C_bc``: the
-        Ebers-Moll transport current plus the stored-charge current) [A], ``primary_current`` [A],
-        ``collector_voltage``, ``base_voltage``, ``emitter_voltage``,
-        ``output_voltage`` (terminal), ``drive_capacitor_voltage``,
-        ``feedback_voltage``, ``magnetizing_voltage`` [V],
+        Ebers-Moll transport current plus the stored-charge current) [A],
+        ``primary_current`` [A], ``collector_voltage``, ``base_voltage``,
+        ``emitter_voltage``, ``limiter_base_voltage``, ``output_voltage``
+        (terminal), ``drive_capacitor_voltage``, ``feedback_voltage``,
+        ``magnetizing_voltage`` [V],
         ``limiter_collector_current``, ``base_current``,
         ``output_rectifier_current``, ``clamp_current``,
-        ``breakdown_current`` [A]; with feedback-winding regulation
+        ``breakdown_current`` (base-emitter reverse breakdown) [A]; with
+        feedback-winding regulation
         ``aux_voltage`` [V], ``zener_current``, ``aux_rectifier_current`` [A];
         with an optocoupler ``led_current`` [A].
     turn_on_times : ndarray
