@@ -197,6 +197,11 @@ LED_EMISSION = 2.0
 LED_CURRENT = 1e-3
 #: Load knee relative to the target output (constant-current / power loads)
 LOAD_KNEE_FRACTION = 0.05
+#: Engine state names with another name here, and engine states with no
+#: counterpart (see SmoothCircuit.state_from)
+ENGINE_ALIASES = {"v_node": "v_collector"}
+ENGINE_DROPPED = ("q_base",)
+
 #: Exponent beyond which junction exponentials continue linearly (no
 #: overflow at the solver's trial points; far beyond any physical bias)
 EXP_LIMIT = 40.0
@@ -553,10 +558,21 @@ class SmoothCircuit:
         return np.zeros(len(self.state_names))
 
     def state_from(self, values: dict) -> np.ndarray:
-        """State vector from named values; missing names take defaults: the
-        limiter base at the emitter voltage but at most one limiter
-        junction drop above the base, the output terminal at the
-        output capacitor, everything else zero.  Unknown names raise."""
+        """State vector from named values.
+
+        Missing names take defaults: the limiter base at the emitter
+        voltage but at most one limiter junction drop above the base, the
+        output terminal at the output capacitor, everything else zero.  The
+        engine's names are accepted too (``dict(zip(circuit.state_names,
+        x))`` of :mod:`rcc.engine`): ``v_node`` is ``v_collector``; its
+        stored base charge ``q_base`` has no state here (the reference's
+        charges follow from its junction voltages) and is dropped, so take
+        a common state with the switch off and give ``v_base`` and
+        ``v_emitter`` (the engine's ``base_voltage`` and ``emitter_voltage``
+        signals).  Unknown names raise ValueError.
+        """
+        values = {ENGINE_ALIASES.get(name, name): value for name, value in values.items()
+                  if name not in ENGINE_DROPPED}
         unknown = set(values) - set(self.state_names)
         if unknown:
             raise ValueError(f"unknown state names {sorted(unknown)}; "

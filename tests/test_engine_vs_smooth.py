@@ -88,12 +88,12 @@ def _common_state(bus):
                                     SWITCH_STATES.index("off"))
     t_mid = 0.5 * (offs[offs > ons[0]][0] + ons[1])
     head = simulate(circuit, warm.final_state, t_mid, t_start=t0, topology=warm.final_topology)
-    x = dict(zip(circuit.state_names, head.final_state))
-    common = {"i_leakage": x["i_leakage"], "i_magnetizing": x["i_magnetizing"],
-              "v_collector": x["v_node"], "v_drive": x["v_drive"],
-              "v_output_capacitor": x["v_output_capacitor"], "v_aux": x["v_aux"],
-              "v_clamp": x["v_clamp"], "v_base": head["base_voltage"][-1],
-              "v_emitter": head["emitter_voltage"][-1]}
+    # the engine's states by name (the reference maps v_node and drops the
+    # stored base charge, zero with the switch off) and its base and
+    # emitter voltages
+    common = dict(zip(circuit.state_names, head.final_state),
+                  v_base=head["base_voltage"][-1], v_emitter=head["emitter_voltage"][-1])
+    assert abs(common["q_base"]) < 1e-15
     engine = simulate(circuit, head.final_state, t_mid + 40e-6, t_start=t_mid,
                       topology=head.final_topology, stop_on_turn_on=3)
     return design, common, engine, t_mid

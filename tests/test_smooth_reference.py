@@ -22,7 +22,7 @@ from scipy.special import lambertw
 
 from rcc.design import Load, load_design
 from smooth_reference import (_bjt, _w_of_exp, build_smooth, series_junction_current,
-                              simulate_smooth)
+                              simulate_smooth, state_names)
 
 STANDBY = "worked_cases/standby_12v_universal.toml"
 VT = Boltzmann * 298.15 / elementary_charge
@@ -149,3 +149,19 @@ def test_power_on_ring_frequency_and_decay(switch_held_off):
     peaks = [v[(t >= a) & (t < b)].min() for a, b in zip(crossings[:-1], crossings[1:])]
     decay = np.log(np.abs(peaks[0] / peaks[-1])) / (period * (len(peaks) - 1))
     assert decay == pytest.approx(alpha, rel=0.03)
+
+
+def test_state_names_and_initial_state_by_name():
+    design = load_design(STANDBY)
+    circuit = build_smooth(design, 325.0, Load("current", 0.3))
+    assert circuit.state_names == state_names(design)
+    # the engine's names: v_node is the collector, q_base is dropped; the
+    # limiter base defaults to one junction drop above a negative base
+    x = circuit.state_from({"v_node": 300.0, "q_base": 0.0, "v_base": -6.0,
+                            "v_emitter": 0.0, "v_output_capacitor": 12.0})
+    named = dict(zip(circuit.state_names, x))
+    assert named["v_collector"] == 300.0
+    assert named["v_limiter_base"] == pytest.approx(-6.0 + circuit.parameters["limiter_vbe"])
+    assert named["v_output"] == 12.0
+    with pytest.raises(ValueError, match="unknown state names"):
+        circuit.state_from({"v_gate": 1.0})
