@@ -73,11 +73,11 @@ def test_power_on_ring_of_the_held_off_switch_matches():
 
 
 # ------------------------------------------ full design, common state
-def _common_state(bus):
+def _common_state(bus, design=None, load=LOAD):
     """Engine after its warm-up; the state in the middle of the next
     off-time; the engine's next few cycles from there."""
-    design = load_design(STANDBY)
-    circuit = build_circuit(design, bus, LOAD, TEMPERATURE)
+    design = load_design(STANDBY) if design is None else design
+    circuit = build_circuit(design, bus, load, TEMPERATURE)
     warm = simulate(circuit, power_on_state(circuit), 1.0, record=False,
                     stop_on_turn_on=WARM_UP_TURN_ONS)
     t0 = warm.final_time
@@ -94,9 +94,16 @@ def _common_state(bus):
     common = dict(zip(circuit.state_names, head.final_state),
                   v_base=head["base_voltage"][-1], v_emitter=head["emitter_voltage"][-1])
     assert abs(common["q_base"]) < 1e-15
-    engine = simulate(circuit, head.final_state, t_mid + 40e-6, t_start=t_mid,
+    engine = simulate(circuit, head.final_state, t_mid + 60e-6, t_start=t_mid,
                       topology=head.final_topology, stop_on_turn_on=3)
     return design, common, engine, t_mid
+
+
+def _first_cycle(engine, t_mid):
+    """Period [s] and primary peak [A] of the engine's first full cycle."""
+    ons = engine.turn_on_times() - t_mid
+    window = (engine.times >= ons[0] + t_mid) & (engine.times < ons[1] + t_mid)
+    return ons[1] - ons[0], engine["primary_current"][window].max()
 
 
 #: bus voltages: 85 V and 230 V RMS rectified (DOMAIN check values: 120.2 V
@@ -165,24 +172,14 @@ def test_on_time_ramp_is_the_rl_ramp(compared):
     assert slope_e == pytest.approx(slope_r, rel=0.01)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "engine's limiter base-emitter junction is a threshold at limiter.vbe + 10 ohm: it sinks "
-    "the switch's 50-70 mA base drive at 0.605 V, where the exponential junction (Vbe at "
-    "1 mA) needs about 0.70 V; 0.1 V less at the limiter base lets 0.67 mA more regulation "
-    "current through the 150 ohm zener resistor, which trips 90 mA earlier through the "
-    "220 ohm limiter base resistor: the engine's peak is 30 % low and its cycle 27 % short "
-    "(notes/smooth_reference.md)"))
-def test_switching_cycle_agrees(compared):
-    # the first full cycle from the common state: period and primary peak
-    # within 5 % (issue 8's tolerance for engine against reference)
-    bus, design, engine, t_mid, engine_ons, reference = compared
-    assert len(reference.turn_on_times) >= 2
-    period_e = engine_ons[1] - engine_ons[0]
-    period_r = reference.turn_on_times[1] - reference.turn_on_times[0]
-    window = (engine.times >= engine_ons[0] + t_mid) & (engine.times < engine_ons[1] + t_mid)
-    peak_e = engine["primary_current"][window].max()
-    assert period_r == pytest.approx(period_e, rel=0.05)
-    assert reference.peak_currents[0] == pytest.approx(peak_e, rel=0.05)
+# No regulated cycle is compared from the common state: that state carries
+# the engine's regulation equilibrium (auxiliary and output capacitor), which
+# is not the reference's.  From it the reference's first cycle at 85 V is
+# 37 % longer with a 43 % higher peak, then relaxes over about 2 ms (200
+# cycles, 83 s of CPU) to 104.9 kHz, 0.196 A and 12.23 V, where the engine
+# runs at 104.4 kHz, 0.194 A and 12.03 V (notes/smooth_reference.md).  The
+# limiter law that moves the set point is compared directly below, with the
+# regulation taken out.
 
 
 def test_output_holds_over_the_compared_cycles(compared):
@@ -277,3 +274,43 @@ def test_aux_case_restart_agrees(aux_power_on):
     engine, reference = aux_power_on
     assert _restarts(engine.turn_on_times())[0] == pytest.approx(
         _restarts(reference.turn_on_times)[0], rel=0.1)
+
+
+
+# ------------------ the current limit alone: regulation taken out
+@pytest.fixture(scope="module")
+def current_limited():
+    """The standby case without its regulation path (``regulation.method =
+    "none"``) into 40 ohm at 85 V: every on-time ends at the current limit,
+    so the first cycle from a common state tests the limiter's junction
+    directly (the unregulated output, 20.4 V, only sets the off-time)."""
+    design = load_design(STANDBY).with_values({"regulation.method": "none"})
+    load = Load("resistance", 40.0)
+    design, common, engine, t_mid = _common_state(120.0, design, load)
+    reference = simulate_smooth(design, 120.0, load, duration=45e-6, initial=common)
+    return engine, t_mid, reference
+
+
+def test_current_limited_turn_on_agrees(current_limited):
+    # the off-time from the common state: within 2 % of the period
+    # (measured: engine 3.16 us, reference 3.27 us, period 16 us)
+    engine, t_mid, reference = current_limited
+    period, _ = _first_cycle(engine, t_mid)
+    first = engine.turn_on_times()[0] - t_mid
+    assert reference.turn_on_times[0] == pytest.approx(first, abs=0.02 * period)
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "engine's limiter base-emitter junction is a threshold at limiter.vbe + 10 ohm: it sinks "
+    "the switch's 50-70 mA base drive at 0.605 V, where the exponential junction with Vbe "
+    "given at 1 mA (notes/circuit.md) needs 0.69 V, so the engine trips 50 mA early: "
+    "peak 0.420 A against 0.462 A (-9 %), period 16.0 us against 17.4 us "
+    "(notes/smooth_reference.md)"))
+def test_current_limited_cycle_agrees(current_limited):
+    # the first full cycle: period and primary peak within 5 % (issue 8's
+    # tolerance for the engine against the reference)
+    engine, t_mid, reference = current_limited
+    period, peak = _first_cycle(engine, t_mid)
+    assert reference.turn_on_times[1] - reference.turn_on_times[0] == pytest.approx(
+        period, rel=0.05)
+    assert reference.peak_currents[0] == pytest.approx(peak, rel=0.05)
