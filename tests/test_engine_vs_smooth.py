@@ -224,7 +224,8 @@ def test_both_burst_at_high_line(bursts):
 
 @pytest.mark.xfail(strict=True, reason=(
     "engine pauses 162 us after bursts of about 19 pulses, the reference 885 us after 10-30+: "
-    "inference, not settled: the engine's low trip current (see test_switching_cycle_agrees) "
+    "inference, not settled: the engine's low trip current "
+    "(see test_current_limited_cycle_agrees) "
     "puts less energy into each pulse and the auxiliary capacitor, so its bursts are short"))
 def test_burst_pause_agrees(bursts):
     # the pause (dead time of the burst) within 20 %
