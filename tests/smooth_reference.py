@@ -67,9 +67,10 @@ high injection)::
 ``I_S`` is fixed by ``Vbe(T)`` (:func:`rcc.devices.base_emitter_voltage`)
 at the trip current ``limiter.vbe / limiter.sense_resistance``, as
 ``notes/circuit.md`` states for the start-up analysis; emission coefficient 1
-(ideal junction, Shockley [3]_).  ``tau_F = 1 / (2 pi fT)`` (the transit-time
-part of ``1/(2 pi fT)``, Gray et al. [5]_ sec. 1.4.8).  ``beta_R`` = 1
-(inverse gain of a power transistor, of order 1  # from memory).
+(ideal junction, Shockley [3]_).  ``tau_F = 1 / (2 pi fT)``: Gray et al.
+[5]_ sec. 1.4.8 give ``1/(2 pi fT) = tau_F + (C_je + C_mu) / g_m``, whose
+second part is negligible at the hundreds of mA of the on-time.
+``beta_R`` = 1 (inverse gain of a power transistor, of order 1  # from memory).
 
 Storage: with ``i_C`` held by the circuit and the base pulled at ``-I_B2``,
 the Ebers-Moll charge equations give ``dI_R/dt = -(I_B2 + I_C/beta_F + k I_R)
@@ -102,7 +103,7 @@ high-injection 2, Sze [6]_ ch. 2  # from memory).  Output rectifier: drop at 1 A
 50 mohm; auxiliary rectifier: drop at 10 mA, 1 ohm; RCD clamp diode: 1.0 V
 at 1 A, 0.5 ohm (# common practice: fast-recovery rectifiers of this class).
 The current of a junction in series with a resistance is solved in closed
-form with the Lambert W function (``_series_junction``).
+form with the Lambert W function (:func:`series_junction_current`).
 
 *Zeners*: reverse breakdown ``i = I_zt exp((u - V_z) / V_k)`` with
 ``V_k ln 10`` = 60 mV per decade (Sze [6]_  # common practice), ``V_z`` the
@@ -156,8 +157,8 @@ import time as _time
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.constants import Boltzmann, elementary_charge
 from numba import njit
+from scipy.constants import Boltzmann, elementary_charge
 from scipy.integrate import solve_ivp
 
 from rcc import devices
