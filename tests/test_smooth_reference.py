@@ -17,6 +17,7 @@ import math
 import numpy as np
 import pytest
 from scipy.constants import Boltzmann, elementary_charge
+from scipy.integrate import solve_ivp
 from scipy.optimize import brentq, fsolve
 from scipy.special import lambertw
 
@@ -58,6 +59,31 @@ def test_series_junction_solves_the_shockley_law(voltage):
         return
     assert conductance == pytest.approx(1.0 / (resistance + knee / (current + saturation)),
                                         rel=1e-8)
+
+
+def test_diode_capacitor_charge():
+    # a capacitor charged from a fixed voltage through a Shockley diode:
+    # with u = V - v the diode voltage, C du/dt = -Is (exp(u/a) - 1) has the
+    # closed form exp(-u/a) = 1 - (1 - exp(-u0/a)) exp(-Is t / (a C))
+    # (separation of variables on Shockley's 1949 law); the reference's
+    # junction (1 micro-ohm series resistance, a negligible i R) integrated
+    # with Radau must follow it over six decades of current
+    saturation, knee, capacitance, source = 1e-12, 1.5 * VT, 1e-6, 1.0
+    time = np.geomspace(1e-9, 1e-1, 41)
+
+    def rate(t, v):
+        return [series_junction_current(source - v[0], saturation, knee, 1e-6)[0]
+                / capacitance]
+
+    solution = solve_ivp(rate, (0.0, time[-1]), [0.0], method="Radau", t_eval=time,
+                         rtol=1e-10, atol=1e-12)
+    u0 = source
+    expected = -knee * np.log1p(-(1 - math.exp(-u0 / knee))
+                                * np.exp(-saturation * time / (knee * capacitance)))
+    np.testing.assert_allclose(source - solution.y[0], expected, rtol=1e-6, atol=1e-8)
+    # the diode current falls over the run from 0.18 A to 0.4 uA (diode
+    # voltage 1.0 V to 0.50 V): the law is tested along its whole exponential
+    assert series_junction_current(expected[-1], saturation, knee, 1e-6)[0] < 1e-6
 
 
 def test_zener_knee_is_60_mv_per_decade():
