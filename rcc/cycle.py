@@ -39,7 +39,7 @@ import numpy as np
 from rcc.design import Design, Load
 from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain,
                           fall_time_charge_control, storage_time_rising_current,
-                          turn_off_energy)
+                          thermal_voltage, turn_off_energy, zener_voltage)
 from rcc.stress import clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_voltage
 from rcc.limiter import (auxiliary_voltage, regulation_current, trip_current)
 from rcc.mains import bus_voltage
@@ -57,20 +57,26 @@ __all__ = [
     "limit_power_capability",
 ]
 
-#: Conduction modes.  ``burst``: the regulation path holds the limiter on
-#: even at zero current, so the supply delivers its minimum energy per
-#: cycle in bursts; the frequency reported is the average.  ``off``: the
-#: switch cannot turn on again (see ``OperatingPoints.running``).
-MODES = ("dcm", "bcm", "ccm", "burst", "off")
+#: Kinds of operation.  ``bcm``: turn-on in the ring after demagnetization;
+#: ``dcm``: a dead time after demagnetization (drive-capacitor timing, or the
+#: regulation path holding the limiter on until the auxiliary capacitor has
+#: drained); ``ccm``: turn-on before demagnetization ends.  ``burst``: no
+#: steady period-1 cycle: a repeating pattern of several different cycles
+#: (``pulses_per_pattern``), or the output loop hunting around its balance
+#: (``output_multiplier`` below -1), or the regulation path holding the
+#: limiter on even at zero current; frequency, powers and times are averages
+#: and the peak current is that of the strongest pulse.  ``irregular``: the
+#: cycle states never repeat (averages over 24 cycles).  ``lockup``: from
+#: power-on the output stops far below its regulation level (values are those
+#: of the low state it sits in).  ``off``: the switch cannot turn on again
+#: (see ``OperatingPoints.running``).
+MODES = ("dcm", "bcm", "ccm", "burst", "irregular", "lockup", "off")
 #: What ended the on-time.
 ON_END = ("drive", "limit", "regulation")
 #: What ended the off-time.
-OFF_END = ("demagnetization", "drive-timing")
+OFF_END = ("demagnetization", "drive-timing", "regulation-hold")
 
-_BISECTION_STEPS = 26
-_NEWTON_STEPS = 12
-_SCAN_POINTS = 12
-_SETTLE_STEPS = 2
+_SCAN_POINTS = 8
 #: A junction reset path is taken as finished this close to its asymptote [V].
 _JUNCTION_END = 0.05
 
@@ -207,6 +213,23 @@ class OperatingPoints:
         False where the switch cannot turn on again after the first cycle
         (the base is held off for good), or the feedback winding is
         degenerative; all rates are zero there.
+    pulses_per_pattern : ndarray of int
+        Cycles in the repeating pattern the cycle states settle into at the
+        operating output: 1 for a steady cycle, more for a pattern of
+        different pulses (mode ``burst``), 0 where nothing repeats (mode
+        ``irregular``) [1].
+    output_multiplier : ndarray
+        Multiplier of the output voltage from one cycle to the next at the
+        balance, ``1 + T dS/dVo / (Co Vo)``; below -1 the output hunts
+        around the balance (mode ``burst``) [1].
+    doubt : ndarray of str
+        Empty where the point is a settled, steady cycle the population
+        study shows the cycle model accurate for; otherwise why its numbers
+        are to be confirmed with the time-domain engine: ``pattern`` (burst or
+        irregular: averages of a pattern), ``lockup``, ``regime-boundary``
+        (the power balance sits on a jump between two cycle regimes),
+        ``unsettled``, or ``invariant: ...`` (a physical invariant failed;
+        such a point must not be reported as a number).
     input_power : ndarray
         Power drawn from the bus [W].
     output_power : ndarray
@@ -238,6 +261,9 @@ class OperatingPoints:
     settled: np.ndarray
     startup_lockup: np.ndarray
     running: np.ndarray
+    pulses_per_pattern: np.ndarray
+    output_multiplier: np.ndarray
+    doubt: np.ndarray
     input_power: np.ndarray
     output_power: np.ndarray
     losses: Losses
@@ -251,7 +277,7 @@ class OperatingPoints:
         flat = {name: np.ravel(getattr(self, name)) for name in (
             "line_voltage", "bus_voltage", "load_current", "temperature", "output_voltage",
             "frequency", "on_time", "off_time", "duty", "peak_current", "mode", "on_end",
-            "off_end", "input_power")}
+            "off_end", "input_power", "doubt", "pulses_per_pattern")}
         losses = {item.name: np.ravel(np.broadcast_to(getattr(self.losses, item.name),
                                                       self.shape))
                   for item in fields(Losses)}
@@ -273,6 +299,9 @@ class OperatingPoints:
                 "off_end": str(flat["off_end"][i]),
                 "input_power_w": float(flat["input_power"][i]),
                 "losses_w": {name: float(values[i]) for name, values in losses.items()},
+                "pulses_per_pattern": int(flat["pulses_per_pattern"][i]),
+                "source": "cycle-model",
+                "doubt": str(flat["doubt"][i]),
             })
         return rows
 
@@ -350,35 +379,96 @@ def _voltage_for_power(load, power, fallback):
     return np.where(current > 0, power / np.maximum(current, 1e-300), fallback)
 
 
-def _solve_rising(slope, gain, amplitude, offset, tau, initial, horizon):
-    """Time the switch leaves saturation, if before ``horizon``.
+def _first_crossing(function, low, high, tolerance=1e-15, iterations=200, jump=None):
+    """Root of an increasing-through-zero function on a bracket, to tolerance.
 
-    Smallest ``t >= 0`` with ``initial + slope t = gain (amplitude e^(-t/tau)
-    + offset)``.  The left side rises and the right side falls (amplitude
-    >= 0), so the root is unique; Newton from ``t = 0`` approaches it from
-    below because the difference is concave.  Only points whose drive runs
-    out before ``horizon`` (the limiter's trip time) are solved; the others
-    return ``horizon``.  Returns 0 where the drive is already short at t = 0.
+    ``function(low) < 0 <= function(high)`` is expected; where already
+    ``function(low) >= 0`` the result is ``low``.  Regula falsi with the
+    Illinois modification (Dowell & Jarratt, BIT 11 (1971) 168-174): the
+    bracket always holds the sign change and shrinks superlinearly; the loop
+    stops when every bracket is narrower than ``tolerance`` relative (or the
+    residual is exactly zero), never after a fixed count of steps, so the
+    result does not move when an input moves by one part in 10^12.
     """
-    at_horizon = np.atleast_1d(initial + slope * horizon - gain * (
-        amplitude * np.exp(-horizon / tau) + offset))
-    t = np.array(np.broadcast_to(horizon, at_horizon.shape), dtype=float)
-    short = np.nonzero(at_horizon > 0.0)
-    if short[0].size:
-        def pick(values):
-            return np.broadcast_to(np.asarray(values, dtype=float), t.shape)[short]
+    low, high = np.broadcast_arrays(np.asarray(low, float), np.asarray(high, float))
+    low, high = low.astype(float), high.astype(float)
+    f_low = np.asarray(function(low), dtype=float) * np.ones_like(low)
+    f_high = np.asarray(function(high), dtype=float) * np.ones_like(low)
+    done = (f_low >= 0.0) | (high <= low)
+    result = np.where(f_low >= 0.0, low, high)
+    side = np.zeros(low.shape, dtype=int)
+    for _ in range(iterations):
+        active = ~done
+        if not active.any():
+            break
+        span = f_high - f_low
+        with np.errstate(divide="ignore", invalid="ignore"):
+            trial = high - f_high * (high - low) / span
+        bad = ~np.isfinite(trial) | (trial <= low) | (trial >= high)
+        trial = np.where(bad, 0.5 * (low + high), trial)
+        f_trial = np.asarray(function(trial), dtype=float) * np.ones_like(low)
+        positive = f_trial >= 0.0
+        # Illinois: halve the stale end's value when the same end is kept twice
+        keep_low = positive & active
+        keep_high = ~positive & active
+        f_low = np.where(keep_low & (side == -1), 0.5 * f_low, f_low)
+        f_high = np.where(keep_high & (side == 1), 0.5 * f_high, f_high)
+        high = np.where(keep_low, trial, high)
+        f_high = np.where(keep_low, f_trial, f_high)
+        low = np.where(keep_high, trial, low)
+        f_low = np.where(keep_high, f_trial, f_low)
+        side = np.where(keep_low, -1, np.where(keep_high, 1, side))
+        width = high - low
+        converged = (width <= tolerance * np.maximum(np.abs(high), 1e-300)) | (f_trial == 0.0)
+        if jump is not None:
+            # a jump of the function across zero (no root): located to 1e-6
+            converged |= (width <= 1e-6 * np.abs(high)) & (np.minimum(
+                np.abs(f_low), np.abs(f_high)) > jump)
+        result = np.where(active, high, result)
+        done = done | (active & converged)
+    return result
 
-        slope_s, gain_s = pick(slope), pick(gain)
-        amplitude_s, offset_s = pick(amplitude), pick(offset)
-        initial_s, tau_s = pick(initial), pick(tau)
-        ts = np.zeros(short[0].size)
-        for _ in range(_NEWTON_STEPS):
-            decay = np.exp(-ts / tau_s)
-            residual = initial_s + slope_s * ts - gain_s * (amplitude_s * decay + offset_s)
-            derivative = slope_s + gain_s * amplitude_s * decay / tau_s
-            ts = np.maximum(ts - residual / derivative, 0.0)
-        t[short] = ts
-    return t.reshape(np.shape(initial + slope * horizon + gain * amplitude))
+
+def _newton_in_bracket(function, low, high, tolerance=1e-13, iterations=100):
+    """First root of ``function`` on ``[low, high]``, safeguarded Newton.
+
+    ``function(t)`` returns the value and its derivative; the value is
+    negative at ``low`` and not negative at ``high`` (where it is already
+    non-negative at ``low`` the result is ``low``).  A Newton step that
+    leaves the bracket is replaced by bisection, and the bracket shrinks on
+    every step, so convergence is guaranteed; the loop stops when every step
+    is below ``tolerance`` relative, not after a fixed count.
+    """
+    low, high = np.broadcast_arrays(np.asarray(low, float), np.asarray(high, float))
+    low, high = low.astype(float).copy(), high.astype(float).copy()
+    value, _ = function(low)
+    value = value * np.ones_like(low)
+    result = np.where(value >= 0.0, low, high)
+    active = np.flatnonzero((value < 0.0) & (high > low))
+    t = high.copy()
+    for _ in range(iterations):
+        if active.size == 0:
+            break
+        f, df = function(t)
+        f = np.broadcast_to(f, t.shape)[active]
+        df = np.broadcast_to(df, t.shape)[active]
+        ta = t[active]
+        positive = f >= 0.0
+        high[active] = np.where(positive, ta, high[active])
+        low[active] = np.where(positive, low[active], ta)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            step = ta - f / df
+        inside = np.isfinite(step) & (step > low[active]) & (step < high[active])
+        new = np.where(inside, step, 0.5 * (low[active] + high[active]))
+        moved = np.abs(new - ta)
+        t[active] = new
+        finished = (moved <= tolerance * np.maximum(np.abs(new), 1e-300)) | (f == 0.0) \
+            | (high[active] - low[active] <= tolerance * np.abs(high[active]))
+        result[active[finished]] = np.where(f == 0.0, ta, np.minimum(
+            np.maximum(new, low[active]), high[active]))[finished]
+        active = active[~finished]
+    result[active] = high[active]
+    return result
 
 
 class _Cycle:
@@ -410,11 +500,31 @@ class _Cycle:
         # limiter transconductance: limiter collector current per ampere of
         # switch current through the sense resistor
         self.limiter_gain = lim.hfe * lim.sense_resistance / lim.base_resistance
-        if design.regulation.method == "feedback-winding":
-            series = design.regulation.series_resistance
+        # limiter stealing drive: with the limiter's base at its threshold,
+        # each ampere of switch current above the ideal trip current gives the
+        # limiter R_s / R_lb amperes of base current, hfe_lim times that of
+        # collector current taken from the switch's base (G = hFE hfe_lim R_s / R_lb)
+        self.steal_gain = hfe * lim.hfe * lim.sense_resistance / lim.base_resistance
+        self.thermal_voltage = thermal_voltage(temperature)
+        regulation = design.regulation
+        self.aux_state = regulation.method == "feedback-winding"
+        if self.aux_state:
+            series = regulation.series_resistance
             self.zener_share = lim.base_resistance / (lim.base_resistance + series)
+            self.zener_resistance = series
+            zener = zener_voltage(regulation.zener_voltage, regulation.zener_tempco,
+                                  temperature)
+            # the zener path drains the auxiliary capacitor towards Vz + Vbe_lim
+            self.aux_floor = zener + self.vbe_limiter
+            self.aux_tau = series * regulation.filter_capacitance
+            # the limiter holds the switch off while the zener current exceeds
+            # what R_lb takes at Vbe_lim plus the base current it needs to sink
+            # the start-up current
+            self.aux_hold = self.aux_floor + series * (
+                self.vbe_limiter / lim.base_resistance + self.startup_current / lim.hfe)
         else:
             self.zener_share = 0.0
+            self.aux_tau = np.inf
         # base threshold: the drive-capacitor voltage at which the base reaches Vbe
         rb = dr.resistance
         if rbe is None:
@@ -427,34 +537,92 @@ class _Cycle:
         quality = tr.core_loss_resistance * np.sqrt(design.node_capacitance / self.lm)
         self.ring_damping = np.exp(-np.pi / (2.0 * quality))
 
-    def evaluate(self, output_voltage, vc0, i0, losses=False):
+    def subset(self, index):
+        """The same cycle for a flat selection of the points [-]."""
+        import copy
+
+        shape = np.shape(self.bus)
+        part = copy.copy(self)
+        for name, value in vars(self).items():
+            if isinstance(value, np.ndarray) and value.ndim and value.shape == shape:
+                setattr(part, name, value.reshape(-1)[index])
+        return part
+
+    def auxiliary_plateau(self, output_voltage):
+        """Auxiliary-capacitor voltage the flyback plateau charges to [V]."""
+        d = self.design
+        return np.maximum(auxiliary_voltage(output_voltage, d.output.rectifier_drop,
+                                            d.transformer.feedback_turns,
+                                            d.transformer.output_turns,
+                                            d.regulation.rectifier_drop), 0.0)
+
+    def evaluate(self, output_voltage, vc0, i0, va0=None, losses=False):
         d = self.design
         tr, sw, dr, lim = d.transformer, d.switch, d.drive, d.limiter
         vr = reflected_voltage(output_voltage, d.output.rectifier_drop, tr.primary_turns,
                                tr.output_turns)
         vr = np.maximum(vr, 1e-3)
-        ireg = regulation_current(d, output_voltage, self.temperature)
-        itrip = trip_current(self.vbe_limiter, ireg, lim.base_resistance,
-                             lim.sense_resistance)
         rb, tau = dr.resistance, self.tau
-        # ---- on-time: drive-limited decision (switch leaves saturation)
+        rlb, rs = lim.base_resistance, lim.sense_resistance
+        # ---- regulation current into the limiter base during the on-time
+        plateau_aux = self.auxiliary_plateau(output_voltage)
+        if self.aux_state:
+            # the auxiliary capacitor drains through the zener path; its
+            # voltage at turn-on is a cycle-to-cycle state
+            va0 = plateau_aux if va0 is None else va0
+            ireg0 = np.maximum(va0 - self.aux_floor, 0.0) / self.zener_resistance
+        else:
+            ireg0 = regulation_current(d, output_voltage, self.temperature)
+        # ---- on-time decision: the switch leaves saturation when the ramp
+        # reaches the collector current the base can hold, with the limiter
+        # stealing drive (finite gain, notes/cycle_model.md)
         amplitude = np.maximum(self.v_on - vc0, 0.0) / rb
         offset = self.startup_current - self.bleed
-        t_trip = np.maximum(itrip - i0, 0.0) / self.slope
-        t_drive = _solve_rising(self.slope, self.hfe, amplitude, offset, tau, i0, t_trip)
-        i_drive = i0 + self.slope * t_drive
-        drive_ends = i_drive < np.maximum(itrip, i0) * (1.0 - 1e-12)
-        i_decision = np.where(drive_ends, i_drive, np.maximum(itrip, i0))
-        # storage time by charge control: the base current at the decision
-        # (I_B1) sets the excess charge; the limiter diverts the drive, so only
-        # the base-emitter resistor pulls charge out (I_B2)
-        # the collector current keeps rising during storage, so storage ends
-        # when the decaying excess charge meets the rising charge needed:
-        # hFE ((I_B1 + I_B2) e^(-t/tau_S) - I_B2) = I_dec + s t.  The limiter
-        # saturates across the base while the emitter sits at I Rs, so it pulls
-        # the base negative with a current of the order of the drive: I_B2 = I_B1
-        t_decision = (i_decision - i0) / self.slope
-        base_decision = np.maximum(amplitude * np.exp(-t_decision / tau) + offset, 0.0)
+        a_tau = self.aux_tau
+
+        gain = self.steal_gain
+        reg_drop = rlb * ireg0 / rs
+
+        def base(t):
+            return amplitude * np.exp(-t / tau) + offset
+
+        def ideal_trip(t):
+            drive = np.maximum(base(t), 1e-12)
+            lift = np.where(drive > 1e-3, self.thermal_voltage * np.log(drive / 1e-3), 0.0)
+            return (self.vbe_limiter + lift - rlb * ireg0 * np.exp(-t / a_tau)) / rs
+
+        def excess(t):
+            """Ramp minus the current the base can hold, and its derivative."""
+            decay = amplitude * np.exp(-t / tau)
+            drive = np.maximum(decay + offset, 1e-12)
+            own = self.hfe * (decay + offset)
+            own_rate = -self.hfe * decay / tau
+            aux_decay = reg_drop * np.exp(-t / a_tau)
+            # to divert the drive the limiter's collector carries about the
+            # whole base current I_B: its junction then sits V_T ln(I_B / 1 mA)
+            # above the Vbe given at 1 mA (Ebers & Moll 1954, exponential law)
+            lift = np.where(drive > 1e-3, self.thermal_voltage * np.log(drive / 1e-3), 0.0)
+            lift_rate = np.where(drive > 1e-3, -self.thermal_voltage * decay / tau / drive, 0.0)
+            ideal = (self.vbe_limiter + lift) / rs - aux_decay
+            shared = (own + gain * ideal) / (1.0 + gain)
+            shared_rate = (own_rate + gain * (aux_decay / a_tau + lift_rate / rs)) \
+                / (1.0 + gain)
+            limited = shared < own
+            value = i0 + self.slope * t - np.where(limited, shared, own)
+            return value, self.slope - np.where(limited, shared_rate, own_rate)
+
+        t_high = np.maximum((self.hfe * np.maximum(amplitude + offset, 0.0) - i0) / self.slope,
+                            0.0)
+        t_decision = _newton_in_bracket(excess, np.zeros_like(t_high), t_high)
+        i_decision = i0 + self.slope * t_decision
+        base_decision = np.maximum(base(t_decision), 0.0)
+        drive_ends = self.hfe * base_decision <= ideal_trip(t_decision)
+        ireg = ireg0 * np.exp(-t_decision / a_tau)
+        itrip = np.maximum(ideal_trip(t_decision), 0.0)
+        # storage time by charge control (Moll 1954): the excess charge set by
+        # the base current at the decision (I_B1) decays while the collector
+        # current keeps rising; the saturated limiter pulls the base below the
+        # emitter with a current of the order of the drive: I_B2 = I_B1
         storage = storage_time_rising_current(self.storage_constant, base_decision,
                                               base_decision, i_decision, self.slope, self.hfe)
         overshoot = np.where(drive_ends, 0.0, self.slope * storage)
@@ -488,10 +656,33 @@ class _Cycle:
         # plateau: the base is pulled negative; the drive capacitor is reset
         # through the clamps of the base node (see _reset)
         vc_demag = self._reset(vc_end, winding_plateau, t_demag)
-        # turn-on during the plateau (drive timer shorter than demagnetization)
+        # auxiliary capacitor: drained through the zener path during the
+        # on-time, recharged to the plateau by its rectifier during the flyback
+        if self.aux_state:
+            va_on_end = self._aux_decay(va0, t_on)
+            va_plateau = np.maximum(plateau_aux, self._aux_decay(va_on_end, t_demag))
+            aux_charge = (d.regulation.filter_capacitance
+                          * np.maximum(plateau_aux - va_on_end, 0.0)
+                          + np.maximum(plateau_aux - self.aux_floor, 0.0)
+                          / self.zener_resistance * t_demag * (plateau_aux >= va_on_end))
+            # the limiter holds the switch off until the capacitor has drained
+            # to the hold level (regulation by dead time)
+            with np.errstate(divide="ignore"):
+                t_release = np.where(
+                    va_plateau > self.aux_hold,
+                    self.aux_tau * np.log(np.maximum(va_plateau - self.aux_floor, 1e-300)
+                                          / (self.aux_hold - self.aux_floor)), 0.0)
+            held_plateau = plateau_aux > self.aux_hold
+        else:
+            va_plateau = np.zeros_like(vr)
+            aux_charge = np.zeros_like(vr)
+            t_release = np.zeros_like(vr)
+            held_plateau = np.zeros(np.shape(vr), dtype=bool)
+        # turn-on during the plateau (drive timer shorter than demagnetization),
+        # unless the regulation path holds the limiter on through the plateau
         limit_plateau = self.v_threshold + winding_plateau
         t_cross = self._reset_cross(vc_end, winding_plateau, limit_plateau)
-        ccm = t_cross < t_demag
+        ccm = (t_cross < t_demag) & ~held_plateau
         # ---- ring after demagnetization
         need = vc_demag - self.v_threshold
         ring_amplitude = self.nb * vr
@@ -499,27 +690,38 @@ class _Cycle:
         ring_on = need <= ring_peak
         phase = np.arccos(np.clip(-need / ring_amplitude, -1.0, 1.0))
         t_ring = phase / self.omega
+        # held past the ring's turn-on: the switch turns on at the release if
+        # the decayed ring (or the start-up current) still lifts the base
+        held = t_release > np.where(ring_on, t_ring, 0.0)
+        ring_left = ring_amplitude * self.ring_damping ** (2.0 * self.omega * t_release / np.pi)
+        on_release = held & (need <= np.minimum(ring_left, ring_peak))
         # ---- waiting for the slow path (drive-capacitor timing)
         t_wait = self._reset_cross(vc_demag, 0.0, self.v_threshold)
-        restarts = ccm | ring_on | np.isfinite(t_wait)
+        restarts = ccm | ring_on | np.isfinite(t_wait) | on_release
         t_wait = np.where(np.isfinite(t_wait), t_wait, 0.0)
-        t_off = np.where(ccm, t_cross, np.where(ring_on, t_demag + t_ring, t_demag + t_wait))
+        t_after = np.where(ring_on & ~held, t_ring,
+                           np.where(on_release, t_release, np.maximum(t_wait, t_release)))
+        t_off = np.where(ccm, t_cross, t_demag + t_after)
+        ring_turn = ring_on & ~held & ~ccm
         # current at the next turn-on: what is left in CCM; on the ring the
         # magnetizing current is negative (it discharges the node
         # capacitance), -(V_R / Z0) sin(phase) with Z0 = sqrt(Lm / C), damped
         ring_current = vr / self.ring_impedance * np.sin(phase) \
             * self.ring_damping ** (phase / np.pi)
         residual = np.where(ccm, np.maximum(peak - vr * t_cross / self.lm, 0.0),
-                            np.where(ring_on, -ring_current, 0.0))
-        vc_next = np.where(ccm, limit_plateau, np.where(ring_on, vc_demag, self.v_threshold))
-        mode = np.where(ccm, 2, np.where(ring_on, 1, 0))
-        off_end = np.where(ring_on & ~ccm, 0, 1)
+                            np.where(ring_turn, -ring_current, 0.0))
+        vc_after = np.where(t_release > t_wait, self._reset(vc_demag, 0.0, t_release),
+                            self.v_threshold)
+        vc_next = np.where(ccm, limit_plateau, np.where(ring_turn, vc_demag,
+                                                       np.minimum(vc_after, vc_demag)))
+        va_next = (self._aux_decay(va_plateau, t_after) if self.aux_state
+                   else np.zeros_like(vr))
+        mode = np.where(ccm, 2, np.where(ring_turn, 1, 0))
+        off_end = np.where(ccm | ring_turn, 0, np.where(held & (t_release >= t_wait), 2, 1))
         period = t_on + t_off
         frequency = 1.0 / period
         # ---- energy per cycle
-        aux = np.maximum(auxiliary_voltage(output_voltage, d.output.rectifier_drop,
-                                           tr.feedback_turns, tr.output_turns,
-                                           d.regulation.rectifier_drop), 0.0)
+        aux = plateau_aux
         transferred = 0.5 * self.lm * (peak**2 - residual**2)
         t_flyback = np.where(ccm, t_cross, t_demag)
         core_off = vr**2 / tr.core_loss_resistance * t_flyback
@@ -547,18 +749,29 @@ class _Cycle:
         reset_charge = dr.capacitance * np.maximum(
             vc_end - np.where(ccm, limit_plateau, vc_demag), 0.0)
         reset_energy = self.nb * vr * reset_charge + aux * self.zener_share * reset_charge
+        # the auxiliary winding's charge per cycle comes from the magnetizing
+        # energy at the plateau voltage (feedback-winding regulation)
+        aux_energy = aux_charge * (aux + d.regulation.rectifier_drop) if self.aux_state \
+            else np.zeros_like(vr)
         secondary = np.maximum(
             transferred - core_off - (clamp_rate - leakage_rate) / frequency - reversal
-            - reset_energy, 0.0)
+            - reset_energy - aux_energy, 0.0)
         share_out = output_voltage / (output_voltage + d.output.rectifier_drop)
-        regulation_power = np.where(ireg > 0.0, aux * ireg, 0.0)
-        delivered = secondary * share_out * frequency - regulation_power
+        if self.aux_state:
+            regulation_power = aux_energy * frequency
+            delivered = secondary * share_out * frequency
+        else:
+            regulation_power = np.where(ireg > 0.0, output_voltage * ireg
+                                        / np.maximum(d.regulation.ctr, 1e-300)
+                                        if d.regulation.method == "optocoupler"
+                                        else 0.0, 0.0)
+            delivered = secondary * share_out * frequency - regulation_power
         state = dict(
             vr=vr, ireg=ireg, itrip=itrip, peak=peak, t_on=t_on, t_off=t_off,
             start=np.broadcast_to(i0, np.shape(peak)), t_turn_off=t_rise,
             frequency=frequency, delivered=delivered, on_end=on_end, off_end=off_end,
-            mode=mode, vc_next=vc_next, residual=residual, restarts=restarts,
-            drive_capability=drive_capability,
+            mode=mode, vc_next=vc_next, va_next=va_next, residual=residual,
+            restarts=restarts, drive_capability=drive_capability,
         )
         if not losses:
             return state
@@ -596,6 +809,13 @@ class _Cycle:
             return rcd_clamp_voltage(vr, tr.leakage_inductance, peak, frequency,
                                      clamp.resistance)
         return vr + leakage_spike(peak, tr.leakage_inductance, d.node_capacitance)
+
+    def _aux_decay(self, va, duration):
+        """Auxiliary capacitor drained through the zener path for ``duration`` [V]."""
+        if not self.aux_state:
+            return va
+        floor = self.aux_floor
+        return np.where(va > floor, floor + (va - floor) * np.exp(-duration / self.aux_tau), va)
 
     # ------------------------------------------------ drive-capacitor reset
     # While the feedback winding holds the base negative, three paths reset
@@ -782,93 +1002,443 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
 
 
 def _upper_output(design: Design, temperature, bus):
-    hold = hold_output_voltage(design, temperature)
-    if hold is not None:
-        return np.maximum(hold, 1e-3) + np.zeros_like(bus)
+    """Top of the output range the power balance is searched in [V].
+
+    Optocoupler (or no regulation at all): the output at which the regulation
+    current alone turns the limiter on (above it the supply can only burst).
+    Feedback-winding regulation: the auxiliary capacitor lets the output rise
+    above that level with a dead time growing with it, so the search extends
+    to twice the hold output (at least 10 V above it).  Capped by the output
+    at which the reflected voltage reaches the clamp level (or twice the bus).
+    """
     tr = design.transformer
     if design.clamp.type == "zener":
         reflected_max = design.clamp.voltage
     else:
         reflected_max = 2.0 * bus
-    return np.maximum(reflected_max * tr.output_turns / tr.primary_turns
-                      - design.output.rectifier_drop, 1e-3)
+    cap = np.maximum(reflected_max * tr.output_turns / tr.primary_turns
+                     - design.output.rectifier_drop, 1e-3)
+    hold = hold_output_voltage(design, temperature)
+    if hold is None:
+        return cap + np.zeros_like(bus)
+    hold = np.maximum(hold, 1e-3) + np.zeros_like(bus)
+    if design.regulation.method == "feedback-winding":
+        return np.minimum(np.maximum(2.0 * hold, hold + 10.0), np.maximum(cap, hold))
+    return hold
+
+
+#: Relative tolerance of the cycle-to-cycle fixed point of the cycle states.
+_FIXED_POINT_TOLERANCE = 1e-10
+_NEWTON_ITERATIONS = 16
+#: Plain map steps before Newton's method starts.
+_PLAIN_STEPS = 1
+#: Longest repeating pattern of cycles recognised as such [cycles].
+_MAX_PERIOD = 6
+_PATTERN_CYCLES = 64
+_IRREGULAR_WINDOW = 24
+
+
+_STATE_KEYS = ("vc", "i0", "va")
+#: Scales of the states (drive capacitor, turn-on current, auxiliary capacitor)
+#: for tolerances and finite-difference steps [V, A, V].
+_STATE_SCALES = (1.0, 1e-3, 1.0)
+
+
+def _map(cycle: "_Cycle", voltage, states, losses=False):
+    state = cycle.evaluate(voltage, states[..., 0], states[..., 1], states[..., 2],
+                           losses=losses)
+    image = np.stack([state["vc_next"], state["residual"],
+                      np.broadcast_to(state["va_next"], np.shape(state["vc_next"]))], axis=-1)
+    return state, image
+
+
+def _newton_fixed_point(cycle, voltage, x, iterations):
+    """Newton's method on ``F(x) - x`` for a period-1 fixed point of the map.
+
+    A few plain map steps first (the map usually contracts hard: clamped
+    states land exactly); then Newton with a forward-difference Jacobian on
+    the points still moving, taking the plain map step where a Newton step
+    does not reduce the residual (kinks of the piecewise map).  Works on flat
+    arrays and evaluates only the points not yet converged.  Returns the
+    states and a mask of the points that converged.
+    """
+    scale = np.asarray(_STATE_SCALES) * np.ones_like(x)
+    identity = np.eye(3)
+    converged = np.zeros(x.shape[0], dtype=bool)
+    active = np.arange(x.shape[0])
+    for iteration in range(iterations):
+        sub = cycle.subset(active)
+        xa, va = x[active], voltage[active]
+        _, image = _map(sub, va, xa)
+        residual = image - xa
+        size = np.max(np.abs(residual) / (np.abs(xa) + scale[active]), axis=-1)
+        done = size <= _FIXED_POINT_TOLERANCE
+        converged[active[done]] = True
+        if iteration < _PLAIN_STEPS:
+            x[active[~done]] = image[~done]
+            active = active[~done]
+        else:
+            keep = ~done
+            active, xa, image, residual, size, va = (
+                active[keep], xa[keep], image[keep], residual[keep], size[keep], va[keep])
+            sub = cycle.subset(active)
+            step = 1e-7 * (np.abs(xa) + scale[active])
+            jacobian = np.empty(xa.shape + (3,))
+            for column in range(3):
+                shifted = xa.copy()
+                shifted[:, column] += step[:, column]
+                jacobian[:, :, column] = (_map(sub, va, shifted)[1] - image) \
+                    / step[:, column, None]
+            system = jacobian - identity
+            singular = ~(np.abs(np.linalg.det(system)) > 1e-12)
+            system = np.where(singular[:, None, None], -identity, system)
+            newton = xa - np.linalg.solve(system, residual[..., None])[..., 0]
+            _, trial_image = _map(sub, va, newton)
+            trial_size = np.max(np.abs(trial_image - newton)
+                                / (np.abs(newton) + scale[active]), axis=-1)
+            better = np.isfinite(trial_size) & (trial_size < size)
+            x[active] = np.where(better[:, None], newton, image)
+        if active.size == 0:
+            break
+    return x, converged
+
+
+#: Keys of the cycle evaluation averaged over time (powers) when a pattern
+#: of several cycles repeats; the others are averaged per cycle.
+_POWER_KEYS = ("delivered",)
+
+
+def _settle(cycle: "_Cycle", voltage, state_in, losses=False):
+    """The repeating cycle pattern at a fixed output voltage, and its averages.
+
+    ``state_in`` holds the drive-capacitor voltage ``vc``, the turn-on current
+    ``i0`` and the auxiliary-capacitor voltage ``va`` at a turn-on; one
+    switching cycle maps them to their values at the next turn-on.  First
+    Newton's method looks for a period-1 fixed point (every state to
+    ``_FIXED_POINT_TOLERANCE`` relative to its scale).  Where there is none,
+    the map is iterated until the states repeat after ``p <= _MAX_PERIOD``
+    cycles to the same tolerance (a period-``p`` pattern: for example a full
+    pulse that drains the auxiliary capacitor followed by short held pulses);
+    where nothing repeats within ``_PATTERN_CYCLES`` cycles the pattern is
+    ``irregular`` and the last ``_IRREGULAR_WINDOW`` cycles are averaged.
+    Powers are averaged over time, per-cycle quantities over cycles;
+    ``frequency`` is the mean switching rate.  Adds ``period_cycles`` (0 for
+    irregular) and ``converged`` (a period-1 fixed point).
+    """
+    shape = np.shape(cycle.bus)
+    flat = cycle.subset(slice(None))
+    voltage = np.broadcast_to(np.asarray(voltage, dtype=float), shape).reshape(-1)
+    x = np.stack([np.broadcast_to(np.asarray(state_in[key], float), shape).reshape(-1)
+                  for key in _STATE_KEYS], axis=-1).astype(float)
+    x, converged = _newton_fixed_point(flat, voltage, x, _NEWTON_ITERATIONS)
+    period = np.where(converged, 1, 0)
+    loose = np.flatnonzero(~converged)
+    if loose.size:
+        scale = np.asarray(_STATE_SCALES)
+        sub = flat.subset(loose)
+        history = [x[loose]]
+        found = np.zeros(loose.size, dtype=int)
+        for _ in range(_PATTERN_CYCLES):
+            _, x_next = _map(sub, voltage[loose], history[-1])
+            x_next = np.where((found > 0)[:, None], history[-1], x_next)
+            history.append(x_next)
+            for lag in range(1, min(_MAX_PERIOD, len(history) - 1) + 1):
+                gap = np.max(np.abs(history[-1] - history[-1 - lag])
+                             / (np.abs(history[-1]) + scale), axis=-1)
+                found = np.where((found == 0) & (gap <= _FIXED_POINT_TOLERANCE), lag, found)
+            if (found > 0).all():
+                break
+        x[loose] = history[-1]
+        period[loose] = found
+    state, _ = _map(flat, voltage, x, losses)
+    patterned = np.flatnonzero(period != 1)
+    if patterned.size:
+        averaged = _pattern_average(flat.subset(patterned), voltage[patterned],
+                                    x[patterned], period[patterned],
+                                    _take_state(state, patterned, x.shape[0]), losses)
+        state = _put_state(state, averaged, patterned, x.shape[0])
+    state["converged"] = converged
+    state["period_cycles"] = period
+    state = {key: _unflatten(value, shape, x.shape[0]) for key, value in state.items()}
+    return state, {key: x[:, i].reshape(shape) for i, key in enumerate(_STATE_KEYS)}
+
+
+def _take_state(state, index, size):
+    out = {}
+    for key, value in state.items():
+        if isinstance(value, Losses):
+            out[key] = Losses(**{item.name: np.broadcast_to(getattr(value, item.name),
+                                                            (size,))[index]
+                                 for item in fields(Losses)})
+        elif isinstance(value, np.ndarray) and value.shape == (size,):
+            out[key] = value[index]
+        else:
+            out[key] = value
+    return out
+
+
+def _put_state(state, part, index, size):
+    out = {}
+    for key, value in state.items():
+        if isinstance(value, Losses):
+            merged = {}
+            for item in fields(Losses):
+                array = np.array(np.broadcast_to(getattr(value, item.name), (size,)), float)
+                array[index] = getattr(part[key], item.name)
+                merged[item.name] = array
+            out[key] = Losses(**merged)
+        elif isinstance(value, np.ndarray) and value.shape == (size,):
+            array = value.copy() if value.dtype == np.asarray(part[key]).dtype \
+                else value.astype(np.result_type(value, part[key]))
+            array[index] = part[key]
+            out[key] = array
+        else:
+            out[key] = value
+    for key in part:
+        if key not in out:
+            array = np.zeros(size, dtype=np.asarray(part[key]).dtype)
+            array[index] = part[key]
+            out[key] = array
+    return out
+
+
+def _unflatten(value, shape, size):
+    if isinstance(value, Losses):
+        return Losses(**{item.name: _unflatten(getattr(value, item.name), shape, size)
+                         for item in fields(Losses)})
+    if isinstance(value, np.ndarray) and value.shape == (size,):
+        return value.reshape(shape)
+    return value
+
+
+def _pattern_average(cycle, voltage, x, period, first, losses=False):
+    """Averages over one repetition of a cycle pattern (see :func:`_settle`)."""
+    length = np.where(period == 0, _IRREGULAR_WINDOW, period)
+    count = int(length.max())
+    shape = np.shape(period)
+    sums, weights = {}, np.zeros(shape)
+    cycles = np.zeros(shape)
+    peak_max = np.zeros(shape)
+    largest = dict(first)
+    state = first
+    for k in range(count):
+        if k:
+            state, _ = _map(cycle, voltage, x, losses)
+        take = k < length
+        duration = state["t_on"] + state["t_off"]
+        if losses:
+            for item in fields(Losses):
+                value = np.broadcast_to(getattr(state["losses"], item.name), shape)
+                name = "losses." + item.name
+                sums[name] = sums.get(name, 0.0) + np.where(take, value * duration, 0.0)
+        for key, value in state.items():
+            if not isinstance(value, np.ndarray) or value.dtype.kind not in "fi" \
+                    or value.shape != shape or key in ("mode", "on_end", "off_end"):
+                continue
+            weight = duration if key in _POWER_KEYS else 1.0
+            sums[key] = sums.get(key, 0.0) + np.where(take, value * weight, 0.0)
+        weights = weights + np.where(take, duration, 0.0)
+        cycles = cycles + take
+        # the repeating pattern is described by its strongest pulse
+        stronger = take & (state["peak"] > peak_max)
+        peak_max = np.where(stronger, state["peak"], peak_max)
+        for key, value in state.items():
+            if isinstance(value, np.ndarray) and value.shape == shape:
+                largest[key] = np.where(stronger, value, largest[key])
+        x = np.stack([state["vc_next"], state["residual"],
+                      np.broadcast_to(state["va_next"], shape)], axis=-1)
+    averaged = dict(first)
+    multi = period != 1
+    for key, total in sums.items():
+        if key.startswith("losses."):
+            continue
+        mean = total / (weights if key in _POWER_KEYS else cycles)
+        averaged[key] = np.where(multi, mean, first[key])
+    if losses:
+        averaged["losses"] = Losses(**{
+            item.name: np.where(multi, sums["losses." + item.name] / weights,
+                                np.broadcast_to(getattr(first["losses"], item.name), shape))
+            for item in fields(Losses)})
+    for key in ("mode", "on_end", "off_end", "restarts"):
+        averaged[key] = np.where(multi, largest[key], first[key])
+    averaged["peak"] = np.where(multi, peak_max, first["peak"])
+    averaged["frequency"] = np.where(multi, cycles / weights, first["frequency"])
+    averaged["pattern_period"] = np.where(multi, weights, 1.0 / first["frequency"])
+    # the states that start the next repetition are those at its start
+    averaged["vc_next"], averaged["residual"], averaged["va_next"] = (
+        first["vc_next"], first["residual"], first["va_next"])
+    return averaged
+
+
+def _surplus(state, load, voltage):
+    return state["delivered"] - _load_power(load, voltage)
+
+
+def _balance(cycle, load, low, high, seed):
+    """Output voltage in ``[low, high]`` where the surplus changes sign.
+
+    The surplus is positive at ``low`` and not positive at ``high``; the
+    root is bracketed to ``1e-8`` relative (:func:`_first_crossing`; far
+    below the 1e-6 to which results must be well posed, and above the
+    surplus's own noise from the settled cycle states; a jump of the surplus
+    across zero, where the cycle regime changes, is located to 1e-6).  Every
+    trial output
+    settles the cycle pattern from the states at the low end of the current
+    bracket (at first ``seed``, what the rising output brought along): the
+    path of a rising output, as from power-on.
+    """
+    memory = {key: np.array(value, dtype=float) for key, value in seed.items()}
+    memory_voltage = np.array(low, dtype=float)
+
+    def deficit(voltage):
+        state, settled = _settle(cycle, voltage, memory)
+        surplus = _surplus(state, load, voltage)
+        lower = (surplus > 0.0) & (voltage >= memory_voltage)
+        for key in memory:
+            memory[key] = np.where(lower, settled[key], memory[key])
+        memory_voltage[...] = np.where(lower, voltage, memory_voltage)
+        return -surplus
+
+    return _first_crossing(deficit, low, high, tolerance=1e-8,
+                           jump=1e-3 * _load_power(load, high))
+
+
+def _mix_regimes(first, second, share, where):
+    """Averages of a supply alternating between two cycle regimes.
+
+    ``share`` is the fraction of time spent in ``first``.  Powers (and the
+    loss breakdown) and the switching rate mix by time; per-pulse times by
+    pulse count; the peak current is the larger one.  Applied only ``where``.
+    """
+    f1, f2 = first["frequency"], second["frequency"]
+    rate = share * f1 + (1.0 - share) * f2
+    pulses = np.where(rate > 0, share * f1 / np.maximum(rate, 1e-300), 0.0)
+    mixed = dict(second)
+    for key in ("delivered",):
+        mixed[key] = np.where(where, share * first[key] + (1.0 - share) * second[key],
+                              second[key])
+    for key in ("t_on", "t_turn_off", "vr", "ireg", "itrip", "start", "drive_capability"):
+        mixed[key] = np.where(where, pulses * first[key] + (1.0 - pulses) * second[key],
+                              second[key])
+    mixed["frequency"] = np.where(where, rate, f2)
+    mixed["t_off"] = np.where(where, 1.0 / np.maximum(rate, 1e-300) - mixed["t_on"],
+                              second["t_off"])
+    stronger = first["peak"] > second["peak"]
+    for key in ("peak", "mode", "on_end", "off_end", "restarts"):
+        mixed[key] = np.where(where & stronger, first[key], second[key])
+    mixed["restarts"] = np.where(where, first["restarts"] | second["restarts"],
+                                 second["restarts"])
+    mixed["converged"] = second["converged"] & ~where
+    if "losses" in first:
+        mixed["losses"] = Losses(**{
+            item.name: np.where(where, share * getattr(first["losses"], item.name)
+                                + (1.0 - share) * getattr(second["losses"], item.name),
+                                getattr(second["losses"], item.name))
+            for item in fields(Losses)})
+    return mixed
 
 
 def _solve_output(design: Design, bus, temperature, gain, load):
-    """Output voltage of the stable power balance, with the cycle state there.
+    """Output voltage of the power balance the supply reaches from power-on.
 
-    The delivered power is not monotonic in the output voltage: at a low
-    output the reflected voltage cannot reset the drive capacitor and the
-    supply idles in drive-timed cycles.  The stable operating point is the
-    highest output where the surplus ``P_delivered - P_load`` changes from
-    positive to negative, so a coarse scan from the top brackets it and
-    bisection refines it.
+    From power-on the output rises from zero while the surplus
+    ``P_delivered - P_load`` is positive; the cycle states (drive capacitor,
+    turn-on current, auxiliary capacitor) follow the rising output, so the
+    scan climbs from the bottom of the output range and carries them along
+    (where two cycle patterns coexist at one output, the one the rising
+    output arrives on is the one taken).  The output stops at the first
+    significant deficit: that balance is refined to full precision.  If the
+    surplus turns positive again above it (a higher balance the supply would
+    hold if it got there, below which the short, low flyback plateaus of a
+    low output cannot reset the drive capacitor), and the first balance is
+    below 80 % of the output the design is meant to hold (its target, else the
+    regulation hold output), the point is a start-up lock-up: mode ``lockup``
+    at the output where it sits.
     """
     cycle = _Cycle(design, bus, temperature, gain)
     top = _upper_output(design, temperature, bus)
-    vc = np.minimum(cycle.v_threshold, 0.0) + np.zeros_like(bus)
-    i0 = np.zeros_like(bus)
-    fractions = np.linspace(1.0, 0.0, _SCAN_POINTS + 1)[:-1]
-    fractions = np.append(fractions, 1e-4)
-    scan_voltage = np.empty((fractions.size,) + bus.shape)
-    scan_surplus = np.empty_like(scan_voltage)
-    scan_vc = np.empty_like(scan_voltage)
-    scan_i0 = np.empty_like(scan_voltage)
+    states = {"vc": np.minimum(cycle.v_threshold, 0.0) + np.zeros_like(bus),
+              "i0": np.zeros_like(bus),
+              "va": np.zeros_like(bus)}
+    fractions = np.append(1e-4, np.linspace(0.0, 1.0, _SCAN_POINTS + 1)[1:])
+    shape = (fractions.size,) + bus.shape
+    scan_voltage, scan_surplus = np.empty(shape), np.empty(shape)
+    scan_states = {key: np.empty(shape) for key in states}
     for index, fraction in enumerate(fractions):
         voltage = top * fraction
-        for _ in range(_SETTLE_STEPS if index else 2 * _SETTLE_STEPS):
-            state = cycle.evaluate(voltage, vc, i0)
-            vc, i0 = state["vc_next"], state["residual"]
+        state, states = _settle(cycle, voltage, states)
         scan_voltage[index] = voltage
-        scan_surplus[index] = state["delivered"] - _load_power(load, voltage)
-        scan_vc[index], scan_i0[index] = vc, i0
+        scan_surplus[index] = _surplus(state, load, voltage)
+        for key in states:
+            scan_states[key][index] = states[key]
     positive = scan_surplus > 0.0
     regulated = design.regulation.method != "none"
-    burst = positive[0] & regulated
-    first = np.argmax(positive, axis=0)          # highest voltage with a surplus
     any_positive = positive.any(axis=0)
-    first = np.where(any_positive, first, fractions.size - 1)
-    # from power-on the output rises from zero and stops at the *lowest*
-    # balance; a deficit anywhere below the operating point blocks the way up
-    # (a deficit of less than 0.1 % of the full load power, as at the
-    # near-zero end of the scan where both powers vanish, is no barrier)
-    below = np.arange(fractions.size).reshape((-1,) + (1,) * bus.ndim) > first[None]
+    index = np.arange(fractions.size).reshape((-1,) + (1,) * bus.ndim)
+    # a deficit of less than 0.1 % of the full load power (where both powers
+    # vanish near zero output) is no barrier
     deficit = scan_surplus < -1e-3 * _load_power(load, top)
-    lockup = any_positive & np.any(below & deficit, axis=0)
+    started = np.maximum.accumulate(positive, axis=0)
+    barrier_mask = deficit & started
+    has_barrier = barrier_mask.any(axis=0)
+    barrier = np.where(has_barrier, np.argmax(barrier_mask, axis=0), fractions.size - 1)
+    # still a surplus at the top of the range: the regulation path holds the
+    # limiter on there and the supply bursts at that output
+    burst = ~has_barrier & positive[-1] & regulated
     take = lambda array, idx: np.take_along_axis(array, idx[None], axis=0)[0]  # noqa: E731
-    low = take(scan_voltage, first)
-    high = take(scan_voltage, np.maximum(first - 1, 0))
-    vc, i0 = take(scan_vc, first), take(scan_i0, first)
-    for _ in range(_BISECTION_STEPS):
-        middle = 0.5 * (low + high)
-        state = cycle.evaluate(middle, vc, i0)
-        vc, i0 = state["vc_next"], state["residual"]
-        surplus = state["delivered"] - _load_power(load, middle) > 0.0
-        low = np.where(surplus, middle, low)
-        high = np.where(surplus, high, middle)
-    # the surplus side of the bracket: where the surplus function jumps (the
-    # drive-capacitor regime changes) there is no exact root and the circuit
-    # mixes the two cycles; scaling the frequency below covers both cases
-    output = np.where(positive[0], top, low)
-    for _ in range(_SETTLE_STEPS):
-        state = cycle.evaluate(output, vc, i0)
-        vc, i0 = state["vc_next"], state["residual"]
-    state = cycle.evaluate(output, vc, i0, losses=True)
-    # the drive-capacitor map must have reached its fixed point; where it
-    # ratchets (charge in per on-time exceeds the reset per off-time) the
-    # circuit alternates between ring- and drive-timed cycles
-    settled = np.abs(state["vc_next"] - vc) <= 1e-3 * (1.0 + np.abs(vc))
+    low_index = np.maximum(barrier - 1, 0)
+    low, high = take(scan_voltage, low_index), take(scan_voltage, barrier)
+    seed = {key: take(scan_states[key], low_index) for key in scan_states}
+    refine = has_barrier & take(positive, low_index)
+    output = _balance(cycle, load, low, np.where(refine, high, low), seed)
+    output = np.where(burst, top, np.where(refine, output, low))
+    higher = np.any((index > barrier[None]) & positive, axis=0) & has_barrier
+    reference = design.output.voltage_target
+    if reference is None:
+        reference = hold_output_voltage(design, temperature)
+    if reference is None:
+        reference = np.max(np.where(positive, scan_voltage, 0.0), axis=0)
+    lockup = higher & (output < 0.8 * reference) & any_positive
+    sits_at_bottom = has_barrier & ~refine
+    seed = {key: np.where(burst, scan_states[key][-1], seed[key]) for key in seed}
+    state, states = _settle(cycle, output, seed)
+    # a jump of the surplus across zero (the drive-capacitor regime changes
+    # between neighbouring outputs): no exact root exists and the circuit
+    # mixes the two cycles; take the side with the surplus and scale the
+    # average frequency so that energy per cycle times frequency balances
+    load_power = _load_power(load, output)
+    jump = (np.abs(_surplus(state, load, output)) > 1e-6 * np.maximum(load_power, 1e-9)) \
+        & ~burst & ~sits_at_bottom & refine
+    state, states = _settle(cycle, output, seed, losses=True)
+    if jump.any():
+        # the balance sits on a jump of the surplus between two cycle
+        # regimes: the supply alternates between the regime below the jump
+        # (surplus, the output rises) and the one above (deficit, it falls),
+        # spending the time fraction a = (P_load - P_above)/(P_below - P_above)
+        # in the first: a burst whose averages mix the two regimes
+        below_output = output * (1.0 - 2e-6)
+        below, _ = _settle(cycle, below_output, seed, losses=True)
+        surplus_below = _surplus(below, load, below_output)
+        surplus_above = _surplus(state, load, output)
+        mixable = jump & (surplus_below > 0.0) & (surplus_above < 0.0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            share = np.clip(-surplus_above / (surplus_below - surplus_above), 0.0, 1.0)
+        share = np.where(mixable, share, 0.0)
+        state = _mix_regimes(below, state, share, mixable)
+        burst = burst | mixable
+    settled = state["converged"]
     state["output"] = output
-    state["burst"] = burst
+    state["burst"] = burst & ~lockup
     load_power = _load_power(load, output)
     running = state["restarts"] & (design.transformer.feedback_phase == "regenerative")
-    # burst (and a mix of two cycle regimes at a jump of the surplus): the
-    # supply delivers only what the load takes; the average frequency scales
-    # down so that the energy per cycle times the frequency balances the load
+    # burst at the top of the range (the regulation path holds the limiter
+    # on there): the supply delivers only what the load takes; the average
+    # frequency scales down so that energy per cycle times frequency balances
     scale = np.where(state["delivered"] > 0,
                      np.clip(load_power / np.maximum(state["delivered"], 1e-300), 0.0, 1.0),
                      1.0)
-    settled = settled & ((scale > 0.999) | burst)
+    scale = np.where(state["burst"], scale, 1.0)
+    settled = settled & ~jump
     scale = np.where(running, scale, 0.0)
     losses = state["losses"]
     scaled = Losses(**{
@@ -878,12 +1448,30 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     # what the cycle delivers, at the voltage where it takes just that
     collapsed = ~any_positive & (state["delivered"] < load_power)
     delivered = np.maximum(state["delivered"], 0.0)
-    load_power = np.where(collapsed, delivered, load_power)
+    load_power = np.where(collapsed | sits_at_bottom, np.minimum(delivered, load_power),
+                          load_power)
     state["output"] = np.where(collapsed, _voltage_for_power(load, delivered, output), output)
     output_power = np.where(running, load_power, 0.0)
+    # the output loop: one cycle moves the output by the energy surplus per
+    # cycle over C_o V_o; at the balance its multiplier is
+    # 1 + T dS/dV_o / (C_o V_o) (S the surplus power, T the mean cycle time).
+    # Below -1 the balance is unstable by period doubling and the output
+    # hunts around it: the supply bursts (the cycle states, settled at each
+    # output, are taken as fast against the output: an adiabatic reduction)
+    step = 1e-6 * np.maximum(output, 1e-3)
+    up, _ = _settle(cycle, output + step, states)
+    down, _ = _settle(cycle, np.maximum(output - step, 1e-9), states)
+    slope = (_surplus(up, load, output + step)
+             - _surplus(down, load, np.maximum(output - step, 1e-9))) / (2.0 * step)
+    mean_period = 1.0 / np.maximum(state["frequency"], 1e-300)
+    multiplier = 1.0 + mean_period * slope / (design.output.capacitance
+                                              * np.maximum(output, 1e-3))
+    hunting = refine & ~jump & (multiplier < -1.0) & regulated
+    pattern = state["period_cycles"]
     state.update(scale=scale, running=running, settled=settled, lockup=lockup & running,
-                 losses=scaled, output_power=output_power,
-                 input_power=output_power + scaled.total)
+                 losses=scaled, output_power=output_power, jump=jump,
+                 input_power=output_power + scaled.total, output_multiplier=multiplier,
+                 hunting=hunting & running, pattern=pattern)
     return state
 
 
@@ -902,10 +1490,15 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     # ring-timed cycle) has drive-timed dead time on average
     mixed = running & ~state["burst"] & (scale < 0.999)
     mode_names = np.where(mixed, "dcm", mode_names)
-    mode_names = np.where(state["burst"], "burst", mode_names)
+    bursting = state["burst"] | state["hunting"] | (state["pattern"] > 1)
+    mode_names = np.where(bursting, "burst", mode_names)
+    mode_names = np.where(state["pattern"] == 0, "irregular", mode_names)
+    mode_names = np.where(state["lockup"], "lockup", mode_names)
     mode_names = np.where(running, mode_names, "off")
     period = np.where(frequency > 0, 1.0 / np.maximum(frequency, 1e-300), 0.0)
     off_time = np.where(running, np.maximum(period - t_on, t_off), 0.0)
+    doubt = _doubts(design, line, bus, running, mode_names, state, t_on, off_time,
+                    frequency)
     return OperatingPoints(
         line_voltage=line,
         bus_voltage=bus,
@@ -928,6 +1521,9 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         on_end=np.array(ON_END)[state["on_end"]],
         off_end=np.where(mixed, "drive-timing", np.array(OFF_END)[state["off_end"]]),
         settled=state["settled"],
+        pulses_per_pattern=np.where(running, state["pattern"], 0),
+        output_multiplier=state["output_multiplier"],
+        doubt=doubt,
         startup_lockup=state["lockup"],
         running=running,
         input_power=state["input_power"],
@@ -976,10 +1572,43 @@ def limit_power_capability(design: Design, line_voltage, temperature, hfe=None):
     for _ in range(3 if design.input.is_ac else 1):
         bus = np.maximum(bus_voltage(design, line_voltage, power * 1.25), 1.0)
         cycle = _Cycle(unregulated, bus, temperature, gain)
-        vc = np.minimum(cycle.v_threshold, 0.0) + np.zeros_like(bus)
-        i0 = np.zeros_like(bus)
-        for _ in range(12):
-            state = cycle.evaluate(output, vc, i0)
-            vc, i0 = state["vc_next"], state["residual"]
+        start = {"vc": np.minimum(cycle.v_threshold, 0.0) + np.zeros_like(bus),
+                 "i0": np.zeros_like(bus), "va": np.zeros_like(bus)}
+        state, _ = _settle(cycle, output, start)
         power = np.where(state["restarts"], np.maximum(state["delivered"], 0.0), 0.0)
     return power
+
+
+def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequency):
+    """Why a point's numbers need the engine (empty: none), and invariants.
+
+    Invariants checked at every running point: positive on-time, off-time,
+    frequency and peak current; no negative loss; input power equal to output
+    power plus losses within 1 %; the bus within its physical range (at most
+    the rectified line peak for AC input, the input itself for DC).
+    """
+    doubt = np.full(np.shape(running), "", dtype=object)
+    doubt = np.where(np.isin(mode, ("burst", "irregular")), "pattern", doubt)
+    doubt = np.where(mode == "lockup", "lockup", doubt)
+    doubt = np.where(state["jump"], "regime-boundary", doubt)
+    doubt = np.where(running & ~state["settled"] & (doubt == ""), "unsettled", doubt)
+    losses = state["losses"]
+    negative_loss = np.zeros(np.shape(running), dtype=bool)
+    for item in fields(Losses):
+        negative_loss |= np.broadcast_to(getattr(losses, item.name), np.shape(running)) < -1e-12
+    balance = np.abs(state["input_power"] - state["output_power"] - losses.total) \
+        > 0.01 * np.maximum(state["input_power"], 1e-12)
+    if design.input.is_ac:
+        bus_bad = (bus <= 0.0) | (bus > np.sqrt(2.0) * line * (1.0 + 1e-9))
+    else:
+        bus_bad = np.abs(bus - line) > 1e-9 * np.abs(line)
+    checks = (("on-time", running & ~(on_time > 0.0)),
+              ("off-time", running & ~(off_time > 0.0)),
+              ("frequency", running & ~(frequency > 0.0)),
+              ("peak current", running & ~(state["peak"] > 0.0)),
+              ("negative loss", running & negative_loss),
+              ("power balance", running & balance),
+              ("bus range", bus_bad))
+    for name, failed in checks:
+        doubt = np.where(failed, "invariant: " + name, doubt)
+    return doubt.astype(str)

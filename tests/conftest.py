@@ -116,9 +116,10 @@ def write_design(tmp_path):
 
 
 def regulating_designs() -> dict:
-    """Worked cases whose steady state is a regulated supply: at nominal line
-    and nominal load the cycle model runs in boundary conduction and the
-    regulation path ends the on-time.  Fault cases (deliberately broken designs for the start-up
+    """Worked cases whose steady state is a regulated supply: at the lowest
+    line and nominal load the cycle model runs (boundary conduction or a dead time
+    after demagnetization, no lock-up or burst) and the regulation path ends
+    the on-time.  Fault cases (deliberately broken designs for the start-up
     analysis) drop out by this physical test, not by their file names."""
     from rcc.cycle import operating_points
     from rcc.design import load_design
@@ -127,10 +128,10 @@ def regulating_designs() -> dict:
     for path in sorted(WORKED_CASES.glob("*.toml")):
         design = load_design(path)
         voltage = design.output.voltage_target or 12.0
-        nominal = operating_points(design, design.input.line_voltages[1],
+        nominal = operating_points(design, design.input.line_voltages[0],
                                    float(design.output.load_nominal.current(voltage)))
         if (bool(nominal.running) and str(nominal.on_end) == "regulation"
-                and str(nominal.mode) == "bcm"):
+                and str(nominal.mode) in ("bcm", "dcm")):
             selected[path.stem] = design
     assert "standby_12v_universal" in selected
     return selected
