@@ -33,7 +33,7 @@ def verification_rows(design: Design, line_voltages, loads, temperatures=None) -
     Returns
     -------
     list of dict
-        One row per point: line [V], load text, model and engine frequency
+        One row per point: line [V], load text and value [A], [ohm] or [W], model and engine frequency
         [Hz], output [V] and peak current [A], relative differences [1]
         (engine / model - 1), whether the engine's periodic steady state
         converged and its flags (a non-converged result carries the numbers
@@ -52,6 +52,7 @@ def verification_rows(design: Design, line_voltages, loads, temperatures=None) -
             rows.append({
                 "line_v": point.line_voltage,
                 "load": point.load.text(),
+                "load_value": float(point.load.value),
                 "model_mode": point.model_mode,
                 "model_frequency_hz": point.model_frequency,
                 "engine_frequency_hz": engine[0],

@@ -51,6 +51,40 @@ def refuse_overwrite(path, force: bool) -> None:
         raise fail_input(f"{path}: exists; use --force to overwrite it")
 
 
+def plan_outputs(outputs: dict, force: bool) -> None:
+    """Check the output paths before computing; exit 2 with one line if one
+    cannot be written (see :func:`rcc.cli.outputs.check_outputs`)."""
+    from rcc.cli.outputs import OutputError, check_outputs
+
+    try:
+        check_outputs(outputs, force)
+    except OutputError as error:
+        raise fail_input(str(error)) from None
+
+
+def write_outputs(writers) -> None:
+    """Run ``writers`` (callables taking an :class:`rcc.cli.outputs.OutputFiles`)
+    and move every file into place together; a write error (full disk, folder
+    removed meanwhile) exits 2 with one line and leaves no file behind."""
+    from rcc.cli.outputs import OutputFiles
+
+    try:
+        with OutputFiles() as files:
+            for writer in writers:
+                writer(files)
+    except OSError as error:
+        target = f" {error.filename}" if error.filename else ""
+        raise fail_input(f"cannot write{target}: {error.strerror or error}; no output "
+                         "file was changed") from None
+
+
+def echo_json(data) -> None:
+    """Print ``data`` as strict JSON (no NaN or Infinity: they become null)."""
+    from rcc.cli.outputs import strict_json
+
+    typer.echo(strict_json(data))
+
+
 def main() -> None:  # console-script entry point
     app(prog_name="rcc")
 

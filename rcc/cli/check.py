@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, load_or_exit
+from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit
 
 
 @app.command()
@@ -25,8 +24,13 @@ def check(
     from rcc.analysis import full_check
     from rcc.report import format_check_report
 
+    from rcc.startup import DcPointError
+
     design = load_or_exit(design_file)
-    report = full_check(design)
+    try:
+        report = full_check(design)
+    except DcPointError as error:
+        raise fail_input(f"{design_file}: {error}") from None
     data = report.to_json()
     if verify:
         from rcc.verification import verification_rows
@@ -36,7 +40,7 @@ def check(
             design, design.input.line_voltages,
             [output.load_min, output.load_nominal, output.load_max])
     if json_output:
-        typer.echo(json.dumps(data, indent=2))
+        echo_json(data)
     else:
         typer.echo(format_check_report(data))
     raise typer.Exit(EXIT_FINDING_FAILED if report.verdict == "fail" else EXIT_OK)

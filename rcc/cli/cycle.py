@@ -3,14 +3,15 @@ periodic steady state of the free-running oscillation and its stability."""
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 from typing import Optional
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, fail_input, load_or_exit, refuse_overwrite
+from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit,
+                     plan_outputs, write_outputs)
+from rcc.cli.outputs import FIGURE_SUFFIXES
 from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option
 
 
@@ -21,7 +22,7 @@ def cycle(
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write the one-period "
-                                        "waveforms (PNG)."),
+                                        "waveforms (.png, .pdf or .svg)."),
     force: bool = typer.Option(False, "--force", help="Overwrite an existing plot file."),
 ) -> None:
     """Periodic steady state by Newton's method on the turn-on Poincaré map,
@@ -34,32 +35,33 @@ def cycle(
                                 plot_periodic_steady_state)
 
     design = load_or_exit(design_file)
-    refuse_overwrite(plot, force)
-    if plot is not None and plot.suffix.lower() != ".png":
-        raise fail_input(f"--plot {str(plot)!r}: expected a .png file name")
     try:
         line_voltage = line_option(design, line)
         load_value = load_option(design, load)
     except ValueError as error:
         raise fail_input(str(error)) from None
+    plan_outputs({"--plot": (plot, FIGURE_SUFFIXES)}, force)
     try:
         result = periodic_steady_state(design, line_voltage, load_value)
     except PeriodicSteadyStateError as error:
         if json_output:
-            typer.echo(json.dumps({"error": str(error), "stable": False}, indent=2))
+            echo_json({"error": str(error), "stable": False})
         else:
             typer.echo(f"{design.title}\nno periodic steady state: {error}")
         raise typer.Exit(EXIT_FINDING_FAILED) from None
     if json_output:
-        typer.echo(json.dumps(result.to_json(), indent=2, allow_nan=False))
+        echo_json(result.to_json())
     else:
         typer.echo(format_cycle(design.title, result))
     if plot is not None:
-        import matplotlib.pyplot as plt
+        def write_plot(files):
+            import matplotlib.pyplot as plt
 
-        axes = plot_periodic_steady_state(result)
-        axes[0].figure.savefig(plot, dpi=120)
-        plt.close(axes[0].figure)
+            axes = plot_periodic_steady_state(result)
+            axes[0].figure.savefig(files.path(plot), dpi=120)
+            plt.close(axes[0].figure)
+
+        write_outputs([write_plot])
     ok = result.converged and result.stable
     raise typer.Exit(EXIT_OK if ok else EXIT_FINDING_FAILED)
 

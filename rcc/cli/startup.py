@@ -3,13 +3,13 @@ time and findings; optionally the symbolic derivation and a loop-gain plot."""
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, fail_input, load_or_exit, \
-    refuse_overwrite
+from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit,
+                     plan_outputs, write_outputs)
+from rcc.cli.outputs import FIGURE_SUFFIXES
 
 
 def _si(value, unit):
@@ -81,12 +81,7 @@ def startup(
     from rcc.startup import DcPointError, plot_loop_gain, startup_findings, startup_report
 
     design = load_or_exit(design_file)
-    if plot is not None:
-        refuse_overwrite(plot, force)
-        if not plot.parent.exists():
-            raise fail_input(f"{plot}: folder {plot.parent} does not exist")
-        if plot.suffix.lower() not in (".png", ".pdf", ".svg"):
-            raise fail_input(f"{plot}: expected a .png, .pdf or .svg file name")
+    plan_outputs({"--plot": (plot, FIGURE_SUFFIXES)}, force)
     try:
         report = startup_report(design)
     except DcPointError as error:
@@ -98,21 +93,24 @@ def startup(
 
         text = derivation_text(latex=latex)
     if plot is not None:
-        import matplotlib
+        def write_plot(files):
+            import matplotlib
 
-        matplotlib.use("Agg")
-        import matplotlib.pyplot as plt
+            matplotlib.use("Agg")
+            import matplotlib.pyplot as plt
 
-        ax = plot_loop_gain(report.result)
-        ax.figure.tight_layout()
-        ax.figure.savefig(plot, dpi=120)
-        plt.close(ax.figure)
+            axes = plot_loop_gain(report.result)
+            figure = axes[0].figure if hasattr(axes, "__len__") else axes.figure
+            figure.savefig(files.path(plot), dpi=120)
+            plt.close(figure)
+
+        write_outputs([write_plot])
     if json_output:
         data = {"design": report.title, "startup": report.to_json(),
                 "findings": [f.to_json() for f in findings]}
         if text is not None:
             data["derivation"] = text
-        typer.echo(json.dumps(data, indent=2))
+        echo_json(data)
     else:
         if text is not None:
             typer.echo(text)

@@ -9,8 +9,14 @@ from typing import Optional
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, app, fail_input, load_or_exit, refuse_overwrite
+from rcc.cli import (EXIT_FINDING_FAILED, app, fail_input, load_or_exit, plan_outputs,
+                     write_outputs)
+from rcc.cli.outputs import FIGURE_SUFFIXES
 from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option, time_option
+
+
+#: A CSV larger than this is announced on stderr before it is written [B].
+LARGE_CSV_BYTES = 20e6
 
 
 @app.command()
@@ -18,18 +24,29 @@ def waveforms(
     design_file: Path = typer.Argument(..., help="TOML design file."),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
-    time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on."),
+    time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on, "
+                             "with its unit (up to 10s)."),
     from_dc_point: bool = typer.Option(False, "--from-dc-point", help="Start from the DC "
                                        "operating point instead of discharged capacitors."),
-    plot: Optional[Path] = typer.Option(None, "--plot", help="Write stacked waveforms (PNG)."),
+    max_events: int = typer.Option(2_000_000, "--max-events", min=1000, max=100_000_000,
+                                   help="Stop after this many switching events."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Write stacked waveforms "
+                                        "(.png, .pdf or .svg)."),
     csv: Optional[Path] = typer.Option(None, "--csv", help="Write the traces as CSV."),
+    every: int = typer.Option(1, "--every", min=1, help="CSV: keep every N-th sample."),
+    window: Optional[str] = typer.Option(None, "--window", help="CSV: time window "
+                                         "START:STOP, e.g. 15ms:20ms."),
+    signals: Optional[str] = typer.Option(None, "--signals", help="CSV: comma-separated "
+                                          "signal names (and 'states' for the state "
+                                          "vector). Default: all."),
     force: bool = typer.Option(False, "--force", help="Overwrite existing output files."),
 ) -> None:
     """Simulate the supply from switch-on: collector voltage, primary, base and
     limiter currents, feedback winding and output voltage.
 
-    Exit code 0 when the run completes, 1 when the engine stops on an event
-    storm or an inconsistent circuit, 2 on bad input.
+    The bus is held at its no-load value (the rectified peak for AC input).
+    Exit code 0 when the run completes, 1 when the engine stops (event storm,
+    inconsistent circuit, --max-events reached), 2 on bad input.
     """
     design = load_or_exit(design_file)
     from rcc.cycle import reference_temperature
@@ -39,48 +56,89 @@ def waveforms(
         line_voltage = line_option(design, line)
         load_value = load_option(design, load)
         duration = time_option(time)
+        csv_window = _window_option(window, duration)
+        csv_signals = _signals_option(signals)
     except ValueError as error:
         raise fail_input(str(error)) from None
+    plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--csv": (csv, None)}, force)
     # the bus is held at its no-load value: the rectified peak for AC input
     bus_voltage = float(no_load_bus(design, line_voltage))
-    if bus_voltage <= 0:
-        raise fail_input(f"--line {line!r}: the bus would be {bus_voltage:.3g} V after the "
-                         "bridge drop; expected a higher line voltage")
-    if plot is not None and plot.suffix.lower() != ".png":
-        raise fail_input(f"--plot {str(plot)!r}: expected a .png file name")
-    refuse_overwrite(plot, force)
-    refuse_overwrite(csv, force)
     from rcc.engine import EngineError, build_circuit, dc_initial_state, simulate
 
     temperature = reference_temperature(design)
     circuit = build_circuit(design, bus_voltage, load_value, temperature)
     try:
         x0 = dc_initial_state(circuit, from_dc_point=from_dc_point)
-        trace = _run_with_progress(circuit, x0, duration, simulate)
+        trace = _run_with_progress(circuit, x0, duration, simulate, max_events)
     except EngineError as error:
-        typer.echo(f"{design.title}\nengine stopped: {error}")
+        reason = str(error).replace("raise max_events", "raise --max-events")
+        typer.echo(f"{design.title}\nengine stopped: {reason}")
         raise typer.Exit(EXIT_FINDING_FAILED) from None
     typer.echo(format_summary(design.title, line_voltage, bus_voltage, load_value,
                               temperature, trace))
+    writers = []
     if csv is not None:
-        from rcc.engine.plotting import write_csv
+        from rcc.engine.plotting import csv_size, write_csv
 
-        write_csv(trace, csv)
+        try:
+            size = csv_size(trace, csv_signals, every, csv_window)
+        except ValueError as error:
+            raise fail_input(f"--signals {signals!r}: {error}") from None
+        if size > LARGE_CSV_BYTES:
+            typer.echo(f"writing about {size / 1e6:.0f} MB to {csv} (reduce with --every, "
+                       "--window or --signals)", err=True)
+        writers.append(lambda files: write_csv(trace, files.path(csv), csv_signals, every,
+                                               csv_window))
     if plot is not None:
-        import matplotlib.pyplot as plt
+        def write_plot(files):
+            import matplotlib.pyplot as plt
 
-        from rcc.engine.plotting import plot_waveforms
+            from rcc.engine.plotting import plot_waveforms
 
-        axes = plot_waveforms(trace, title=design.title)
-        axes[0, 0].figure.savefig(plot, dpi=110)
-        plt.close(axes[0, 0].figure)
+            axes = plot_waveforms(trace, title=design.title)
+            axes[0, 0].figure.savefig(files.path(plot), dpi=110)
+            plt.close(axes[0, 0].figure)
+
+        writers.append(write_plot)
+    write_outputs(writers)
 
 
-def _run_with_progress(circuit, x0, duration, simulate):
+def _window_option(text, duration):
+    """``--window START:STOP`` [s] inside the run."""
+    if text is None:
+        return None
+    from rcc.sweep import parse_range
+
+    parts = text.split(":")
+    if len(parts) != 2:
+        raise ValueError(f"--window {text!r}: expected START:STOP with units, e.g. 15ms:20ms")
+    start, stop = (float(parse_range(part, "time", "--window")[0]) for part in parts)
+    if not 0 <= start < stop:
+        raise ValueError(f"--window {text!r}: expected 0 <= START < STOP")
+    if start >= duration:
+        raise ValueError(f"--window {text!r}: starts after the end of the run "
+                         f"({duration * 1e3:g} ms)")
+    return start, stop
+
+
+def _signals_option(text):
+    if text is None:
+        return None
+    from rcc.engine import SIGNAL_NAMES
+
+    names = [name.strip() for name in text.split(",") if name.strip()]
+    valid = list(SIGNAL_NAMES) + ["states"]
+    unknown = [name for name in names if name not in valid]
+    if unknown or not names:
+        raise ValueError(f"--signals {text!r}: expected some of {', '.join(valid)}")
+    return names
+
+
+def _run_with_progress(circuit, x0, duration, simulate, max_events):
     """Run the engine with a progress bar on stderr for long runs."""
     max_step = duration / 20000.0
     if duration < 5e-3:
-        return simulate(circuit, x0, duration, max_step=max_step)
+        return simulate(circuit, x0, duration, max_step=max_step, max_events=max_events)
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
     with Progress(TextColumn("simulating"), BarColumn(), TextColumn("{task.percentage:>3.0f} %"),
@@ -91,7 +149,8 @@ def _run_with_progress(circuit, x0, duration, simulate):
         def report(t, t_end):
             progress.update(task, completed=t)
 
-        return simulate(circuit, x0, duration, max_step=max_step, progress=report)
+        return simulate(circuit, x0, duration, max_step=max_step, progress=report,
+                        max_events=max_events)
 
 
 def _stderr_console():

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["WAVEFORM_PANELS", "plot_waveforms", "plot_periodic_steady_state", "zoom_window",
-           "write_csv"]
+           "write_csv", "csv_columns", "csv_rows", "csv_size"]
 
 #: Stacked panels: (signal name, axis label, display scale, unit).
 WAVEFORM_PANELS = (
@@ -106,22 +106,82 @@ def _time_scale(span: float) -> tuple[float, str]:
     return 1e6, "us"
 
 
-def write_csv(trace, path) -> None:
-    """Write time, the named signals and the state vector as CSV.
+#: Bytes per CSV cell written with ``%.10g`` and a comma, on average [B].
+CSV_CELL_BYTES = 15
+
+
+def csv_columns(trace, signals=None) -> list[str]:
+    """Names of the signals (and states) a CSV of ``trace`` would hold.
+
+    Parameters
+    ----------
+    trace : Trace
+    signals : sequence of str, optional
+        Signal names of ``trace.signals`` and/or ``"states"`` (the whole state
+        vector); default every signal and the states.
+
+    Returns
+    -------
+    list of str
+
+    Raises
+    ------
+    ValueError
+        An unknown name; the message lists the valid ones.
+    """
+    valid = list(trace.signals) + ["states"]
+    if signals is None:
+        return valid
+    unknown = [name for name in signals if name not in valid]
+    if unknown:
+        raise ValueError(f"unknown signal {unknown[0]!r}; expected some of "
+                         + ", ".join(valid))
+    return list(dict.fromkeys(signals))
+
+
+def csv_rows(trace, every: int = 1, window=None) -> np.ndarray:
+    """Sample indices a CSV keeps: inside ``window`` (start, end) [s], every
+    ``every``-th sample [1]."""
+    index = np.arange(trace.times.size)
+    if window is not None:
+        start, end = window
+        index = index[(trace.times >= start) & (trace.times <= end)]
+    return index[::max(int(every), 1)]
+
+
+def csv_size(trace, signals=None, every: int = 1, window=None) -> int:
+    """Estimated size of the CSV file [B]."""
+    columns = csv_columns(trace, signals)
+    width = 1 + sum(len(trace.state_names) if c == "states" else 1 for c in columns)
+    return int(csv_rows(trace, every, window).size * width * CSV_CELL_BYTES)
+
+
+def write_csv(trace, path, signals=None, every: int = 1, window=None) -> None:
+    """Write time, the chosen signals and (optionally) the state vector as CSV.
 
     Parameters
     ----------
     trace : Trace
     path : str or Path
         Output file (overwritten; the caller checks for existing files).
+    signals : sequence of str, optional
+        See :func:`csv_columns`; default all signals and the states.
+    every : int
+        Keep every ``every``-th sample [1] (events appear as two samples).
+    window : (float, float), optional
+        Time window to keep [s].
     """
-    names = list(trace.signals)
-    columns = [trace.times] + [trace.signals[n] for n in names] + list(trace.states.T)
-    header = ["time_s"] + [f"{n}_{_unit(n)}" for n in names] + [
-        f"state_{s}" for s in trace.state_names]
-    data = np.column_stack(columns)
-    np.savetxt(path, data, delimiter=",", header=",".join(header), comments="",
-               fmt="%.10g")
+    rows = csv_rows(trace, every, window)
+    columns, header = [trace.times[rows]], ["time_s"]
+    for name in csv_columns(trace, signals):
+        if name == "states":
+            columns += list(trace.states[rows].T)
+            header += [f"state_{state}" for state in trace.state_names]
+        else:
+            columns.append(trace.signals[name][rows])
+            header.append(f"{name}_{_unit(name)}")
+    np.savetxt(path, np.column_stack(columns), delimiter=",", header=",".join(header),
+               comments="", fmt="%.10g")
 
 
 def _unit(name: str) -> str:
