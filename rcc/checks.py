@@ -306,14 +306,15 @@ def _drive(design, low_line, findings):
             "the base drive, the switch desaturates at full current and dissipates.",
             margin, 1.0, "",
             "Increase the base drive: more feedback turns, a smaller drive resistor, a "
-            "larger drive capacitor, or a switch with higher hFE."))
+            "larger drive capacitor, or a switch with higher hFE.", bound="lower"))
     elif margin < DRIVE_MARGIN_WARN:
         findings.append(Finding(
             "weak-drive", "warn",
             f"Base-drive margin hFE*Ib/Ic = {margin:.2f} at turn-off (lowest line, coldest, "
             f"hfe_min, heaviest load): little reserve for hFE spread and ageing.",
             margin, DRIVE_MARGIN_WARN, "",
-            "Increase the base drive (feedback turns, drive resistor, drive capacitor)."))
+            "Increase the base drive (feedback turns, drive resistor, drive capacitor).",
+            bound="lower"))
 
 
 def _current_rating(design, corner_sets, stress_result, findings):
@@ -407,14 +408,15 @@ def _output(design, points, corner_sets, findings):
     running = points.running
     nominal = float(points.output_voltage[1, 1])
     deviation = (nominal - target) / target
-    if abs(deviation) > tolerance:
+    # a supply that does not run has no output: that is reported by its cause
+    if abs(deviation) > tolerance and bool(running[1, 1]):
         findings.append(Finding(
             "output-off-target", "fail",
             f"Output at nominal line and load is {nominal:.3f} V, {deviation:+.1%} from the "
             f"target {target:.3f} V (allowed +/-{tolerance:.0%}).",
             nominal, target * (1 + np.sign(deviation) * tolerance), "V",
             "Adjust the regulation set point (zener voltage, reference or divider) or the "
-            "output-to-feedback turns ratio."))
+            "output-to-feedback turns ratio.", bound="upper" if deviation > 0 else "lower"))
     outputs = np.concatenate([np.ravel(points.output_voltage[running])] + [
         np.ravel(a.output_voltage[a.running]) for a in corner_sets])
     if outputs.size == 0:
@@ -431,7 +433,8 @@ def _output(design, points, corner_sets, findings):
             "overload.",
             worst, target * (1 + np.sign(worst_deviation) * tolerance), "V",
             "Raise the regulation gain (smaller zener/LED series resistor, larger limiter "
-            "base resistor) or compensate the zener tempco."))
+            "base resistor) or compensate the zener tempco.",
+            bound="upper" if worst_deviation > 0 else "lower"))
 
 
 def _not_running(design, points, findings):
@@ -460,7 +463,7 @@ def _squegging(design, corner_sets, findings):
             "ratchets up until a long drive-timed off-time resets it (squegging, "
             "irregular cycles). The cycle-model values there describe one cycle of that "
             "pattern; check with `rcc cycle`/`rcc waveforms`.",
-            float(unsettled), 0.0, "",
+            float(unsettled), 0.0, "points",
             "Give the drive capacitor a reset path in the off-time: a base-emitter resistor "
             "of lower value, a diode across the base-emitter junction, or more feedback "
             "turns so the base is clamped during the flyback plateau."))
@@ -479,7 +482,7 @@ def _lockup(design, corner_sets, findings):
         "reflected voltage is too small to reset the drive capacitor during the off-time, "
         "the cycles become drive-timed and deliver less than the load takes. From "
         "power-on the supply would stay at a low output and hiccup.",
-        float(count), 0.0, "",
+        float(count), 0.0, "points",
         "Strengthen the drive-capacitor reset (a lower base-emitter resistor, a diode "
         "path across the base, a smaller drive capacitor or more feedback turns), or make "
         "sure the load stays light until the output is up; confirm with `rcc waveforms`."))

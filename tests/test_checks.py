@@ -203,8 +203,10 @@ def test_sweep_csv_plot_and_overwrite_guard(tmp_path):
 def test_sweep_json_power_load_and_temperature():
     result = runner.invoke(app, ["sweep", str(AUX), "--line", "48V", "--load", "1W:5W:3",
                                  "--temperature", "-20degC:70degC:2", "--json"])
-    assert result.exit_code == 0, result.output
+    # exit 1: the aux case cannot start into these loads (startup-lockup), listed
+    assert result.exit_code == 1, result.output
     data = json.loads(result.stdout)
+    assert len(data["not_running"]) == 6 and "lock-up" in data["not_running"][0]
     assert data["load_kind"] == "power" and len(data["operating_points"]) == 6
     for row in data["operating_points"]:
         # a power load is met: P = V I at the computed output
@@ -214,7 +216,7 @@ def test_sweep_json_power_load_and_temperature():
 
 @pytest.mark.parametrize("option, value, message", [
     ("--line", "85V:x", "START:STOP:COUNT"),
-    ("--line", "85V:265V:0", "count of at least 1"),
+    ("--line", "85V:265V:0", "count from 1 to 1000"),
     ("--load", "3 H:4 H:2", "currents"),
     ("--temperature", "hot", "temperature"),
 ])

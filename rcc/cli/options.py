@@ -64,7 +64,14 @@ def load_option(design, text: Optional[str]):
         return design.output.load_nominal
     if "," in text or ":" in text:
         raise ValueError(f"--load {text!r}: expected one load, e.g. 0.3A, 40ohm, 4W or 50%")
-    load = parse_load_range(text, "--load", reference=design.output.load_max)
+    try:
+        load = parse_load_range(text, "--load", reference=design.output.load_max)
+    except ValueError as error:
+        if "expected currents" not in str(error):
+            raise
+        raise ValueError(f"--load {text!r}: expected one load: a current, resistance or "
+                         "power (e.g. 0.3A, 40ohm, 4W) or a percentage of load_max (50%)"
+                         ) from None
     return type(load)(load.kind, float(load.value[0]))
 
 
