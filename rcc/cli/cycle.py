@@ -24,6 +24,8 @@ def cycle(
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write the one-period "
                                         "waveforms (.png, .pdf or .svg)."),
     force: bool = typer.Option(False, "--force", help="Overwrite an existing plot file."),
+    verbose: bool = typer.Option(False, "--verbose", help="Also list the switching events "
+                                 "of the cycle (engine device states)."),
 ) -> None:
     """Periodic steady state by Newton's method on the turn-on Poincaré map,
     with Floquet multipliers (cycle stability).
@@ -52,12 +54,17 @@ def cycle(
     if json_output:
         echo_json(result.to_json())
     else:
-        typer.echo(format_cycle(design.title, result))
+        typer.echo(format_cycle(design.title, result, verbose=verbose))
     if plot is not None:
         def write_plot(files):
             import matplotlib.pyplot as plt
 
-            axes = plot_periodic_steady_state(result)
+            from rcc.stress import rating_basis
+
+            basis, volts = rating_basis(design.switch)
+            derating = design.limits.voltage_derating
+            axes = plot_periodic_steady_state(result, rating=(
+                volts * derating, f"{derating:.0%} of {basis.upper()} {volts:.0f} V"))
             axes[0].figure.savefig(files.path(plot), dpi=120)
             plt.close(axes[0].figure)
 
@@ -66,15 +73,18 @@ def cycle(
     raise typer.Exit(EXIT_OK if ok else EXIT_FINDING_FAILED)
 
 
-def format_cycle(title: str, result) -> str:
-    """Plain-text report of a periodic steady state."""
+def format_cycle(title: str, result, verbose: bool = False) -> str:
+    """Plain-text report of a periodic steady state (the engine's switching
+    events only with ``verbose``)."""
+    from rcc.engine.plotting import cycle_status, on_time_end
+
     rows = [
         ("line", f"{result.line_voltage:.4g} V"),
         ("bus", f"{result.bus_voltage:.4g} V"),
         ("load", result.load.text()),
         ("frequency", f"{result.frequency / 1e3:.5g} kHz"),
         ("period", f"{result.period * 1e6:.5g} us"),
-        ("on-time", f"{result.on_time * 1e6:.5g} us"),
+        ("on-time", f"{result.on_time * 1e6:.5g} us (ended by {on_time_end(result)[1]})"),
         ("off-time", f"{result.off_time * 1e6:.5g} us"),
         ("peak current", f"{result.peak_current * 1e3:.5g} mA"),
         ("output", f"{result.output_voltage:.5g} V"),
@@ -89,7 +99,7 @@ def format_cycle(title: str, result) -> str:
                      else f", {-result.power.stored:.4g} W from stored energy "
                           "(this cycle is not periodic)")),
     ]
-    lines = [title]
+    lines = [title, f"  {cycle_status(result)}"]
     width = max(len(name) for name, _ in rows)
     lines += [f"  {name:<{width}}  {value}" for name, value in rows]
     lines.append("  Floquet multipliers (|m|, angle):")
@@ -99,7 +109,8 @@ def format_cycle(title: str, result) -> str:
              if watts >= 0.01 * result.power.loss]
     lines.append("  losses (1 % of the total and above): " + ", ".join(
         f"{name.replace('_', ' ')} {watts * 1e3:.3g} mW" for name, watts in shown))
-    lines.append(f"  events: {' '.join(result.event_sequence)}")
+    if verbose:
+        lines.append(f"  events: {' '.join(result.event_sequence)}")
     for flag in result.flags:
         lines.append(f"  note: {flag}")
     return "\n".join(lines)
