@@ -65,10 +65,11 @@ def startup(
     design_file: Path = typer.Argument(..., help="TOML design file."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     derivation: bool = typer.Option(False, "--derivation",
-                                    help="Also print the symbolic loop gain and the "
-                                         "start condition, every symbol explained."),
-    latex: bool = typer.Option(False, "--latex",
-                               help="Print the derivation as LaTeX (implies --derivation)."),
+                                    help="Also print the loop gain and the start condition "
+                                         "with the design's numbers, every symbol "
+                                         "explained."),
+    latex: Path = typer.Option(None, "--latex", help="Write the derivation with the "
+                               "design's numbers as a LaTeX document (e.g. startup.tex)."),
     plot: Path = typer.Option(None, "--plot", help="Write a Bode plot of the loop gain "
                                                    "(e.g. loop.png)."),
     force: bool = typer.Option(False, "--force", help="Overwrite the --plot file."),
@@ -81,17 +82,24 @@ def startup(
     from rcc.startup import DcPointError, plot_loop_gain, startup_findings, startup_report
 
     design = load_or_exit(design_file)
-    plan_outputs({"--plot": (plot, FIGURE_SUFFIXES)}, force)
+    plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--latex": (latex, (".tex",))}, force)
     try:
         report = startup_report(design)
     except DcPointError as error:
         raise fail_input(f"{design_file}: {error}") from None
     findings = startup_findings(design, report)
-    text = None
-    if derivation or latex:
-        from rcc.startup.symbolic import derivation_text
+    text, writers = None, []
+    if derivation or latex is not None:
+        import shutil
 
-        text = derivation_text(latex=latex)
+        from rcc.startup.worked_derivation import (derivation_text, latex_document,
+                                                   worked_derivation)
+
+        worked = worked_derivation(design, report.result)
+        if derivation:
+            text = derivation_text(worked, width=shutil.get_terminal_size((92, 24)).columns)
+        if latex is not None:
+            writers.append(lambda files: files.write_text(latex, latex_document(worked)))
     if plot is not None:
         def write_plot(files):
             import matplotlib
@@ -104,7 +112,8 @@ def startup(
             figure.savefig(files.path(plot), dpi=120)
             plt.close(figure)
 
-        write_outputs([write_plot])
+        writers.append(write_plot)
+    write_outputs(writers)
     if json_output:
         data = {"design": report.title, "startup": report.to_json(),
                 "findings": [f.to_json() for f in findings]}
@@ -116,7 +125,8 @@ def startup(
             typer.echo(text)
             typer.echo("")
         typer.echo(_text(report, findings))
-        if plot is not None:
-            typer.echo(f"wrote {plot}")
+        for path in (plot, latex):
+            if path is not None:
+                typer.echo(f"wrote {path}")
     failed = any(f.severity == "fail" for f in findings)
     raise typer.Exit(EXIT_FINDING_FAILED if failed else EXIT_OK)
