@@ -865,18 +865,15 @@ def _plausible(number: float, bounds) -> bool:
 
 
 def _range_phrase(key: Key) -> str:
-    """'a magnetizing inductance from 100 pH to 100 H (the range the models are built for)'."""
-    format_si = _si
+    """'an inductance from 100 pH to 100 H (the range the models are built for)'."""
+    from rcc.units import format_quantity
+
     low, high = key.plausible
-    unit = DIMENSIONS[key.dimension].unit
-    if key.dimension == "temperature":
-        span = f"from {low - 273.15:g} degC to {high - 273.15:g} degC"
-    elif low == 0:
-        span = f"of magnitude up to {format_si(high, unit, 3)}"
+    if low == 0:
+        span = f"of magnitude up to {format_quantity(high, key.dimension)}"
     else:
-        span = f"from {format_si(low, unit, 3)} to {format_si(high, unit, 3)}"
-        if not unit:
-            span = f"from {low:g} to {high:g}"
+        span = (f"from {format_quantity(low, key.dimension)} to "
+                f"{format_quantity(high, key.dimension)}")
     what = "a number" if key.dimension == "dimensionless" else \
         f"{_article(DIMENSIONS[key.dimension].name)} {DIMENSIONS[key.dimension].name}"
     return f"{what} {span} (the range the models are built for)"

@@ -343,7 +343,31 @@ def markdown_reference() -> str:
                 default = f"`{key.default}`" if key.default != "" else "empty"
             lines.append(f"| `{key.name}` | {unit} | {default} | {key.description} |")
         lines.append("")
+    lines += _ranges_reference()
     return "\n".join(lines)
+
+
+def _ranges_reference() -> list[str]:
+    """The ranges of :data:`PLAUSIBLE` and the keys with their own, as Markdown."""
+    from rcc.units import format_quantity
+
+    def span(dimension, bounds):
+        low, high = bounds
+        if low == 0:
+            return f"magnitude up to {format_quantity(high, dimension)}"
+        return f"{format_quantity(low, dimension)} to {format_quantity(high, dimension)}"
+
+    lines = ["#### Value ranges", "",
+             "Values outside these ranges (zero aside, where a key allows it) are refused "
+             "with the range in the message: the models are not built for them.", "",
+             "| values | range |", "|---|---|"]
+    lines += [f"| {dimension} | {span(dimension, bounds)} |"
+              for dimension, bounds in PLAUSIBLE.items()]
+    lines += [f"| `{key.path}` | {span(key.dimension, key.bounds)} |"
+              for key in KEYS if key.bounds is not None]
+    lines += ["| loads | current up to 10 kA, resistance 1 uohm to 1 Pohm, power up "
+              "to 100 kW |", ""]
+    return lines
 
 
 if __name__ == "__main__":  # pragma: no cover - documentation helper

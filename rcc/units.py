@@ -28,6 +28,7 @@ __all__ = [
     "kelvin_to_celsius",
     "celsius_to_kelvin",
     "format_si",
+    "format_quantity",
 ]
 
 
@@ -272,3 +273,32 @@ def format_si(value: float, unit: str, digits: int = 4) -> str:
             return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
     scale, prefix = _PREFIXES[-1]
     return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
+
+
+def format_quantity(value: float, dimension: str, digits: int = 3) -> str:
+    """Format a value of a design-file dimension for messages and references.
+
+    Parameters
+    ----------
+    value : float
+        Value in SI base units [SI] (kelvin for temperatures).
+    dimension : str
+        Key of :data:`DIMENSIONS` [-].
+    digits : int
+        Significant digits [-].
+
+    Returns
+    -------
+    str
+        Temperatures in degC, areas in mm^2, relative tempcos in %/K, other
+        units with an SI prefix (:func:`format_si`); dimensionless numbers plain.
+    """
+    if dimension == "temperature":
+        return f"{value - zero_Celsius:.{digits}g} degC"
+    if dimension == "area":  # a prefix would apply to the metre, not the square metre
+        return f"{value * 1e6:.{digits}g} mm^2"
+    if dimension == "fraction per kelvin":
+        return f"{value * 100:.{digits}g} %/K"
+    if dimension == "dimensionless":
+        return f"{value:.{digits}g}"
+    return format_si(value, DIMENSIONS[dimension].unit, digits)

@@ -16,7 +16,8 @@ from rcc.design import Design, Load
 __all__ = ["verification_rows", "split_loads"]
 
 
-def verification_rows(design: Design, line_voltages, loads, temperatures=None) -> list[dict]:
+def verification_rows(design: Design, line_voltages, loads, temperatures=None,
+                      progress=None) -> list[dict]:
     """Differences between the cycle model and the engine, as JSON-ready rows.
 
     Parameters
@@ -29,6 +30,8 @@ def verification_rows(design: Design, line_voltages, loads, temperatures=None) -
         Loads, each with a scalar value [A], [ohm] or [W].
     temperatures : sequence of float, optional
         Temperatures [K]; default 25 degC clipped into the design's range.
+    progress : callable, optional
+        Called as ``progress(done, total)`` after each point [1].
 
     Returns
     -------
@@ -44,29 +47,35 @@ def verification_rows(design: Design, line_voltages, loads, temperatures=None) -
     from rcc.engine.pss import verify_operating_points
 
     rows = []
-    for load in loads:
-        for point in verify_operating_points(design, line_voltages, load, temperatures):
-            state = point.steady_state
-            engine = (state.frequency, state.output_voltage, state.peak_current) \
-                if state is not None else (None, None, None)
-            rows.append({
-                "line_v": point.line_voltage,
-                "load": point.load.text(),
-                "load_value": float(point.load.value),
-                "model_mode": point.model_mode,
-                "model_frequency_hz": point.model_frequency,
-                "engine_frequency_hz": engine[0],
-                "frequency_diff": point.frequency_difference if state is not None else None,
-                "model_output_v": point.model_output_voltage,
-                "engine_output_v": engine[1],
-                "output_diff": point.output_voltage_difference if state is not None else None,
-                "model_peak_a": point.model_peak_current,
-                "engine_peak_a": engine[2],
-                "peak_diff": point.peak_current_difference if state is not None else None,
-                "engine_converged": bool(state.converged) if state is not None else False,
-                "engine_flags": "; ".join(state.flags) if state is not None else "",
-                "error": point.error,
-            })
+    line_voltages = list(np.atleast_1d(line_voltages))
+    per_line = len(np.atleast_1d(temperatures)) if temperatures is not None else 1
+    total = len(loads) * len(line_voltages) * per_line
+    points = (point for load in loads for line in line_voltages
+              for point in verify_operating_points(design, [line], load, temperatures))
+    for done, point in enumerate(points, start=1):
+        if progress is not None:
+            progress(done, total)
+        state = point.steady_state
+        engine = (state.frequency, state.output_voltage, state.peak_current) \
+            if state is not None else (None, None, None)
+        rows.append({
+            "line_v": point.line_voltage,
+            "load": point.load.text(),
+            "load_value": float(point.load.value),
+            "model_mode": point.model_mode,
+            "model_frequency_hz": point.model_frequency,
+            "engine_frequency_hz": engine[0],
+            "frequency_diff": point.frequency_difference if state is not None else None,
+            "model_output_v": point.model_output_voltage,
+            "engine_output_v": engine[1],
+            "output_diff": point.output_voltage_difference if state is not None else None,
+            "model_peak_a": point.model_peak_current,
+            "engine_peak_a": engine[2],
+            "peak_diff": point.peak_current_difference if state is not None else None,
+            "engine_converged": bool(state.converged) if state is not None else False,
+            "engine_flags": "; ".join(state.flags) if state is not None else "",
+            "error": point.error,
+        })
     return [{key: (float(value) if isinstance(value, (np.floating,)) else value)
              for key, value in row.items()} for row in rows]
 

@@ -44,7 +44,7 @@ EXTREMES = {
                         r"primary_turns = 99999.*\(400 characters\): expected a finite "
                         r"number, got an integer of 400 digits"),
     "huge hFE": ("switch", "hfe_max", 10 ** 300,
-                 r"switch\.hfe_max = .*: expected a number from 1 to 100000 \(the range"),
+                 r"switch\.hfe_max = .*: expected a number from 1 to 1e\+05 \(the range"),
     "1e308 H": ("transformer", "magnetizing_inductance", "1e308 H",
                 r"magnetizing_inductance = '1e308 H': expected an inductance from 100 pH "
                 r"to 100 H \(the range the models are built for\)"),

@@ -14,12 +14,27 @@ import typer
 app = typer.Typer(
     add_completion=False,
     no_args_is_help=True,
+    rich_markup_mode=None,
     help="Analyze self-oscillating (ringing-choke) flyback supplies from a design file.",
 )
 
+def _version(value: bool) -> None:
+    if value:
+        from rcc import __version__
+
+        typer.echo(f"rcc {__version__}")
+        raise typer.Exit(0)
+
+
 @app.callback()
-def _root() -> None:
-    """Analyze self-oscillating (ringing-choke) flyback supplies from a design file."""
+def _root(version: bool = typer.Option(False, "--version", is_eager=True, callback=_version,
+                                       help="Print the version and exit.")) -> None:
+    """Analyze self-oscillating (ringing-choke) flyback supplies from a design file.
+
+    Exit codes of every command: 0 success, 1 a finding fails or the supply does
+    not run as asked, 2 bad input (one line per problem on stderr).  Also
+    available as `python -m rcc`.
+    """
 
 
 #: Exit codes shared by every command.

@@ -12,12 +12,13 @@ import typer
 from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit,
                      plan_outputs, write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
+from rcc.cli.progress import QUIET_HELP, Status
 from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option
 
 
-@app.command()
+@app.command(short_help="The periodic steady state and its stability (engine).")
 def cycle(
-    design_file: Path = typer.Argument(..., help="TOML design file."),
+    design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
@@ -26,6 +27,7 @@ def cycle(
     force: bool = typer.Option(False, "--force", help="Overwrite an existing plot file."),
     verbose: bool = typer.Option(False, "--verbose", help="Also list the switching events "
                                  "of the cycle (engine device states)."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Periodic steady state by Newton's method on the turn-on Poincaré map,
     with Floquet multipliers (cycle stability).
@@ -44,7 +46,9 @@ def cycle(
         raise fail_input(str(error)) from None
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES)}, force)
     try:
-        result = periodic_steady_state(design, line_voltage, load_value)
+        with Status(quiet) as status:
+            status.phase("warm-up transient, then Newton's method on the cycle")
+            result = periodic_steady_state(design, line_voltage, load_value)
     except PeriodicSteadyStateError as error:
         if json_output:
             echo_json({"error": str(error), "stable": False})

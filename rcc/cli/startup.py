@@ -60,9 +60,9 @@ def _text(report, findings) -> str:
     return "\n".join(lines)
 
 
-@app.command()
+@app.command(short_help="Will it start? DC point, poles, start-up voltage and time.")
 def startup(
-    design_file: Path = typer.Argument(..., help="TOML design file."),
+    design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     derivation: bool = typer.Option(False, "--derivation",
                                     help="Also print the loop gain and the start condition "

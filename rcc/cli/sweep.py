@@ -10,11 +10,12 @@ import typer
 from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit,
                      plan_outputs, write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
+from rcc.cli.progress import QUIET_HELP, Status
 
 
-@app.command()
+@app.command(short_help="The cycle model over line, load and temperature ranges.")
 def sweep(
-    design_file: Path = typer.Argument(..., help="TOML design file."),
+    design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     line: Optional[str] = typer.Option(None, help="Line range START:STOP:COUNT, e.g. "
                                        "85V:265V:5 (RMS for AC input, DC otherwise). "
                                        "Default: min, nominal, max."),
@@ -31,6 +32,7 @@ def sweep(
     verify: bool = typer.Option(False, "--verify", help="Also solve every point with the "
                                 "periodic-steady-state engine and show the differences "
                                 "(slow: seconds per point)."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Frequency, output voltage and peak current against load, per line voltage
     (and temperature).
@@ -58,16 +60,22 @@ def sweep(
     except ValueError as error:
         raise fail_input(str(error)) from None
     plan_outputs({"--csv": (csv_file, None), "--plot": (plot, FIGURE_SUFFIXES)}, force)
-    try:
-        result = run(design, lines, loads, temperatures)
-    except ValueError as error:
-        raise fail_input(str(error)) from None
-    data = result.to_json()
-    if verify:
-        from rcc.verification import split_loads, verification_rows
+    with Status(quiet) as status:
+        count = lines.size * np.size(loads.value) * (1 if temperatures is None
+                                                     else temperatures.size)
+        status.phase(f"cycle model at {count} points")
+        try:
+            result = run(design, lines, loads, temperatures)
+        except ValueError as error:
+            raise fail_input(str(error)) from None
+        data = result.to_json()
+        if verify:
+            from rcc.verification import split_loads, verification_rows
 
-        data["verification"] = verification_rows(design, lines, split_loads(loads),
-                                                 temperatures)
+            status.phase("engine steady state at every point", total=count)
+            data["verification"] = verification_rows(
+                design, lines, split_loads(loads), temperatures,
+                progress=lambda done, total: status.update(done))
     not_running = _not_running(result)
     if json_output:
         data["not_running"] = not_running

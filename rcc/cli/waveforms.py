@@ -12,6 +12,7 @@ import typer
 from rcc.cli import (EXIT_FINDING_FAILED, app, fail_input, load_or_exit, plan_outputs,
                      write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
+from rcc.cli.progress import QUIET_HELP, Status
 from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option, time_option
 
 
@@ -19,9 +20,9 @@ from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option, time
 LARGE_CSV_BYTES = 20e6
 
 
-@app.command()
+@app.command(short_help="Simulate from switch-on (engine): waveforms and summary.")
 def waveforms(
-    design_file: Path = typer.Argument(..., help="TOML design file."),
+    design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on, "
@@ -40,6 +41,7 @@ def waveforms(
                                           "signal names (and 'states' for the state "
                                           "vector). Default: all."),
     force: bool = typer.Option(False, "--force", help="Overwrite existing output files."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Simulate the supply from switch-on: collector voltage, primary, base and
     limiter currents, feedback winding and output voltage.
@@ -69,7 +71,12 @@ def waveforms(
     circuit = build_circuit(design, bus_voltage, load_value, temperature)
     try:
         x0 = dc_initial_state(circuit, from_dc_point=from_dc_point)
-        trace = _run_with_progress(circuit, x0, duration, simulate, max_events)
+        with Status(quiet) as status:
+            status.phase(f"simulating {duration * 1e3:g} ms", total=duration)
+            trace = simulate(circuit, x0, duration, max_step=duration / 20000.0,
+                             max_events=max_events,
+                             progress=(lambda t, t_end: status.update(t))
+                             if status.enabled else None)
     except EngineError as error:
         reason = str(error).replace("raise max_events", "raise --max-events")
         typer.echo(f"{design.title}\nengine stopped: {reason}")
@@ -132,31 +139,6 @@ def _signals_option(text):
     if unknown or not names:
         raise ValueError(f"--signals {text!r}: expected some of {', '.join(valid)}")
     return names
-
-
-def _run_with_progress(circuit, x0, duration, simulate, max_events):
-    """Run the engine with a progress bar on stderr for long runs."""
-    max_step = duration / 20000.0
-    if duration < 5e-3:
-        return simulate(circuit, x0, duration, max_step=max_step, max_events=max_events)
-    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
-
-    with Progress(TextColumn("simulating"), BarColumn(), TextColumn("{task.percentage:>3.0f} %"),
-                  TimeElapsedColumn(), transient=True,
-                  console=_stderr_console()) as progress:
-        task = progress.add_task("run", total=duration)
-
-        def report(t, t_end):
-            progress.update(task, completed=t)
-
-        return simulate(circuit, x0, duration, max_step=max_step, progress=report,
-                        max_events=max_events)
-
-
-def _stderr_console():
-    from rich.console import Console
-
-    return Console(stderr=True)
 
 
 def format_summary(title, line_voltage, bus_voltage, load, temperature, trace) -> str:
