@@ -235,6 +235,11 @@ def test_outputs_are_all_or_nothing(tmp_path):
      r"--line '85V:265V:100000000': expected a count from 1 to 1000"),
     (["sweep", "{case}", "--load", "0.1A:0.5A:x"], r"expected a whole number of points"),
     (["waveforms", "{case}", "--window", "3"], r"--window '3': expected START:STOP"),
+    (["waveforms", "{case}", "--hfe", "0.5"], r"--hfe '0\.5': expected a gain from 1"),
+    (["cycle", "{case}", "--hfe", "lots"], r"--hfe 'lots': expected min, typ, max"),
+    (["cycle", "{case}", "--temperature", "25"], r"--temperature '25': expected a value "
+                                                 r"with its unit"),
+    (["waveforms", "{case}", "--temperature", "400degC"], r"expected -100 degC to 250 degC"),
     (["waveforms", "{case}", "--signals", "collector,foo"], r"--signals 'collector,foo': "
                                                            r"expected some of"),
 ])
@@ -322,3 +327,11 @@ def test_waveforms_max_events_option(standby_case):
     assert result.exit_code == 1, result.output
     assert "more than 1000 switching events" in result.stdout
     assert "raise --max-events" in result.stdout
+
+
+def test_waveforms_says_which_bus_and_corner_it_ran(standby_case):
+    result = invoke("waveforms", standby_case, "--time", "0.2ms", "--temperature", "-20degC",
+                    "--hfe", "min")
+    assert result.exit_code == 0, result.output
+    assert "(held at the rectified peak: no bulk ripple)" in result.stdout
+    assert "-20 degC / 20 at 25 degC" in result.stdout

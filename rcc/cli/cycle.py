@@ -13,7 +13,8 @@ from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, l
                      plan_outputs, write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
 from rcc.cli.progress import QUIET_HELP, Status
-from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option
+from rcc.cli.options import (HFE_HELP, LINE_HELP, LOAD_HELP, TEMPERATURE_HELP, hfe_option,
+                             line_option, load_option, temperature_option)
 
 
 @app.command(short_help="The periodic steady state and its stability (engine).")
@@ -21,6 +22,8 @@ def cycle(
     design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
+    temperature: Optional[str] = typer.Option(None, "--temperature", help=TEMPERATURE_HELP),
+    hfe: Optional[str] = typer.Option(None, "--hfe", help=HFE_HELP),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write the one-period "
                                         "waveforms (.png, .pdf or .svg)."),
@@ -42,13 +45,16 @@ def cycle(
     try:
         line_voltage = line_option(design, line)
         load_value = load_option(design, load)
+        temperature_value = temperature_option(design, temperature)
+        gain = hfe_option(design, hfe)
     except ValueError as error:
         raise fail_input(str(error)) from None
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES)}, force)
     try:
         with Status(quiet) as status:
             status.phase("warm-up transient, then Newton's method on the cycle")
-            result = periodic_steady_state(design, line_voltage, load_value)
+            result = periodic_steady_state(design, line_voltage, load_value,
+                                           temperature_value, gain)
     except PeriodicSteadyStateError as error:
         if json_output:
             echo_json({"error": str(error), "stable": False})
@@ -58,7 +64,8 @@ def cycle(
     if json_output:
         echo_json(result.to_json())
     else:
-        typer.echo(format_cycle(design.title, result, verbose=verbose))
+        typer.echo(format_cycle(design.title, result, verbose=verbose,
+                                is_ac=design.input.is_ac))
     if plot is not None:
         def write_plot(files):
             import matplotlib.pyplot as plt
@@ -77,14 +84,18 @@ def cycle(
     raise typer.Exit(EXIT_OK if ok else EXIT_FINDING_FAILED)
 
 
-def format_cycle(title: str, result, verbose: bool = False) -> str:
+def format_cycle(title: str, result, verbose: bool = False, is_ac: bool = True) -> str:
     """Plain-text report of a periodic steady state (the engine's switching
     events only with ``verbose``)."""
     from rcc.engine.plotting import cycle_status, on_time_end
 
     rows = [
         ("line", f"{result.line_voltage:.4g} V"),
-        ("bus", f"{result.bus_voltage:.4g} V"),
+        ("bus", f"{result.bus_voltage:.4g} V" + (" (bulk-capacitor valley at this input "
+                                                 "power, as the cycle model)" if is_ac
+                                                 else " (DC input)")),
+        ("temperature / hFE", f"{result.temperature - 273.15:.3g} degC / {result.hfe:.3g} "
+                              "at 25 degC"),
         ("load", result.load.text()),
         ("frequency", f"{result.frequency / 1e3:.5g} kHz"),
         ("period", f"{result.period * 1e6:.5g} us"),

@@ -7,6 +7,10 @@ import math
 from typing import Optional
 
 LINE_HELP = "Line voltage, e.g. 230V: RMS for AC input, DC otherwise. Default: nominal."
+TEMPERATURE_HELP = ("Temperature of all devices with its unit, e.g. -20degC. Default: "
+                    "25 degC moved into the design's range.")
+HFE_HELP = ("Switch current gain at 25 degC: min, typ, max (the design's) or a number. "
+            "Default: typ.")
 LOAD_HELP = ("Load as a current, resistance or power, e.g. 0.3A, 40ohm, 4W, or a "
              "percentage of load_max (50%). Default: nominal.")
 
@@ -85,4 +89,38 @@ def time_option(text: str) -> float:
     if not (math.isfinite(value) and 0 < value <= MAX_TIME):
         raise ValueError(f"--time {text!r}: expected a duration in (0, {MAX_TIME:g} s], "
                          "such as '20ms'")
+    return value
+
+
+def temperature_option(design, text: Optional[str]) -> float:
+    """``--temperature``: device temperature [K]; default 25 degC clipped into
+    the design's range."""
+    from rcc.cycle import reference_temperature
+    from rcc.schema import PLAUSIBLE
+
+    if text is None:
+        return float(reference_temperature(design))
+    value = _quantity(text, "temperature", "--temperature", "-20degC")
+    low, high = PLAUSIBLE["temperature"]
+    if not low <= value <= high:
+        raise ValueError(f"--temperature {text!r}: expected {low - 273.15:g} degC to "
+                         f"{high - 273.15:g} degC")
+    return value
+
+
+def hfe_option(design, text: Optional[str]) -> float:
+    """``--hfe``: switch gain at 25 degC [1]: ``min``/``typ``/``max`` or a number."""
+    from rcc.schema import GAINS
+
+    if text is None or text.strip().lower() == "typ":
+        return float(design.switch.hfe_typ)
+    word = text.strip().lower()
+    if word in ("min", "max"):
+        return float(getattr(design.switch, f"hfe_{word}"))
+    try:
+        value = float(text)
+    except ValueError:
+        raise ValueError(f"--hfe {text!r}: expected min, typ, max or a number") from None
+    if not (math.isfinite(value) and GAINS[0] <= value <= GAINS[1]):
+        raise ValueError(f"--hfe {text!r}: expected a gain from {GAINS[0]:g} to {GAINS[1]:g}")
     return value

@@ -13,7 +13,8 @@ from rcc.cli import (EXIT_FINDING_FAILED, app, fail_input, load_or_exit, plan_ou
                      write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
 from rcc.cli.progress import QUIET_HELP, Status
-from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option, time_option
+from rcc.cli.options import (HFE_HELP, LINE_HELP, LOAD_HELP, TEMPERATURE_HELP, hfe_option,
+                             line_option, load_option, temperature_option, time_option)
 
 
 #: A CSV larger than this is announced on stderr before it is written [B].
@@ -25,6 +26,8 @@ def waveforms(
     design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
+    temperature: Optional[str] = typer.Option(None, "--temperature", help=TEMPERATURE_HELP),
+    hfe: Optional[str] = typer.Option(None, "--hfe", help=HFE_HELP),
     time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on, "
                              "with its unit (up to 10s)."),
     from_dc_point: bool = typer.Option(False, "--from-dc-point", help="Start from the DC "
@@ -51,13 +54,14 @@ def waveforms(
     inconsistent circuit, --max-events reached), 2 on bad input.
     """
     design = load_or_exit(design_file)
-    from rcc.cycle import reference_temperature
     from rcc.mains import bus_voltage as no_load_bus
 
     try:
         line_voltage = line_option(design, line)
         load_value = load_option(design, load)
         duration = time_option(time)
+        temperature_value = temperature_option(design, temperature)
+        gain = hfe_option(design, hfe)
         csv_window = _window_option(window, duration)
         csv_signals = _signals_option(signals)
     except ValueError as error:
@@ -67,8 +71,7 @@ def waveforms(
     bus_voltage = float(no_load_bus(design, line_voltage))
     from rcc.engine import EngineError, build_circuit, dc_initial_state, simulate
 
-    temperature = reference_temperature(design)
-    circuit = build_circuit(design, bus_voltage, load_value, temperature)
+    circuit = build_circuit(design, bus_voltage, load_value, temperature_value, gain)
     try:
         x0 = dc_initial_state(circuit, from_dc_point=from_dc_point)
         with Status(quiet) as status:
@@ -82,7 +85,7 @@ def waveforms(
         typer.echo(f"{design.title}\nengine stopped: {reason}")
         raise typer.Exit(EXIT_FINDING_FAILED) from None
     typer.echo(format_summary(design.title, line_voltage, bus_voltage, load_value,
-                              temperature, trace))
+                              temperature_value, gain, trace, design.input.is_ac))
     writers = []
     if csv is not None:
         from rcc.engine.plotting import csv_size, write_csv
@@ -102,7 +105,10 @@ def waveforms(
 
             from rcc.engine.plotting import plot_waveforms
 
-            axes = plot_waveforms(trace, title=design.title)
+            bus_text = (f"bus held at {bus_voltage:.4g} V (rectified peak of {line_voltage:.4g} V "
+                        "RMS)" if design.input.is_ac else f"bus {bus_voltage:.4g} V DC")
+            axes = plot_waveforms(trace, title=f"{design.title}\n{bus_text}, load "
+                                              f"{load_value.text()}")
             axes[0, 0].figure.savefig(files.path(plot), dpi=110)
             plt.close(axes[0, 0].figure)
 
@@ -141,16 +147,19 @@ def _signals_option(text):
     return names
 
 
-def format_summary(title, line_voltage, bus_voltage, load, temperature, trace) -> str:
+def format_summary(title, line_voltage, bus_voltage, load, temperature, hfe, trace,
+                   is_ac=True) -> str:
     """Plain-text summary of a run."""
     import numpy as np
 
     turn_ons = trace.turn_on_times()
     out = trace.signals["output_voltage"]
     rows = [
-        ("line / bus", f"{line_voltage:.4g} V / {bus_voltage:.4g} V"),
+        ("line / bus", f"{line_voltage:.4g} V / {bus_voltage:.4g} V "
+                       + ("(held at the rectified peak: no bulk ripple)" if is_ac
+                          else "(DC input)")),
         ("load", load.text()),
-        ("temperature", f"{temperature - 273.15:.3g} degC"),
+        ("temperature / hFE", f"{temperature - 273.15:.3g} degC / {hfe:.3g} at 25 degC"),
         ("simulated", f"{trace.final_time * 1e3:.4g} ms, {len(trace.event_times)} switching "
                       f"events, {len(turn_ons)} switch turn-ons"),
         ("output at end", f"{out[-1]:.4g} V"),

@@ -49,7 +49,7 @@ def zoom_window(trace, cycles: int = 3) -> tuple[float, float]:
 
 
 def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
-    """Stacked waveforms: whole run on the left, a steady-state zoom on the right.
+    """Stacked waveforms: whole run on the left, the last cycles on the right.
 
     Parameters
     ----------
@@ -91,7 +91,8 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
     axes[-1, 0].set_xlabel(f"time [{unit_t}] (start-up)")
     axes[-1, 1].set_xlabel(f"time [{zunit_t}] (last {cycles} cycles)")
     axes[0, 0].set_title("whole run")
-    axes[0, 1].set_title("steady-state zoom")
+    axes[0, 1].set_title(f"last {cycles} turn-ons" if len(trace.turn_on_times()) > cycles
+                         else "end of the run (too few turn-ons for cycles)")
     if title:
         fig.suptitle(title)
     fig.tight_layout()
