@@ -13,13 +13,16 @@ from rcc.startup import startup_findings, startup_report
 __all__ = ["full_check"]
 
 
-def full_check(design: Design) -> CheckReport:
+def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
     """Cycle-model checks and, when available, the start-up analysis.
 
     Parameters
     ----------
     design : Design
         The design.
+    startup_engine : bool
+        Also run the time-domain engine from power-on and add its peaks to the
+        stresses and findings (:func:`rcc.checks.with_startup_stress`; seconds).
 
     Returns
     -------
@@ -35,8 +38,15 @@ def full_check(design: Design) -> CheckReport:
     startup = startup_report(design)
     findings = ordered_findings(_one_per_code(
         report.findings + tuple(startup_findings(design, startup)), ("weak-drive",)))
-    return replace(report, findings=findings, extra={**report.extra,
-                                                     "startup": startup.to_json()})
+    report = replace(report, findings=findings, extra={**report.extra,
+                                                       "startup": startup.to_json()})
+    if startup_engine:
+        from rcc.checks import with_startup_stress
+        from rcc.verification import startup_stress
+
+        time = startup.start_time.total if startup.start_time is not None else None
+        report = with_startup_stress(report, startup_stress(design, time))
+    return report
 
 
 def _one_per_code(findings, codes):

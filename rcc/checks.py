@@ -22,7 +22,7 @@ from rcc.findings import Finding, sorted_findings, verdict
 from rcc.limiter import current_limit
 from rcc.mains import bus_voltage_range
 
-__all__ = ["Stress", "CheckReport", "check_design", "SAFETY_CAUTION",
+__all__ = ["Stress", "CheckReport", "check_design", "with_startup_stress", "SAFETY_CAUTION",
            "STORAGE_PERIOD_FRACTION", "DRIVE_MARGIN_WARN"]
 
 #: Printed with every report.
@@ -68,6 +68,9 @@ class Stress:
         Allowed flux density (saturation times margin) [T].
     worst_peak_current_a : float
         Current limit (coldest) plus storage overshoot at the highest bus [A].
+    startup : dict or None
+        Peaks from power-on by the time-domain engine
+        (:meth:`rcc.verification.StartupStress.to_json`), when computed.
     """
 
     switch_peak_v: float
@@ -78,6 +81,7 @@ class Stress:
     core_peak_flux_t: float
     core_limit_t: float
     worst_peak_current_a: float
+    startup: dict | None = None
 
     def to_json(self) -> dict:
         return {name: (float(value) if isinstance(value, (float, np.floating)) else value)
@@ -208,6 +212,72 @@ def check_design(design: Design) -> CheckReport:
     _lockup(design, [points] + low_line + high_line, findings)
     return CheckReport(design=design, points=points, stress=stress_result,
                        findings=sorted_findings(findings), extra={})
+
+
+def with_startup_stress(report: CheckReport, startup) -> CheckReport:
+    """Add the peaks from power-on to a report's stresses and findings.
+
+    Parameters
+    ----------
+    report : CheckReport
+        From :func:`check_design` (or :func:`rcc.analysis.full_check`).
+    startup : rcc.verification.StartupStress
+        Peaks from power-on by the engine.
+
+    Returns
+    -------
+    CheckReport
+        ``stress.startup`` filled in; ``core-saturation``, ``switch-overcurrent``
+        and ``switch-overvoltage`` raised (or replaced, when the start-up value is
+        the worse one: one finding per code) where the start-up peaks exceed the
+        limits the steady-state checks use.
+    """
+    from dataclasses import replace
+
+    design, stress_result = report.design, report.stress
+    where = (f"from power-on (engine, {startup.duration * 1e3:.3g} ms at "
+             f"{startup.line_voltage:.4g} V line, {startup.temperature - 273.15:.3g} degC, "
+             f"hfe_max, heaviest load)")
+    candidates = []
+    tr, sw = design.transformer, design.switch
+    if startup.core_peak_flux_t > stress_result.core_limit_t:
+        candidates.append(Finding(
+            "core-saturation", "fail",
+            f"Peak flux density {startup.core_peak_flux_t:.3f} T {where}, magnetizing "
+            f"current {startup.magnetizing_peak_a:.3f} A, exceeds "
+            f"{design.limits.flux_margin:.0%} of the saturation flux density "
+            f"{tr.saturation_flux_density:.3f} T: the first cycles, with the output still "
+            "low and the drive capacitor discharged, overshoot the current limit most.",
+            startup.core_peak_flux_t, stress_result.core_limit_t, "T",
+            "Raise the sense resistor, shorten the storage time (less base overdrive at "
+            "start-up, a speed-up network), add primary turns or use a larger core."))
+    if startup.primary_peak_a > sw.ic_max:
+        candidates.append(Finding(
+            "switch-overcurrent", "fail",
+            f"Collector current {startup.primary_peak_a:.3f} A {where} exceeds the rating "
+            f"IC(max) = {sw.ic_max:.3f} A.", startup.primary_peak_a, sw.ic_max, "A",
+            "Lower the current limit or shorten the storage time; or use a higher-current "
+            "switch."))
+    allowed = stress_result.switch_rating_v * design.limits.voltage_derating
+    if startup.switch_peak_v > allowed:
+        candidates.append(Finding(
+            "switch-overvoltage", "fail",
+            f"Peak collector voltage {startup.switch_peak_v:.0f} V {where} exceeds "
+            f"{design.limits.voltage_derating:.0%} of {stress_result.rating_basis.upper()} = "
+            f"{stress_result.switch_rating_v:.0f} V.", startup.switch_peak_v, allowed, "V",
+            "Clamp lower or reduce leakage; or use a switch with a higher rating."))
+    findings = list(report.findings)
+    for candidate in candidates:
+        twin = next((f for f in findings if f.code == candidate.code), None)
+        if twin is None:
+            findings.append(candidate)
+        elif twin.margin is not None and candidate.margin is not None and \
+                candidate.margin < twin.margin:
+            findings[findings.index(twin)] = candidate
+    from rcc.findings import ordered_findings
+
+    return replace(report, stress=replace(stress_result, startup=startup.to_json()),
+                   findings=ordered_findings(findings))
 
 
 # ---------------------------------------------------------------- checks

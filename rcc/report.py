@@ -82,7 +82,7 @@ def format_check_report(data: dict) -> str:
     out += ["Operating points (25 degC clipped into the temperature range, hfe_typ)", ""]
     out += [format_points_table(data["operating_points"]), ""]
     s = data["stress"]
-    out += ["Stresses (worst case over line, load, temperature, hFE)", ""]
+    out += ["Stresses (worst case over line, load, temperature, hFE; and from power-on)", ""]
     out += [format_table(["quantity", "value", "limit", "basis"], [
         ["switch peak voltage", format_si(s["switch_peak_v"], "V", 4),
          format_si(s["switch_rating_v"], "V", 4), s["rating_basis"].upper()],
@@ -90,7 +90,7 @@ def format_check_report(data: dict) -> str:
          f"{s['core_limit_t']:.3f} T", "saturation x margin"],
         ["worst peak current", format_si(s["worst_peak_current_a"], "A", 3), "",
          "limit + storage overshoot"],
-    ]), ""]
+    ] + _startup_rows(s)), ""]
     startup = data.get("startup")
     if startup:
         out += ["Start-up (lowest line, worst corner of hFE and temperature)", ""]
@@ -128,6 +128,20 @@ def format_check_report(data: dict) -> str:
     if data.get("verification"):
         out += [format_verification(data["verification"]), ""]
     return "\n".join(out).rstrip() + "\n"
+
+
+def _startup_rows(stress: dict) -> list[list[str]]:
+    """Rows of the peaks from power-on, or one row saying they were not computed."""
+    up = stress.get("startup")
+    if not up:
+        return [["start-up peaks", "not computed", "", "rcc check (command) runs them"]]
+    basis = f"engine from power-on, {up['duration'] * 1e3:.3g} ms"
+    return [["start-up collector peak", format_si(up["switch_peak_v"], "V", 4),
+             format_si(stress["switch_rating_v"], "V", 4), basis],
+            ["start-up peak flux density", f"{up['core_peak_flux_t']:.3f} T",
+             f"{stress['core_limit_t']:.3f} T", basis],
+            ["start-up peak primary current", format_si(up["primary_peak_a"], "A", 3), "",
+             basis]]
 
 
 def _numbers(finding: dict) -> str:

@@ -9,11 +9,13 @@ per point) and optional.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from rcc.design import Design, Load
 
-__all__ = ["verification_rows", "split_loads"]
+__all__ = ["verification_rows", "split_loads", "StartupStress", "startup_stress"]
 
 
 def verification_rows(design: Design, line_voltages, loads, temperatures=None,
@@ -95,3 +97,98 @@ def split_loads(load: Load) -> list[Load]:
     """
     values = np.atleast_1d(np.asarray(load.value, dtype=float))
     return [Load(load.kind, float(v)) for v in values]
+
+
+#: Simulated time after the estimated start-up time, so that the first cycles
+#: with the output still low are inside the run [s].
+STARTUP_MARGIN = 1e-3
+#: Longest start-up simulated for the stress table [s].
+STARTUP_LIMIT = 10e-3
+
+
+@dataclass(frozen=True)
+class StartupStress:
+    """Peaks from power-on, by the time-domain engine.
+
+    Attributes
+    ----------
+    line_voltage : float
+        Highest line (RMS for AC input, DC otherwise) [V].
+    bus_voltage : float
+        Bus held at its no-load value (rectified peak for AC input) [V].
+    temperature : float
+        Device temperature: the coldest of the range (lowest limiter Vbe
+        tempco aside, the hardest base drive) [K].
+    duration : float
+        Simulated time from power-on [s].
+    primary_peak_a : float
+        Highest primary current [A].
+    magnetizing_peak_a : float
+        Highest magnetizing current [A].
+    core_peak_flux_t : float
+        ``L_m i_m / (N_p A_e)`` at the magnetizing peak [T].
+    switch_peak_v : float
+        Highest collector voltage [V].
+    """
+
+    line_voltage: float
+    bus_voltage: float
+    temperature: float
+    duration: float
+    primary_peak_a: float
+    magnetizing_peak_a: float
+    core_peak_flux_t: float
+    switch_peak_v: float
+
+    def to_json(self) -> dict:
+        return dict(self.__dict__)
+
+
+def startup_stress(design: Design, start_time: float | None = None) -> StartupStress:
+    """Primary current, flux and collector voltage from power-on at the highest
+    line, heaviest load, coldest temperature and ``hfe_max``, by the engine.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    start_time : float, optional
+        Estimated start-up time [s] (:func:`rcc.startup.startup_report`); the run
+        lasts that plus :data:`STARTUP_MARGIN`, at most :data:`STARTUP_LIMIT`.
+
+    Returns
+    -------
+    StartupStress
+
+    Notes
+    -----
+    During start-up the output is still low, so the regulation path does not yet
+    shorten the on-time and the drive capacitor starts discharged: the switch is
+    driven hardest and its storage time adds most to the current limit.  The
+    steady-state worst case of :func:`rcc.checks.check_design` does not see
+    those cycles; this run does.  Flux from Faraday's law, ``B = L_m i_m/(N_p A_e)``
+    (McLyman, *Transformer and Inductor Design Handbook*, 3rd ed., 2004, ch. 1).
+    """
+    from rcc.engine import build_circuit, dc_initial_state, simulate
+    from rcc.mains import bus_voltage
+
+    line = float(design.input.line_voltages[2])
+    bus = float(bus_voltage(design, line))
+    temperature = float(min(design.environment.temperature_min,
+                            design.environment.temperature_max))
+    duration = min((start_time or 0.0) + STARTUP_MARGIN, STARTUP_LIMIT)
+    circuit = build_circuit(design, bus, design.output.load_max, temperature,
+                            design.switch.hfe_max)
+    trace = simulate(circuit, dc_initial_state(circuit), duration,
+                     max_step=duration / 20000.0)
+    magnetizing = float(np.max(trace.states[:, list(trace.state_names).index(
+        "i_magnetizing")]))
+    tr = design.transformer
+    return StartupStress(
+        line_voltage=line, bus_voltage=bus, temperature=temperature,
+        duration=float(trace.final_time),
+        primary_peak_a=float(np.max(trace.signals["primary_current"])),
+        magnetizing_peak_a=magnetizing,
+        core_peak_flux_t=tr.magnetizing_inductance * magnetizing
+        / (tr.primary_turns * tr.core_area),
+        switch_peak_v=float(np.max(trace.signals["collector_voltage"])))

@@ -89,3 +89,46 @@ def test_no_output_finding_for_a_supply_that_does_not_oscillate(reports):
     # the reversed feedback winding is the cause; its 0 V output is not a second failure
     codes = [f.code for f in reports["fault_feedback_reversed"].findings]
     assert codes[0] == "feedback-phase" and "output-off-target" not in codes
+
+
+def test_startup_peaks_join_the_stresses_and_findings(reports):
+    """The engine from power-on (hardest drive, output still low) against the
+    steady-state worst case: its peaks are in the stress table and a worse value
+    replaces the steady-state finding of the same code."""
+    from rcc.checks import with_startup_stress
+    from rcc.verification import StartupStress
+
+    report = reports["standby_12v_universal"]
+    assert "core-saturation" not in [f.code for f in report.findings]
+    peaks = StartupStress(line_voltage=265.0, bus_voltage=373.0, temperature=273.15,
+                          duration=2e-3, primary_peak_a=0.66, magnetizing_peak_a=0.655,
+                          core_peak_flux_t=0.42, switch_peak_v=540.0)
+    merged = with_startup_stress(report, peaks)
+    assert merged.stress.startup["core_peak_flux_t"] == 0.42
+    saturation = [f for f in merged.findings if f.code == "core-saturation"]
+    assert len(saturation) == 1 and saturation[0].value == 0.42 and \
+        "from power-on" in saturation[0].message and saturation[0].margin < 0
+    assert merged.findings[0].code == "core-saturation"
+    text = format_check_report(merged.to_json())
+    assert "start-up peak flux density     0.420 T" in text
+    # a smaller start-up value never replaces a worse steady-state one
+    legacy = reports["legacy_24v_substitute"]
+    steady = next(f for f in legacy.findings if f.code == "core-saturation")
+    milder = with_startup_stress(legacy, peaks)
+    assert next(f for f in milder.findings if f.code == "core-saturation") == steady or \
+        steady.value < 0.42
+
+
+def test_engine_startup_stress_on_the_standby_case():
+    """The engine itself from power-on (seconds): the issue's observation that the
+    first cycles of the standby case exceed the steady-state worst case."""
+    from conftest import WORKED_CASES
+
+    from rcc.verification import startup_stress
+
+    design = load_design(WORKED_CASES / "standby_12v_universal.toml")
+    peaks = startup_stress(design, 0.7e-3)
+    steady = full_check(design).stress
+    assert peaks.primary_peak_a > steady.worst_peak_current_a
+    assert peaks.core_peak_flux_t > steady.core_peak_flux_t
+    assert 0 < peaks.magnetizing_peak_a <= peaks.primary_peak_a * 1.05

@@ -30,9 +30,9 @@ def check(
 
     design = load_or_exit(design_file)
     with Status(quiet) as status:
-        status.phase("cycle model and start-up analysis")
+        status.phase("cycle model, start-up analysis and the engine from power-on")
         try:
-            report = full_check(design)
+            report = full_check(design, startup_engine=True)
         except DcPointError as error:
             raise fail_input(f"{design_file}: {error}") from None
         data = report.to_json()
