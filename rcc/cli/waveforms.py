@@ -50,8 +50,9 @@ def waveforms(
     limiter currents, feedback winding and output voltage.
 
     The bus is held at its no-load value (the rectified peak for AC input).
-    Exit code 0 when the run completes, 1 when the engine stops (event storm,
-    inconsistent circuit, --max-events reached), 2 on bad input.
+    Exit code 0 when the supply runs, 1 when it does not oscillate or locks up
+    or the engine stops (event storm, inconsistent circuit, --max-events
+    reached), 2 on bad input.
     """
     design = load_or_exit(design_file)
     from rcc.mains import bus_voltage as no_load_bus
@@ -84,8 +85,9 @@ def waveforms(
         reason = str(error).replace("raise max_events", "raise --max-events")
         typer.echo(f"{design.title}\nengine stopped: {reason}")
         raise typer.Exit(EXIT_FINDING_FAILED) from None
+    operation = operation_of(trace, design.output.voltage_target)
     typer.echo(format_summary(design.title, line_voltage, bus_voltage, load_value,
-                              temperature_value, gain, trace, design.input.is_ac))
+                              temperature_value, gain, trace, design.input.is_ac, operation))
     writers = []
     if csv is not None:
         from rcc.engine.plotting import csv_size, write_csv
@@ -114,6 +116,8 @@ def waveforms(
 
         writers.append(write_plot)
     write_outputs(writers)
+    if operation["kind"] in NOT_RUNNING:
+        raise typer.Exit(EXIT_FINDING_FAILED)
 
 
 def _window_option(text, duration):
@@ -147,13 +151,80 @@ def _signals_option(text):
     return names
 
 
+def operation_of(trace, expected_output=None) -> dict:
+    """Kind of operation of a run over its last quarter, as a JSON-ready dict.
+
+    Uses :func:`rcc.operation.classify_operation` (regular, burst with its period
+    and pulses per burst, irregular, lock-up, none) when that module is
+    installed; otherwise tells only whether the supply oscillates at all.
+    """
+    import numpy as np
+
+    turn_ons = trace.turn_on_times()
+    try:
+        from rcc.operation import classify_operation
+    except ImportError:  # the classifier ships with the population tools
+        if turn_ons.size < 3:
+            return {"kind": "none"}
+        intervals = np.diff(turn_ons[-4:])
+        return {"kind": "oscillating", "frequency_hz": float(1.0 / np.median(intervals))}
+    ends = np.append(turn_ons, trace.final_time)
+    current = trace.signals["primary_current"]
+    peaks = np.array([float(np.max(current[(trace.times >= start) & (trace.times < end)],
+                                   initial=0.0)) for start, end in zip(ends, ends[1:])])
+    output = trace.signals["output_voltage"]
+    operation = classify_operation(turn_ons, peaks, trace.times, output,
+                                   expected_output=expected_output,
+                                   end_time=trace.final_time).to_json()
+    if operation["kind"] == "lockup":
+        # a run too short for the output to settle is not a lock-up: compare the
+        # last quarter with the one before
+        quarter = trace.final_time / 4.0
+        last = output[trace.times >= 3 * quarter]
+        before = output[(trace.times >= 2 * quarter) & (trace.times < 3 * quarter)]
+        if before.size and last.size and np.mean(last) > RISING * np.mean(before):
+            operation["kind"] = "starting"
+    return operation
+
+
+#: Output still rising when its mean over the last quarter of the run exceeds the
+#: quarter before by this factor: the supply is still starting, not locked up [1].
+RISING = 1.05
+#: Kinds of operation after which ``waveforms`` exits with 1.
+NOT_RUNNING = ("none", "lockup")
+
+
+def _operation_text(operation: dict) -> str:
+    kind = operation["kind"]
+    if kind == "none":
+        return "NO OSCILLATION (fewer than 3 turn-ons)"
+    if kind == "lockup":
+        return (f"LOCK-UP: switching far below the regulated output (mean "
+                f"{operation['output_v']:.3g} V over the last quarter)")
+    if kind == "starting":
+        return (f"still starting up at the end of the run (output {operation['output_v']:.3g} "
+                "V over the last quarter and rising): run longer with --time")
+    frequency = f"{operation['frequency_hz'] / 1e3:.4g} kHz"
+    if kind == "burst":
+        return (f"burst: {operation['pulses_per_burst']:.3g} pulses every "
+                f"{operation['burst_period_s'] * 1e3:.3g} ms (mean {frequency}; pulses "
+                f"{1e-3 / operation['pulse_interval_s']:.4g} kHz apart)")
+    if kind == "regular":
+        return f"regular at {frequency} over the last quarter of the run"
+    if kind == "irregular":
+        return (f"irregular (intervals spread {operation['interval_spread']:.0%}, mean "
+                f"{frequency})")
+    return f"oscillating, last cycles at {frequency}"
+
+
 def format_summary(title, line_voltage, bus_voltage, load, temperature, hfe, trace,
-                   is_ac=True) -> str:
+                   is_ac=True, operation=None) -> str:
     """Plain-text summary of a run."""
     import numpy as np
 
     turn_ons = trace.turn_on_times()
     out = trace.signals["output_voltage"]
+    operation = operation or operation_of(trace)
     rows = [
         ("line / bus", f"{line_voltage:.4g} V / {bus_voltage:.4g} V "
                        + ("(held at the rectified peak: no bulk ripple)" if is_ac
@@ -162,15 +233,10 @@ def format_summary(title, line_voltage, bus_voltage, load, temperature, hfe, tra
         ("temperature / hFE", f"{temperature - 273.15:.3g} degC / {hfe:.3g} at 25 degC"),
         ("simulated", f"{trace.final_time * 1e3:.4g} ms, {len(trace.event_times)} switching "
                       f"events, {len(turn_ons)} switch turn-ons"),
+        ("operation", _operation_text(operation)),
         ("output at end", f"{out[-1]:.4g} V"),
         ("collector peak", f"{np.max(trace.signals['collector_voltage']):.4g} V"),
         ("primary peak", f"{np.max(trace.signals['primary_current']) * 1e3:.4g} mA"),
     ]
-    if len(turn_ons) >= 4:
-        periods = np.diff(turn_ons[-4:])
-        rows.append(("last cycles", f"{1e-3 / periods.mean():.4g} kHz "
-                                    f"(period {periods.mean() * 1e6:.4g} us)"))
-    else:
-        rows.append(("last cycles", "fewer than 4 turn-ons: not oscillating steadily"))
     width = max(len(name) for name, _ in rows)
     return "\n".join([title] + [f"  {name:<{width}}  {value}" for name, value in rows])
