@@ -11,7 +11,8 @@ Two halves, both deterministic (fixed seeds) and together well under a minute:
    never a traceback.
 2. Generated designs: at least 200 random perturbations of the worked cases
    (every value scaled log-uniformly, orderings kept, phases and clamps
-   switched), plus :func:`rcc.population.generate` when that module exists.
+   switched); where :mod:`rcc.population` exists, 120 of its plausible designs
+   and 140 perturbations.
    Each runs the start-up analysis and the cycle model at its corners; every
    result serialises to strict JSON (no NaN, no Infinity) and no time, current
    or frequency is negative.
@@ -39,6 +40,8 @@ ROOT = Path(__file__).resolve().parent.parent
 CASES = sorted((ROOT / "worked_cases").glob("*.toml"))
 #: Generated designs that must run through the models (the issue asks for 200).
 GENERATED = 200
+#: Designs taken from :func:`rcc.population.generate` when it exists [1].
+POPULATION = 120
 runner = CliRunner()
 
 
@@ -153,6 +156,12 @@ _FIXED = {("limits", "voltage_derating"), ("limits", "flux_margin"),
           ("environment", "temperature_min"), ("environment", "temperature_max")}
 
 
+#: Junction voltages and drops: silicon keeps them within about 15 %.
+_JUNCTIONS = {("switch", "vbe"), ("switch", "vce_sat"), ("limiter", "vbe"),
+              ("regulation", "rectifier_drop"), ("regulation", "led_drop"),
+              ("output", "rectifier_drop"), ("input", "bridge_drop")}
+
+
 def _scaled(value, factor):
     """A design-file value (number or string with a unit) times ``factor``."""
     if isinstance(value, str):
@@ -181,8 +190,9 @@ def _perturbed(data: dict, rng: random.Random) -> dict:
                 continue
             if isinstance(value, (int, float, str)) and not isinstance(value, bool) \
                     and rng.random() < 0.4:
+                spread = 0.15 if key in _JUNCTIONS else 1.1
                 try:
-                    table[name] = _scaled(value, math.exp(rng.uniform(-1.1, 1.1)))
+                    table[name] = _scaled(value, math.exp(rng.uniform(-spread, spread)))
                 except ValueError:  # a value with a unit this helper does not split
                     pass
     if "environment" in data and rng.random() < 0.5:
@@ -199,23 +209,27 @@ def _perturbed(data: dict, rng: random.Random) -> dict:
 
 
 def _generated_designs():
+    from dataclasses import replace
+
+    try:
+        from rcc.population import generate
+    except ImportError:
+        population = []
+    else:  # plausible designs nobody tuned, and fewer perturbations beside them
+        population = [replace(item.design, source=item.name)
+                      for item in generate(POPULATION, seed=11)]
+    wanted = GENERATED - len(population) // 2
     rng = random.Random(7)
     bases = [tomllib.loads(path.read_text(encoding="utf-8")) for path in CASES]
     designs, refused, attempts = [], 0, 0
-    while len(designs) < GENERATED and attempts < 4 * GENERATED:
+    while len(designs) < wanted and attempts < 4 * GENERATED:
         attempts += 1
         try:
             designs.append(design_from_dict(_perturbed(rng.choice(bases), rng),
                                             source=f"<generated {attempts}>"))
         except DesignError:
             refused += 1  # a perturbation outside the ranges: refused, as it should be
-    try:
-        from rcc.population import generate
-    except ImportError:
-        pass
-    else:
-        designs += list(generate(GENERATED, seed=11))
-    return designs, refused
+    return population + designs, refused
 
 
 def _walk(value, path=""):
@@ -293,10 +307,6 @@ def runs(generated):
     return [(design, *_run(design)) for design in designs]
 
 
-def _dc_point_unsound(startup) -> bool:
-    return startup is not None and startup["dc_point"]["ib_a"] < -LEAKAGE
-
-
 def test_generated_designs_run_clean(generated, runs):
     designs, refused = generated
     assert len(designs) >= GENERATED and refused < GENERATED // 10
@@ -305,7 +315,7 @@ def test_generated_designs_run_clean(generated, runs):
         what = design.source
         if startup is None:
             no_dc_point += 1
-        elif not _dc_point_unsound(startup):  # the known defect below
+        else:
             _assert_sound(startup, what)
         # warnings only where the bus sits on the floor (the known defect below)
         assert not caught or floored, (what, caught[:3])
@@ -325,18 +335,6 @@ def test_no_generated_point_has_its_bus_on_the_floor(runs):
     floored = [(design.source, row["line_v"]) for design, _, _, rows, _ in runs
                for row in rows]
     assert not floored, f"{len(floored)} points, e.g. {floored[:3]}"
-
-
-@pytest.mark.xfail(strict=True, reason="power-on DC point with a near-open start-up "
-                   "resistor: 'active' at Vbe 84 mV with 0.6 mA collector current and "
-                   "-10 uA base current (rcc/startup/dcpoint.py solve_dc_point)")
-def test_no_generated_dc_point_is_unsound(runs):
-    """Found by this test: with the start-up resistor near open (1 Tohm) and other
-    values perturbed, the DC point reports a collector current a junction at that
-    base-emitter voltage cannot carry, and a base current beyond reverse leakage."""
-    unsound = [(design.source, startup["dc_point"]) for design, startup, _, _, _ in runs
-               if _dc_point_unsound(startup)]
-    assert not unsound, f"{len(unsound)} designs, e.g. {unsound[:2]}"
 
 
 def test_generated_designs_through_check(runs):

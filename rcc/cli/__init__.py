@@ -59,11 +59,9 @@ def load_or_exit(path):
 
 
 def refuse_overwrite(path, force: bool) -> None:
-    """Exit 2 if ``path`` exists and ``force`` is not set."""
-    from pathlib import Path
-
-    if path is not None and Path(path).exists() and not force:
-        raise fail_input(f"{path}: exists; use --force to overwrite it")
+    """Exit 2 if ``path`` cannot be written (exists without ``force``, missing or
+    read-only folder, a directory); :func:`plan_outputs` checks several at once."""
+    plan_outputs({"output": (path, None)}, force)
 
 
 def plan_outputs(outputs: dict, force: bool) -> None:
