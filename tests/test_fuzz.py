@@ -330,7 +330,8 @@ def test_generated_designs_run_clean(generated, runs):
 
 
 @pytest.mark.xfail(strict=True, reason="cycle model floors a collapsed bulk valley at 1 V "
-                   "and reports negative currents there (rcc/cycle.py operating_points)")
+                   "and reports negative currents there (rcc/cycle.py operating_points; "
+                   "notes/fuzz.md; also `rcc sweep worked_cases/fault_limiter_stall.toml`)")
 def test_no_generated_point_has_its_bus_on_the_floor(runs):
     floored = [(design.source, row["line_v"]) for design, _, _, rows, _ in runs
                for row in rows]
