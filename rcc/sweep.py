@@ -347,7 +347,8 @@ def plot_sweep(result: SweepResult, ax=None, verification=None):
         temperatures = "line style: temperature"
     else:
         temperatures = f"at {result.temperature[0] - 273.15:.0f} degC"
-    engine = "; black stars: engine steady state" if verification else ""
+    engine = ("\nstars: engine periodic steady state (open star: not converged, the last "
+              "cycle of a transient)" if verification else "")
     ax[0].set_title(f"{result.design.title} ({temperatures})\nmarkers: square drive, "
                     "triangle limit, circle regulation, x burst; open = drive-timed off"
                     + engine, fontsize=9)
