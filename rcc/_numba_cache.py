@@ -106,7 +106,13 @@ def verify(folder: Path) -> list[Path]:
 
 
 def record(folder: Path) -> None:
-    """Write the manifest of the cache files present now (atomically)."""
+    """Write the manifest of the cache files present now (atomically).
+
+    Parameters
+    ----------
+    folder : Path
+        The cache folder.
+    """
     try:
         entries = {path.relative_to(folder).as_posix(): _digest(path)
                    for path in _cache_files(folder)}

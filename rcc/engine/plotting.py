@@ -141,8 +141,21 @@ def csv_columns(trace, signals=None) -> list[str]:
 
 
 def csv_rows(trace, every: int = 1, window=None) -> np.ndarray:
-    """Sample indices a CSV keeps: inside ``window`` (start, end) [s], every
-    ``every``-th sample [1]."""
+    """Sample indices a CSV keeps.
+
+    Parameters
+    ----------
+    trace : Trace
+    every : int
+        Keep every ``every``-th sample [1].
+    window : (float, float), optional
+        Time window to keep [s].
+
+    Returns
+    -------
+    ndarray of int
+        Indices into ``trace.times`` [1].
+    """
     index = np.arange(trace.times.size)
     if window is not None:
         start, end = window
@@ -151,7 +164,23 @@ def csv_rows(trace, every: int = 1, window=None) -> np.ndarray:
 
 
 def csv_size(trace, signals=None, every: int = 1, window=None) -> int:
-    """Estimated size of the CSV file [B]."""
+    """Estimated size of the CSV file.
+
+    Parameters
+    ----------
+    trace : Trace
+    signals : sequence of str, optional
+        See :func:`csv_columns`.
+    every : int
+        Keep every ``every``-th sample [1].
+    window : (float, float), optional
+        Time window to keep [s].
+
+    Returns
+    -------
+    int
+        Size [B], at :data:`CSV_CELL_BYTES` per value.
+    """
     columns = csv_columns(trace, signals)
     width = 1 + sum(len(trace.state_names) if c == "states" else 1 for c in columns)
     return int(csv_rows(trace, every, window).size * width * CSV_CELL_BYTES)
@@ -200,7 +229,17 @@ CYCLE_PANELS = WAVEFORM_PANELS[:5] + (
 
 
 def cycle_status(result) -> str:
-    """What the plotted period is, in words an engineer acts on."""
+    """What the plotted period is, in words an engineer acts on.
+
+    Parameters
+    ----------
+    result : PeriodicSteadyState
+        Its ``converged`` and ``stable`` flags are used.
+
+    Returns
+    -------
+    str
+    """
     if not result.converged:
         return "NOT CONVERGED: last cycle of a long transient (may not be periodic)"
     if not result.stable:
@@ -210,6 +249,11 @@ def cycle_status(result) -> str:
 
 def on_time_end(result) -> tuple[float, str]:
     """When the on-time ended and what ended it (display only).
+
+    Parameters
+    ----------
+    result : PeriodicSteadyState
+        The cycle; its waveform, on-time and peak current are used.
 
     Returns
     -------
