@@ -165,7 +165,9 @@ def operation_of(trace, expected_output=None) -> dict:
         from rcc.operation import classify_operation
     except ImportError:  # the classifier ships with the population tools
         if turn_ons.size < 3:
-            return {"kind": "none"}
+            return {"kind": "starting" if _rising(trace) else "none",
+                    "output_v": float(np.mean(trace.signals["output_voltage"][
+                        trace.times >= 0.75 * trace.final_time]))}
         intervals = np.diff(turn_ons[-4:])
         return {"kind": "oscillating", "frequency_hz": float(1.0 / np.median(intervals))}
     ends = np.append(turn_ons, trace.final_time)
@@ -176,15 +178,22 @@ def operation_of(trace, expected_output=None) -> dict:
     operation = classify_operation(turn_ons, peaks, trace.times, output,
                                    expected_output=expected_output,
                                    end_time=trace.final_time).to_json()
-    if operation["kind"] == "lockup":
-        # a run too short for the output to settle is not a lock-up: compare the
-        # last quarter with the one before
-        quarter = trace.final_time / 4.0
-        last = output[trace.times >= 3 * quarter]
-        before = output[(trace.times >= 2 * quarter) & (trace.times < 3 * quarter)]
-        if before.size and last.size and np.mean(last) > RISING * np.mean(before):
-            operation["kind"] = "starting"
+    if operation["kind"] in NOT_RUNNING and _rising(trace):
+        operation["kind"] = "starting"  # a run too short to tell
     return operation
+
+
+def _rising(trace) -> bool:
+    """Whether the output is still rising at the end of a run: its mean over the
+    last quarter exceeds the quarter before by :data:`RISING` (and 1 mV)."""
+    import numpy as np
+
+    output, times = trace.signals["output_voltage"], trace.times
+    quarter = trace.final_time / 4.0
+    last = output[times >= 3 * quarter]
+    before = output[(times >= 2 * quarter) & (times < 3 * quarter)]
+    return bool(before.size and last.size and np.mean(last) > 1e-3 and
+                np.mean(last) > RISING * np.mean(before))
 
 
 #: Output still rising when its mean over the last quarter of the run exceeds the
