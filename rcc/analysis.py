@@ -7,29 +7,63 @@ from dataclasses import replace
 
 from rcc.checks import CheckReport, check_design
 from rcc.design import Design
-from rcc.findings import sorted_findings
+from rcc.findings import ordered_findings
 from rcc.startup import startup_findings, startup_report
 
 __all__ = ["full_check"]
 
 
-def full_check(design: Design) -> CheckReport:
+def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
     """Cycle-model checks and, when available, the start-up analysis.
 
     Parameters
     ----------
     design : Design
         The design.
+    startup_engine : bool
+        Also run the time-domain engine from power-on and add its peaks to the
+        stresses and findings (:func:`rcc.checks.with_startup_stress`; seconds).
 
     Returns
     -------
     CheckReport
-        With the start-up findings merged in (a code may appear twice when
-        both analyses raise it, e.g. ``weak-drive`` in steady state and right
-        after start-up) and a ``"startup"`` section in ``extra``.
+        With the start-up findings merged in and a ``"startup"`` section in
+        ``extra``.  Where both analyses raise the same code for the same
+        quantity (``weak-drive``: the drive margin hFE*Ib/Ic in steady state and
+        right after start-up) only the worse is kept.  When the supply cannot
+        start, the cause comes first and the findings about a running supply
+        are marked ``scope="if-running"`` (:func:`rcc.findings.ordered_findings`).
     """
     report = check_design(design)
     startup = startup_report(design)
-    findings = sorted_findings(report.findings + tuple(startup_findings(design, startup)))
-    return replace(report, findings=findings, extra={**report.extra,
-                                                     "startup": startup.to_json()})
+    findings = ordered_findings(_one_per_code(
+        report.findings + tuple(startup_findings(design, startup)), ("weak-drive",)))
+    report = replace(report, findings=findings, extra={**report.extra,
+                                                       "startup": startup.to_json()})
+    if startup_engine:
+        from rcc.checks import with_startup_stress
+        from rcc.verification import startup_stress
+
+        time = startup.start_time.total if startup.start_time is not None else None
+        report = with_startup_stress(report, startup_stress(design, time))
+    return report
+
+
+def _one_per_code(findings, codes):
+    """Keep, for each of ``codes``, only the finding with the worst severity and
+    then the lowest margin."""
+    from rcc.findings import SEVERITIES
+
+    kept = []
+    for finding in findings:
+        if finding.code in codes:
+            twin = next((k for k in kept if k.code == finding.code), None)
+            if twin is not None:
+                def badness(f):
+                    return (SEVERITIES.index(f.severity),
+                            f.margin if f.margin is not None else float("inf"))
+                if badness(finding) < badness(twin):
+                    kept[kept.index(twin)] = finding
+                continue
+        kept.append(finding)
+    return tuple(kept)

@@ -22,7 +22,7 @@ from rcc.findings import Finding, sorted_findings, verdict
 from rcc.limiter import current_limit
 from rcc.mains import bus_voltage_range
 
-__all__ = ["Stress", "CheckReport", "check_design", "SAFETY_CAUTION",
+__all__ = ["Stress", "CheckReport", "check_design", "with_startup_stress", "SAFETY_CAUTION",
            "STORAGE_PERIOD_FRACTION", "DRIVE_MARGIN_WARN"]
 
 #: Printed with every report.
@@ -68,6 +68,9 @@ class Stress:
         Allowed flux density (saturation times margin) [T].
     worst_peak_current_a : float
         Current limit (coldest) plus storage overshoot at the highest bus [A].
+    startup : dict or None
+        Peaks from power-on by the time-domain engine
+        (:meth:`rcc.verification.StartupStress.to_json`), when computed.
     """
 
     switch_peak_v: float
@@ -78,6 +81,7 @@ class Stress:
     core_peak_flux_t: float
     core_limit_t: float
     worst_peak_current_a: float
+    startup: dict | None = None
 
     def to_json(self) -> dict:
         return {name: (float(value) if isinstance(value, (float, np.floating)) else value)
@@ -210,6 +214,72 @@ def check_design(design: Design) -> CheckReport:
                        findings=sorted_findings(findings), extra={})
 
 
+def with_startup_stress(report: CheckReport, startup) -> CheckReport:
+    """Add the peaks from power-on to a report's stresses and findings.
+
+    Parameters
+    ----------
+    report : CheckReport
+        From :func:`check_design` (or :func:`rcc.analysis.full_check`).
+    startup : rcc.verification.StartupStress
+        Peaks from power-on by the engine.
+
+    Returns
+    -------
+    CheckReport
+        ``stress.startup`` filled in; ``core-saturation``, ``switch-overcurrent``
+        and ``switch-overvoltage`` raised (or replaced, when the start-up value is
+        the worse one: one finding per code) where the start-up peaks exceed the
+        limits the steady-state checks use.
+    """
+    from dataclasses import replace
+
+    design, stress_result = report.design, report.stress
+    where = (f"from power-on (engine, {startup.duration * 1e3:.3g} ms at "
+             f"{startup.line_voltage:.4g} V line, {startup.temperature - 273.15:.3g} degC, "
+             f"hfe_max, heaviest load)")
+    candidates = []
+    tr, sw = design.transformer, design.switch
+    if startup.core_peak_flux_t > stress_result.core_limit_t:
+        candidates.append(Finding(
+            "core-saturation", "fail",
+            f"Peak flux density {startup.core_peak_flux_t:.3f} T {where}, magnetizing "
+            f"current {startup.magnetizing_peak_a:.3f} A, exceeds "
+            f"{design.limits.flux_margin:.0%} of the saturation flux density "
+            f"{tr.saturation_flux_density:.3f} T: the first cycles, with the output still "
+            "low and the drive capacitor discharged, overshoot the current limit most.",
+            startup.core_peak_flux_t, stress_result.core_limit_t, "T",
+            "Raise the sense resistor, shorten the storage time (less base overdrive at "
+            "start-up, a speed-up network), add primary turns or use a larger core."))
+    if startup.primary_peak_a > sw.ic_max:
+        candidates.append(Finding(
+            "switch-overcurrent", "fail",
+            f"Collector current {startup.primary_peak_a:.3f} A {where} exceeds the rating "
+            f"IC(max) = {sw.ic_max:.3f} A.", startup.primary_peak_a, sw.ic_max, "A",
+            "Lower the current limit or shorten the storage time; or use a higher-current "
+            "switch."))
+    allowed = stress_result.switch_rating_v * design.limits.voltage_derating
+    if startup.switch_peak_v > allowed:
+        candidates.append(Finding(
+            "switch-overvoltage", "fail",
+            f"Peak collector voltage {startup.switch_peak_v:.0f} V {where} exceeds "
+            f"{design.limits.voltage_derating:.0%} of {stress_result.rating_basis.upper()} = "
+            f"{stress_result.switch_rating_v:.0f} V.", startup.switch_peak_v, allowed, "V",
+            "Clamp lower or reduce leakage; or use a switch with a higher rating."))
+    findings = list(report.findings)
+    for candidate in candidates:
+        twin = next((f for f in findings if f.code == candidate.code), None)
+        if twin is None:
+            findings.append(candidate)
+        elif twin.margin is not None and candidate.margin is not None and \
+                candidate.margin < twin.margin:
+            findings[findings.index(twin)] = candidate
+    from rcc.findings import ordered_findings
+
+    return replace(report, stress=replace(stress_result, startup=startup.to_json()),
+                   findings=ordered_findings(findings))
+
+
 # ---------------------------------------------------------------- checks
 def _max(arrays, attribute):
     return float(max(np.max(getattr(a, attribute)) for a in arrays))
@@ -306,14 +376,15 @@ def _drive(design, low_line, findings):
             "the base drive, the switch desaturates at full current and dissipates.",
             margin, 1.0, "",
             "Increase the base drive: more feedback turns, a smaller drive resistor, a "
-            "larger drive capacitor, or a switch with higher hFE."))
+            "larger drive capacitor, or a switch with higher hFE.", bound="lower"))
     elif margin < DRIVE_MARGIN_WARN:
         findings.append(Finding(
             "weak-drive", "warn",
             f"Base-drive margin hFE*Ib/Ic = {margin:.2f} at turn-off (lowest line, coldest, "
             f"hfe_min, heaviest load): little reserve for hFE spread and ageing.",
             margin, DRIVE_MARGIN_WARN, "",
-            "Increase the base drive (feedback turns, drive resistor, drive capacitor)."))
+            "Increase the base drive (feedback turns, drive resistor, drive capacitor).",
+            bound="lower"))
 
 
 def _current_rating(design, corner_sets, stress_result, findings):
@@ -407,14 +478,15 @@ def _output(design, points, corner_sets, findings):
     running = points.running
     nominal = float(points.output_voltage[1, 1])
     deviation = (nominal - target) / target
-    if abs(deviation) > tolerance:
+    # a supply that does not run has no output: that is reported by its cause
+    if abs(deviation) > tolerance and bool(running[1, 1]):
         findings.append(Finding(
             "output-off-target", "fail",
             f"Output at nominal line and load is {nominal:.3f} V, {deviation:+.1%} from the "
             f"target {target:.3f} V (allowed +/-{tolerance:.0%}).",
             nominal, target * (1 + np.sign(deviation) * tolerance), "V",
             "Adjust the regulation set point (zener voltage, reference or divider) or the "
-            "output-to-feedback turns ratio."))
+            "output-to-feedback turns ratio.", bound="upper" if deviation > 0 else "lower"))
     outputs = np.concatenate([np.ravel(points.output_voltage[running])] + [
         np.ravel(a.output_voltage[a.running]) for a in corner_sets])
     if outputs.size == 0:
@@ -431,7 +503,8 @@ def _output(design, points, corner_sets, findings):
             "overload.",
             worst, target * (1 + np.sign(worst_deviation) * tolerance), "V",
             "Raise the regulation gain (smaller zener/LED series resistor, larger limiter "
-            "base resistor) or compensate the zener tempco."))
+            "base resistor) or compensate the zener tempco.",
+            bound="upper" if worst_deviation > 0 else "lower"))
 
 
 def _not_running(design, points, findings):
@@ -460,7 +533,7 @@ def _squegging(design, corner_sets, findings):
             "ratchets up until a long drive-timed off-time resets it (squegging, "
             "irregular cycles). The cycle-model values there describe one cycle of that "
             "pattern; check with `rcc cycle`/`rcc waveforms`.",
-            float(unsettled), 0.0, "",
+            float(unsettled), 0.0, "points",
             "Give the drive capacitor a reset path in the off-time: a base-emitter resistor "
             "of lower value, a diode across the base-emitter junction, or more feedback "
             "turns so the base is clamped during the flyback plateau."))
@@ -479,7 +552,7 @@ def _lockup(design, corner_sets, findings):
         "reflected voltage is too small to reset the drive capacitor during the off-time, "
         "the cycles become drive-timed and deliver less than the load takes. From "
         "power-on the supply would stay at a low output and hiccup.",
-        float(count), 0.0, "",
+        float(count), 0.0, "points",
         "Strengthen the drive-capacitor reset (a lower base-emitter resistor, a diode "
         "path across the base, a smaller drive capacitor or more feedback turns), or make "
         "sure the load stays light until the output is up; confirm with `rcc waveforms`."))

@@ -23,8 +23,8 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from rcc.schema import SECTIONS, Key, keys_of
-from rcc.units import DIMENSIONS, UnitError, parse_quantity
+from rcc.schema import PLAUSIBLE, SECTIONS, Key, keys_of
+from rcc.units import DIMENSIONS, UnitError, format_si as _si, parse_quantity
 
 __all__ = [
     "Design",
@@ -416,6 +416,13 @@ def parse_load(value) -> Load:
             continue
         if number < 0 or (kind == "resistance" and number == 0):
             raise ValueError("expected a non-negative load (a resistance must be positive)")
+        if not _plausible(number, PLAUSIBLE[kind]):
+            low, high = PLAUSIBLE[kind]
+            unit = DIMENSIONS[kind].unit
+            span = (f"from {_si(low, unit)} to {_si(high, unit)}" if kind == "resistance"
+                    else f"up to {_si(high, unit)}")
+            raise ValueError(f"expected a {kind} load {span} (the range the models are "
+                             "built for)")
         return Load(kind, number)
     raise ValueError("expected a current ('0.5 A'), a resistance ('24 ohm') or a power "
                      "('6 W')")
@@ -469,20 +476,14 @@ def load_design(path, overrides: Mapping[str, Any] | None = None) -> Design:
     """
     path = Path(path)
     name = str(path)
-    if not path.exists():
-        raise DesignError([f"{name}: file does not exist"])
-    if path.is_dir():
-        raise DesignError([f"{name}: is a directory, expected a TOML design file"])
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as error:
-        raise DesignError([f"{name}: cannot read the file ({error})"]) from None
-    if not text.strip():
-        raise DesignError([f"{name}: the file is empty, expected a TOML design file"])
+    text = _read_design_text(path, name)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise DesignError([f"{name}: not valid TOML ({error})"]) from None
+    except RecursionError:
+        raise DesignError([f"{name}: not valid TOML for a design (arrays or tables nested "
+                           "too deeply)"]) from None
     if overrides:
         for dotted, value in overrides.items():
             section, _, key = dotted.rpartition(".")
@@ -490,6 +491,48 @@ def load_design(path, overrides: Mapping[str, Any] | None = None) -> Design:
             if isinstance(target, dict):
                 target[key] = value
     return design_from_dict(data, source=name)
+
+
+#: Largest design file read [bytes]: a design is a few kilobytes; anything far
+#: larger is the wrong file.
+MAX_DESIGN_BYTES = 1_000_000
+
+
+def _read_design_text(path: Path, name: str) -> str:
+    """The text of a design file: a regular file below the size limit, UTF-8
+    with or without a byte-order mark."""
+    import stat
+
+    try:
+        info = path.stat()
+    except FileNotFoundError:
+        raise DesignError([f"{name}: file does not exist"]) from None
+    except OSError as error:
+        raise DesignError([f"{name}: cannot read the file ({error.strerror})"]) from None
+    if stat.S_ISDIR(info.st_mode):
+        raise DesignError([f"{name}: is a directory, expected a TOML design file"])
+    if not stat.S_ISREG(info.st_mode):
+        raise DesignError([f"{name}: is not a regular file (a device, pipe or socket); "
+                           "expected a TOML design file"])
+    if info.st_size > MAX_DESIGN_BYTES:
+        raise DesignError([f"{name}: {info.st_size} bytes, larger than the "
+                           f"{MAX_DESIGN_BYTES} bytes a design file may have"])
+    try:
+        with open(path, "rb") as handle:
+            raw = handle.read(MAX_DESIGN_BYTES + 1)
+    except OSError as error:
+        raise DesignError([f"{name}: cannot read the file ({error.strerror})"]) from None
+    if len(raw) > MAX_DESIGN_BYTES:
+        raise DesignError([f"{name}: larger than the {MAX_DESIGN_BYTES} bytes a design "
+                           "file may have"])
+    try:
+        text = raw.decode("utf-8-sig")  # a byte-order mark from some editors is fine
+    except UnicodeDecodeError as error:
+        raise DesignError([f"{name}: not UTF-8 text (byte {error.start}); expected a "
+                           "TOML design file"]) from None
+    if not text.strip():
+        raise DesignError([f"{name}: the file is empty, expected a TOML design file"])
+    return text
 
 
 def design_from_dict(data: Mapping[str, Any], source: str = "<dict>") -> Design:
@@ -526,7 +569,7 @@ class _Validator:
         if value is _MISSING:
             self.problems.append(f"{self.source}: {path}: missing; expected {expected}")
         else:
-            self.problems.append(f"{self.source}: {path} = {value!r}: expected {expected}")
+            self.problems.append(f"{self.source}: {path} = {_shown(value)}: expected {expected}")
 
     # ---------------------------------------------------------------- run
     def run(self) -> Design:
@@ -556,14 +599,14 @@ class _Validator:
                     self.problems.append(f"{self.source}: [{name}]: unknown section{hint}")
                 else:
                     self.problems.append(
-                        f"{self.source}: {name} = {value!r}: unknown key{hint}")
+                        f"{self.source}: {name} = {_shown(value)}: unknown key{hint}")
             elif name in SECTIONS and isinstance(value, Mapping):
                 known = keys_of(name)
                 for key, given in value.items():
                     if key not in known:
                         hint = _closest(key, known)
                         self.problems.append(
-                            f"{self.source}: {name}.{key} = {given!r}: unknown key{hint}"
+                            f"{self.source}: {name}.{key} = {_shown(given)}: unknown key{hint}"
                         )
 
     def read(self, key: Key, raw: Mapping[str, Any]):
@@ -596,6 +639,9 @@ class _Validator:
         if not _satisfies(number, key.constraint):
             self.problem(key.path, value, _constraint_phrase(key))
             return None
+        if not _plausible(number, key.plausible):
+            self.problem(key.path, value, _range_phrase(key))
+            return None
         return number
 
     def read_load(self, key: Key, value) -> Load | None:
@@ -626,9 +672,18 @@ class _Validator:
                     self.problem(f"input.{name}", _MISSING, _describe(keys_of("input")[name]))
             triple = group[:3]
             self._check_order(values["input"], "input", triple)
+            low, drop = values["input"].get("ac_min"), values["input"].get("bridge_drop")
+            if has_ac and low is not None and drop is not None and \
+                    math.sqrt(2.0) * low <= drop:
+                self.problems.append(
+                    f"{self.source}: input.ac_min = {low:g}: its peak {math.sqrt(2) * low:.3g} V "
+                    f"does not exceed input.bridge_drop = {drop:g} V: no bus voltage; "
+                    "expected a higher line voltage (RMS) or a smaller bridge drop")
         self._check_order(values["switch"], "switch", ("hfe_min", "hfe_typ", "hfe_max"))
         self._check_order(values["environment"], "environment",
                           ("temperature_min", "temperature_max"))
+        self._check_load_order(values["output"])
+        self._check_temperature_laws(values)
         if values["switch"]["type"] == "nmos":
             self.problem("switch.type", "nmos", "'npn': MOSFET switches are not "
                          "modelled in this version")
@@ -677,6 +732,63 @@ class _Validator:
                     f"{' <= '.join(names)} (SI units)"
                 )
 
+    def _check_load_order(self, output) -> None:
+        """load_min no heavier than load_nominal no heavier than load_max, compared
+        as currents at the target output (or directly when all have one kind)."""
+        names = ("load_min", "load_nominal", "load_max")
+        loads = [output.get(name) for name in names]
+        if any(load is None for load in loads):
+            return
+        kinds = {load.kind for load in loads}
+        target = output.get("voltage_target")
+        if len(kinds) == 1:
+            heaviness = [(1.0 / load.value if load.kind == "resistance" else load.value)
+                         for load in loads]
+        elif target:
+            heaviness = [float(load.current(target)) for load in loads]
+        else:
+            return
+        for (a, b), (name_a, name_b) in zip(zip(heaviness, heaviness[1:]),
+                                            zip(names, names[1:])):
+            if a > b * (1 + 1e-12):
+                low, high = loads[names.index(name_a)], loads[names.index(name_b)]
+                self.problems.append(
+                    f"{self.source}: output.{name_a} = {low.text()!r} is a heavier load than "
+                    f"output.{name_b} = {high.text()!r}: expected load_min <= load_nominal "
+                    "<= load_max (a heavier load draws more current: a higher current or "
+                    "power, a lower resistance)")
+
+    def _check_temperature_laws(self, values) -> None:
+        """The linear temperature laws must keep hFE and Vbe positive over the range."""
+        env = values["environment"]
+        if env.get("temperature_min") is None or env.get("temperature_max") is None:
+            return
+        for section, vbe_key in (("switch", "vbe"), ("limiter", "vbe")):
+            vbe, tempco = values[section].get(vbe_key), values[section].get("vbe_tempco")
+            if vbe is None or tempco is None:
+                continue
+            for name in ("temperature_min", "temperature_max"):
+                at = vbe + tempco * (env[name] - 298.15)
+                if at <= 0.05:
+                    self.problems.append(
+                        f"{self.source}: {section}.vbe_tempco = {tempco:g}: the "
+                        f"base-emitter voltage would fall to {at:.3g} V at "
+                        f"environment.{name} = {env[name] - 273.15:g} degC; expected a "
+                        "tempco that keeps it above 50 mV (about -2 mV/K is usual)")
+                    break
+        switch = values["switch"]
+        hfe, tempco = switch.get("hfe_min"), switch.get("hfe_tempco")
+        if hfe is not None and tempco is not None:
+            for name in ("temperature_min", "temperature_max"):
+                factor = 1.0 + tempco * (env[name] - 298.15)
+                if factor <= 0.05:
+                    self.problems.append(
+                        f"{self.source}: switch.hfe_tempco = {tempco:g}: the current gain "
+                        f"would fall to {factor:.3g} times its 25 degC value at "
+                        f"environment.{name} = {env[name] - 273.15:g} degC; expected a "
+                        "tempco that keeps it positive (about +0.5 %/K is usual)")
+                    break
+
     # -------------------------------------------------------------- build
     def build(self, values: dict[str, dict[str, Any]]) -> Design:
         tr = dict(values["transformer"])
@@ -712,6 +824,17 @@ class _Validator:
 
 _MISSING = object()
 
+#: Longest value repeated verbatim in a message [characters].
+_SHOWN_LENGTH = 40
+
+
+def _shown(value) -> str:
+    """The value as given, shortened when it is too long to read in one line."""
+    text = repr(value)
+    if len(text) <= _SHOWN_LENGTH:
+        return text
+    return f"{text[:_SHOWN_LENGTH - 12]}... ({len(text)} characters)"
+
 _CONSTRAINT_TEXT = {
     "positive": "a positive",
     "nonnegative": "a non-negative",
@@ -731,6 +854,33 @@ def _satisfies(number: float, constraint: str) -> bool:
     if constraint == "fraction":
         return 0 < number < 1
     return True
+
+
+def _plausible(number: float, bounds) -> bool:
+    """Whether a non-zero magnitude lies in ``bounds`` (zero is the constraint's business)."""
+    if bounds is None or number == 0:
+        return True
+    low, high = bounds
+    return low <= abs(number) <= high
+
+
+def _range_phrase(key: Key) -> str:
+    """'an inductance from 100 pH to 100 H (the range the models are built for)'."""
+    from rcc.units import format_quantity
+
+    low, high = key.plausible
+    if low == 0:
+        span = f"of magnitude up to {format_quantity(high, key.dimension)}"
+    else:
+        span = (f"from {format_quantity(low, key.dimension)} to "
+                f"{format_quantity(high, key.dimension)}")
+    what = "a number" if key.dimension == "dimensionless" else \
+        f"{_article(DIMENSIONS[key.dimension].name)} {DIMENSIONS[key.dimension].name}"
+    return f"{what} {span} (the range the models are built for)"
+
+
+def _article(word: str) -> str:
+    return "an" if word[:1] in "aeiou" else "a"
 
 
 def _constraint_phrase(key: Key) -> str:

@@ -10,10 +10,16 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-__all__ = ["Finding", "SEVERITIES", "verdict", "sorted_findings"]
+__all__ = ["Finding", "SEVERITIES", "BOUNDS", "NOT_STARTING", "verdict", "sorted_findings",
+           "ordered_findings"]
 
 #: Severities from worst to mildest.
 SEVERITIES = ("fail", "warn", "info")
+#: How a value is judged against its limit (see :class:`Finding`).
+BOUNDS = ("upper", "lower", "")
+#: Codes that mean the supply cannot oscillate at all: the cause, listed first;
+#: every finding about a running supply then only holds if it ran.
+NOT_STARTING = ("feedback-phase", "dc-stall", "no-start")
 
 
 @dataclass(frozen=True)
@@ -36,6 +42,14 @@ class Finding:
         SI unit symbol of ``value`` and ``limit`` (``""`` if dimensionless).
     advice : str
         What to change.
+    bound : str
+        How ``value`` is judged against ``limit``: ``"upper"`` (the value must
+        stay at or below the limit: a voltage, a flux), ``"lower"`` (at or above:
+        a drive margin, an output that must reach its target) or ``""`` (the
+        limit is a reference, not a bound: no margin).
+    scope : str
+        ``""``, or ``"if-running"`` for a finding that holds only for a running
+        supply when the report also says it cannot start.
     """
 
     code: str
@@ -45,10 +59,14 @@ class Finding:
     limit: float | None = None
     unit: str = ""
     advice: str = ""
+    bound: str = "upper"
+    scope: str = ""
 
     def __post_init__(self):
         if self.severity not in SEVERITIES:
             raise ValueError(f"severity must be one of {SEVERITIES}, got {self.severity!r}")
+        if self.bound not in BOUNDS:
+            raise ValueError(f"bound must be one of {BOUNDS}, got {self.bound!r}")
         for name in ("value", "limit"):
             number = getattr(self, name)
             if number is not None and not math.isfinite(number):
@@ -56,14 +74,17 @@ class Finding:
 
     @property
     def margin(self) -> float | None:
-        """Relative margin ``(limit - value) / limit`` [1]; negative when
-        the value is beyond the limit (for upper limits)."""
-        if self.value is None or self.limit is None or self.limit == 0:
+        """Relative margin to the limit [1]: ``(limit - value) / |limit|`` for an
+        upper bound, ``(value - limit) / |limit|`` for a lower bound; negative
+        when the value is on the wrong side.  ``None`` without a value, a
+        non-zero limit or a bound."""
+        if self.value is None or self.limit is None or self.limit == 0 or not self.bound:
             return None
-        return (self.limit - self.value) / abs(self.limit)
+        excess = self.limit - self.value if self.bound == "upper" else self.value - self.limit
+        return excess / abs(self.limit)
 
     def to_json(self) -> dict:
-        return asdict(self)
+        return {**asdict(self), "margin": self.margin}
 
 
 def verdict(findings) -> str:
@@ -102,3 +123,37 @@ def sorted_findings(findings) -> tuple[Finding, ...]:
         Sorted by severity.
     """
     return tuple(sorted(findings, key=lambda finding: SEVERITIES.index(finding.severity)))
+
+
+def ordered_findings(findings, start_codes=NOT_STARTING) -> tuple[Finding, ...]:
+    """Findings in the order to read them: when the supply cannot start, the
+    cause first and the rest marked ``scope="if-running"``; then worst first.
+
+    Parameters
+    ----------
+    findings : iterable of Finding
+        The findings of every analysis [-].
+    start_codes : sequence of str
+        Codes that mean the supply cannot oscillate (:data:`NOT_STARTING`) [-].
+
+    Returns
+    -------
+    tuple of Finding
+        Failing start-up causes first, then by severity (stable within one);
+        when a start-up cause fails, every other finding carries
+        ``scope="if-running"`` and follows the others of its severity.
+    """
+    from dataclasses import replace
+
+    findings = list(findings)
+    stalled = any(f.code in start_codes and f.severity == "fail" for f in findings)
+    if stalled:
+        findings = [f if f.code in start_codes or f.scope else replace(f, scope="if-running")
+                    for f in findings]
+
+    def rank(finding):
+        cause = finding.code in start_codes and finding.severity == "fail"
+        return (0 if cause else 1, SEVERITIES.index(finding.severity),
+                1 if finding.scope else 0)
+
+    return tuple(sorted(findings, key=rank))

@@ -82,7 +82,7 @@ def format_check_report(data: dict) -> str:
     out += ["Operating points (25 degC clipped into the temperature range, hfe_typ)", ""]
     out += [format_points_table(data["operating_points"]), ""]
     s = data["stress"]
-    out += ["Stresses (worst case over line, load, temperature, hFE)", ""]
+    out += ["Stresses (worst case over line, load, temperature, hFE; and from power-on)", ""]
     out += [format_table(["quantity", "value", "limit", "basis"], [
         ["switch peak voltage", format_si(s["switch_peak_v"], "V", 4),
          format_si(s["switch_rating_v"], "V", 4), s["rating_basis"].upper()],
@@ -90,7 +90,7 @@ def format_check_report(data: dict) -> str:
          f"{s['core_limit_t']:.3f} T", "saturation x margin"],
         ["worst peak current", format_si(s["worst_peak_current_a"], "A", 3), "",
          "limit + storage overshoot"],
-    ]), ""]
+    ] + _startup_rows(s)), ""]
     startup = data.get("startup")
     if startup:
         out += ["Start-up (lowest line, worst corner of hFE and temperature)", ""]
@@ -116,18 +116,47 @@ def format_check_report(data: dict) -> str:
     if not data["findings"]:
         out.append("    none")
     for f in data["findings"]:
-        margin = ""
-        if f["value"] is not None and f["limit"] is not None and f["limit"] != 0:
-            margin = f" (value {f['value']:.4g} {f['unit']}, limit {f['limit']:.4g} " \
-                     f"{f['unit']}, margin {(f['limit'] - f['value']) / abs(f['limit']):+.1%})"
-        out.append(f"  [{f['severity'].upper()}] {f['code']}{margin}")
-        out.append(_wrap(f["message"]))
+        out.append(f"  [{f['severity'].upper()}] {f['code']}{_numbers(f)}")
+        message = f["message"]
+        if f.get("scope") == "if-running":
+            message = ("Only if it ran (it does not start, see the first finding): "
+                       + message)
+        out.append(_wrap(message))
         if f["advice"]:
             out.append(_wrap("What to change: " + f["advice"]))
         out.append("")
     if data.get("verification"):
         out += [format_verification(data["verification"]), ""]
     return "\n".join(out).rstrip() + "\n"
+
+
+def _startup_rows(stress: dict) -> list[list[str]]:
+    """Rows of the peaks from power-on, or one row saying they were not computed."""
+    up = stress.get("startup")
+    if not up:
+        return [["start-up peaks", "not computed", "", "rcc check (command) runs them"]]
+    basis = f"engine from power-on, {up['duration'] * 1e3:.3g} ms"
+    return [["start-up collector peak", format_si(up["switch_peak_v"], "V", 4),
+             format_si(stress["switch_rating_v"], "V", 4), basis],
+            ["start-up peak flux density", f"{up['core_peak_flux_t']:.3f} T",
+             f"{stress['core_limit_t']:.3f} T", basis],
+            ["start-up peak primary current", format_si(up["primary_peak_a"], "A", 3), "",
+             basis]]
+
+
+def _numbers(finding: dict) -> str:
+    """' (value 1.18, minimum 1.25, margin -5.6%)': the margin is negative when the
+    value is on the wrong side of the limit."""
+    value, limit, unit = finding["value"], finding["limit"], finding["unit"]
+    if value is None or limit is None:
+        return ""
+    unit = f" {unit}" if unit else ""
+    word = {"upper": "limit", "lower": "minimum"}.get(finding.get("bound", "upper"),
+                                                      "reference")
+    text = f" (value {value:.4g}{unit}, {word} {limit:.4g}{unit}"
+    if finding.get("margin") is not None:
+        text += f", margin {finding['margin']:+.1%}"
+    return text + ")"
 
 
 def format_verification(rows) -> str:
@@ -157,6 +186,7 @@ def format_verification(rows) -> str:
           si(r["model_output_v"], "V"), si(r["engine_output_v"], "V"),
           percent(r["output_diff"]), si(r["model_peak_a"], "A"), si(r["engine_peak_a"], "A"),
           percent(r["peak_diff"]),
-          (r["error"] or ("" if r["engine_converged"] else "not periodic: "
-                          + r["engine_flags"]))[:70]] for r in rows])
+          textwrap.shorten(r["error"] or ("" if r["engine_converged"] else "not periodic: "
+                                          + r["engine_flags"]), 70, placeholder=" ...")]
+         for r in rows])
     return "Verification: cycle model against the periodic-steady-state engine\n\n" + table

@@ -41,6 +41,10 @@ class Key:
         Meaning, shown in the reference and in messages.
     choices : tuple of str
         Allowed values of a choice key.
+    bounds : tuple of float or None
+        Range of magnitudes ``(low, high)`` [SI] the models are built for; a
+        value outside it (other than an allowed zero) is refused with the range
+        in the message.  ``None``: the dimension's range in :data:`PLAUSIBLE`.
     """
 
     section: str
@@ -52,16 +56,53 @@ class Key:
     constraint: str
     description: str
     choices: tuple[str, ...] = ()
+    bounds: tuple[float, float] | None = None
 
     @property
     def path(self) -> str:
         return f"{self.section}.{self.name}" if self.section else self.name
 
+    @property
+    def plausible(self) -> tuple[float, float] | None:
+        """Range of magnitudes the models are built for [SI] (see ``bounds``)."""
+        if self.bounds is not None:
+            return self.bounds
+        return PLAUSIBLE.get(self.dimension)
+
+
+#: Magnitudes [SI] a value of each dimension may take in a design file: wide
+#: enough for any small free-running supply (and a 1 Tohm "open" resistor), narrow
+#: enough that no model meets an overflow, a denormal or a negative gain.  Values
+#: outside are refused up front with the range instead of failing deep inside.
+#: The lower bound applies to non-zero values; zero is governed by the key's
+#: constraint.  Temperatures: -100 degC to +250 degC.
+PLAUSIBLE: dict[str, tuple[float, float]] = {
+    "voltage": (1e-3, 1e5),
+    "current": (1e-9, 1e4),
+    "resistance": (1e-6, 1e15),
+    "capacitance": (1e-15, 10.0),
+    "inductance": (1e-10, 100.0),
+    "time": (1e-12, 3600.0),
+    "frequency": (1e-3, 1e12),
+    "area": (1e-10, 1.0),
+    "flux density": (1e-3, 10.0),
+    "temperature": (173.15, 523.15),
+    "power": (1e-9, 1e5),
+    "voltage per kelvin": (0.0, 0.1),
+    "fraction per kelvin": (0.0, 0.1),
+    "dimensionless": (1e-6, 1e6),
+}
+
+#: Turn counts: a fraction of a turn up to a hundred thousand.
+TURNS = (0.5, 1e5)
+#: DC current gains: one to a hundred thousand.
+GAINS = (1.0, 1e5)
+
 
 def _q(section, name, dimension, description, *, required=True, default=None,
-       constraint="positive"):
+       constraint="positive", bounds=None):
     return Key(section, name, "quantity", dimension, required, default, constraint,
-               description)
+               description, bounds=bounds)
 
 
 def _c(section, name, choices, description, *, required=False, default=None):
@@ -95,9 +136,12 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
     # ------------------------------------------------------------- switch
     _c("switch", "type", ("npn", "nmos"),
        "Switch technology. Only 'npn' is modelled in this version.", default="npn"),
-    _q("switch", "hfe_min", "dimensionless", "Lowest DC current gain at 25 degC."),
-    _q("switch", "hfe_typ", "dimensionless", "Typical DC current gain at 25 degC."),
-    _q("switch", "hfe_max", "dimensionless", "Highest DC current gain at 25 degC."),
+    _q("switch", "hfe_min", "dimensionless", "Lowest DC current gain at 25 degC.",
+       bounds=GAINS),
+    _q("switch", "hfe_typ", "dimensionless", "Typical DC current gain at 25 degC.",
+       bounds=GAINS),
+    _q("switch", "hfe_max", "dimensionless", "Highest DC current gain at 25 degC.",
+       bounds=GAINS),
     _q("switch", "vbe", "voltage", "Base-emitter on voltage at 25 degC.",
        required=False, default=0.7),  # silicon junction, common practice
     _q("switch", "vbe_tempco", "voltage per kelvin",
@@ -123,9 +167,12 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
        required=False, default=7.0),  # VEBO of HV switching transistors 5-9 V, from memory
     _q("switch", "ic_max", "current", "Collector current rating."),
     # -------------------------------------------------------- transformer
-    _q("transformer", "primary_turns", "dimensionless", "Primary turns."),
-    _q("transformer", "output_turns", "dimensionless", "Output (secondary) turns."),
-    _q("transformer", "feedback_turns", "dimensionless", "Feedback (base-drive) turns."),
+    _q("transformer", "primary_turns", "dimensionless", "Primary turns.",
+       bounds=TURNS),
+    _q("transformer", "output_turns", "dimensionless", "Output (secondary) turns.",
+       bounds=TURNS),
+    _q("transformer", "feedback_turns", "dimensionless", "Feedback (base-drive) turns.",
+       bounds=TURNS),
     _c("transformer", "feedback_phase", ("regenerative", "degenerative"),
        "Phasing of the feedback winding; 'degenerative' is a winding connected "
        "the wrong way round.", default="regenerative"),
@@ -133,7 +180,8 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
        "Primary magnetizing inductance."),
     _q("transformer", "coupling", "dimensionless",
        "Coupling coefficient k in (0, 1]; leakage = (1 - k^2) * magnetizing / k^2. "
-       "Give this or leakage_inductance.", required=False, constraint="unit-interval"),
+       "Give this or leakage_inductance.", required=False, constraint="unit-interval",
+       bounds=(0.1, 1.0)),
     _q("transformer", "leakage_inductance", "inductance",
        "Primary leakage inductance. Give this or coupling.", required=False,
        constraint="nonnegative"),
@@ -174,6 +222,7 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
     _q("limiter", "base_resistance", "resistance",
        "Resistor from the sense resistor to the limiter base."),
     _q("limiter", "hfe", "dimensionless", "Limiter transistor current gain.",
+       bounds=GAINS,
        required=False, default=100.0),  # small-signal NPN, common practice
     # --------------------------------------------------------- regulation
     _c("regulation", "method", ("feedback-winding", "optocoupler", "none"),
@@ -294,7 +343,31 @@ def markdown_reference() -> str:
                 default = f"`{key.default}`" if key.default != "" else "empty"
             lines.append(f"| `{key.name}` | {unit} | {default} | {key.description} |")
         lines.append("")
+    lines += _ranges_reference()
     return "\n".join(lines)
+
+
+def _ranges_reference() -> list[str]:
+    """The ranges of :data:`PLAUSIBLE` and the keys with their own, as Markdown."""
+    from rcc.units import format_quantity
+
+    def span(dimension, bounds):
+        low, high = bounds
+        if low == 0:
+            return f"magnitude up to {format_quantity(high, dimension)}"
+        return f"{format_quantity(low, dimension)} to {format_quantity(high, dimension)}"
+
+    lines = ["#### Value ranges", "",
+             "Values outside these ranges (zero aside, where a key allows it) are refused "
+             "with the range in the message: the models are not built for them.", "",
+             "| values | range |", "|---|---|"]
+    lines += [f"| {dimension} | {span(dimension, bounds)} |"
+              for dimension, bounds in PLAUSIBLE.items()]
+    lines += [f"| `{key.path}` | {span(key.dimension, key.bounds)} |"
+              for key in KEYS if key.bounds is not None]
+    lines += ["| loads | current up to 10 kA, resistance 1 uohm to 1 Pohm, power up "
+              "to 100 kW |", ""]
+    return lines
 
 
 if __name__ == "__main__":  # pragma: no cover - documentation helper

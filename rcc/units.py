@@ -28,6 +28,7 @@ __all__ = [
     "kelvin_to_celsius",
     "celsius_to_kelvin",
     "format_si",
+    "format_quantity",
 ]
 
 
@@ -86,7 +87,9 @@ def _registry():
 
 
 def _normalise_unit_text(text: str) -> str:
-    text = text.replace("Ω", "ohm").replace("Ω", "ohm").replace("°C", "degC")
+    # U+03A9 Greek capital omega and U+2126 ohm sign; U+00B5 micro and U+03BC mu
+    text = text.replace("\u03a9", "ohm").replace("\u2126", "ohm").replace("°C", "degC")
+    text = text.replace("\u00b5", "u").replace("\u03bc", "u")
     text = text.replace("°F", "degF").replace("²", "^2").replace("³", "^3")
     return text
 
@@ -118,7 +121,11 @@ def parse_quantity(value, dimension: str) -> float:
     if isinstance(value, bool):
         raise UnitError(f"expected a {expected.name}, got a boolean")
     if isinstance(value, (int, float)):
-        number = float(value)
+        try:
+            number = float(value)
+        except OverflowError:  # an integer too large for a float
+            raise UnitError(f"expected a finite {what}, got an integer of "
+                            f"{len(str(abs(value)))} digits") from None
         if not math.isfinite(number):
             raise UnitError(f"expected a finite {what}, got {value!r}")
         return number
@@ -136,6 +143,8 @@ def parse_quantity(value, dimension: str) -> float:
             f"'4.7 {_example_unit(expected)}'".replace(" '4.7 '", " '4.7'")
         )
     number = float(match.group(1))
+    if not math.isfinite(number):
+        raise UnitError(f"expected a finite {what}, got a number too large to represent")
     unit_text = _normalise_unit_text(match.group(2))
     if re.match(r"^[.,]|^\d+[.,]\d|^[eE][-+]?\d", unit_text):
         raise UnitError(
@@ -222,6 +231,8 @@ def kelvin_to_celsius(temperature_kelvin):
 
 
 _PREFIXES = [
+    (1e15, "P"),
+    (1e12, "T"),
     (1e9, "G"),
     (1e6, "M"),
     (1e3, "k"),
@@ -230,6 +241,7 @@ _PREFIXES = [
     (1e-6, "u"),
     (1e-9, "n"),
     (1e-12, "p"),
+    (1e-15, "f"),
 ]
 
 
@@ -261,3 +273,32 @@ def format_si(value: float, unit: str, digits: int = 4) -> str:
             return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
     scale, prefix = _PREFIXES[-1]
     return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
+
+
+def format_quantity(value: float, dimension: str, digits: int = 3) -> str:
+    """Format a value of a design-file dimension for messages and references.
+
+    Parameters
+    ----------
+    value : float
+        Value in SI base units [SI] (kelvin for temperatures).
+    dimension : str
+        Key of :data:`DIMENSIONS` [-].
+    digits : int
+        Significant digits [-].
+
+    Returns
+    -------
+    str
+        Temperatures in degC, areas in mm^2, relative tempcos in %/K, other
+        units with an SI prefix (:func:`format_si`); dimensionless numbers plain.
+    """
+    if dimension == "temperature":
+        return f"{value - zero_Celsius:.{digits}g} degC"
+    if dimension == "area":  # a prefix would apply to the metre, not the square metre
+        return f"{value * 1e6:.{digits}g} mm^2"
+    if dimension == "fraction per kelvin":
+        return f"{value * 100:.{digits}g} %/K"
+    if dimension == "dimensionless":
+        return f"{value:.{digits}g}"
+    return format_si(value, DIMENSIONS[dimension].unit, digits)

@@ -162,7 +162,7 @@ def test_not_toml(write_design):
 def test_binary_file(tmp_path):
     path = tmp_path / "design.toml"
     path.write_bytes(b"\xff\xfe\x00\x01garbage")
-    assert_bad_input(run_check(path), path, [r": cannot read the file|: not valid TOML"])
+    assert_bad_input(run_check(path), path, [r": not UTF-8 text \(byte 0\)"])
 
 
 @pytest.mark.parametrize("text", ["", "   \n\n", "\n"])

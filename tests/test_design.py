@@ -194,7 +194,8 @@ def test_feedback_regulation_gets_zener_tempco_default(minimal_design_dict):
      ("1 kohm", Load("resistance", 1000.0)), ("0 A", Load("current", 0.0))],
 )
 def test_load_kinds_from_unit(minimal_design_dict, text, load):
-    minimal_design_dict["output"]["load_max"] = text
+    for name in ("load_min", "load_nominal", "load_max"):  # equal loads keep the order
+        minimal_design_dict["output"][name] = text
     design = design_from_dict(minimal_design_dict)
     assert design.output.load_max == load
 

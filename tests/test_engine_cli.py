@@ -43,7 +43,7 @@ def test_waveforms_refuses_to_overwrite(tmp_path):
     (["--load", "3 kg"], "current, resistance or power"),
     (["--line", "-5 V"], "positive voltage"),
     (["--time", "2 A"], "--time"),
-    (["--plot", "w.pdf"], ".png"),
+    (["--plot", "w"], ".png"),
 ])
 def test_waveforms_bad_options_exit_2(options, words):
     result = runner.invoke(app, ["waveforms", WORKED] + options)

@@ -320,6 +320,9 @@ def test_cli_plot_and_overwrite(tmp_path):
     out = runner.invoke(app, ["cycle", str(LEGACY), "--load", "12 W", "--plot", str(target)])
     assert out.exit_code == 0, out.output
     assert target.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    # what the cycle is, said first; the engine's event names only with --verbose
+    assert out.output.splitlines()[1].strip() == "periodic steady state, stable"
+    assert "events:" not in out.output
     again = runner.invoke(app, ["cycle", str(LEGACY), "--load", "12 W", "--plot", str(target)])
     assert again.exit_code == 2
     assert "--force" in again.output
@@ -372,3 +375,17 @@ def test_cli_engine_trouble_is_a_clear_error_not_a_traceback():
     assert "no periodic steady state" in out.output
     assert "Traceback" not in out.output and out.exception is None or \
         isinstance(out.exception, SystemExit)
+
+
+def test_cycle_status_matches_the_verdict():
+    """The text and figure title never call an unstable or unconverged cycle a
+    periodic steady state."""
+    from types import SimpleNamespace
+
+    from rcc.engine.plotting import cycle_status
+
+    assert cycle_status(SimpleNamespace(converged=True, stable=True)) == \
+        "periodic steady state, stable"
+    assert "UNSTABLE" in cycle_status(SimpleNamespace(converged=True, stable=False))
+    text = cycle_status(SimpleNamespace(converged=False, stable=False))
+    assert text.startswith("NOT CONVERGED") and "steady state" not in text

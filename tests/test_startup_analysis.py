@@ -236,7 +236,7 @@ def test_plot_loop_gain(tmp_path, healthy):
 
     from rcc.startup import plot_loop_gain
 
-    fig, ax = plt.subplots()
+    fig, ax = plt.subplots(2, 1, sharex=True)
     returned = plot_loop_gain(analyze_startup(healthy), ax=ax)
-    assert returned is ax and len(ax.lines) >= 1
+    assert returned is ax and len(ax[0].lines) >= 1 and len(ax[1].lines) >= 1
     plt.close(fig)

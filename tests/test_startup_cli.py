@@ -47,9 +47,17 @@ def test_derivation_plain_and_latex():
     assert plain.exit_code == 0
     assert "Loop gain, opened at the switch collector current source" in plain.output
     assert "g_m" in plain.output and "verdict" in plain.output
-    latex = runner.invoke(app, ["startup", HEALTHY, "--latex", "--json"])
-    assert latex.exit_code == 0
-    assert "\\frac" in json.loads(latex.output)["derivation"]
+    # --latex FILE writes a document; the JSON carries the plain derivation
+    import tempfile
+    from pathlib import Path
+
+    with tempfile.TemporaryDirectory() as folder:
+        target = Path(folder) / "startup.tex"
+        latex = runner.invoke(app, ["startup", HEALTHY, "--latex", str(target),
+                                    "--derivation", "--json"])
+        assert latex.exit_code == 0, latex.output
+        assert "\\frac" in target.read_text()
+    assert "Routh first column" in json.loads(latex.output)["derivation"]
 
 
 def test_plot_written_and_not_overwritten(tmp_path):

@@ -14,12 +14,27 @@ import typer
 app = typer.Typer(
     add_completion=False,
     no_args_is_help=True,
+    rich_markup_mode=None,
     help="Analyze self-oscillating (ringing-choke) flyback supplies from a design file.",
 )
 
+def _version(value: bool) -> None:
+    if value:
+        from rcc import __version__
+
+        typer.echo(f"rcc {__version__}")
+        raise typer.Exit(0)
+
+
 @app.callback()
-def _root() -> None:
-    """Analyze self-oscillating (ringing-choke) flyback supplies from a design file."""
+def _root(version: bool = typer.Option(False, "--version", is_eager=True, callback=_version,
+                                       help="Print the version and exit.")) -> None:
+    """Analyze self-oscillating (ringing-choke) flyback supplies from a design file.
+
+    Exit codes of every command: 0 success, 1 a finding fails or the supply does
+    not run as asked, 2 bad input (one line per problem on stderr).  Also
+    available as `python -m rcc`.
+    """
 
 
 #: Exit codes shared by every command.
@@ -44,11 +59,43 @@ def load_or_exit(path):
 
 
 def refuse_overwrite(path, force: bool) -> None:
-    """Exit 2 if ``path`` exists and ``force`` is not set."""
-    from pathlib import Path
+    """Exit 2 if ``path`` cannot be written (exists without ``force``, missing or
+    read-only folder, a directory); :func:`plan_outputs` checks several at once."""
+    plan_outputs({"output": (path, None)}, force)
 
-    if path is not None and Path(path).exists() and not force:
-        raise fail_input(f"{path}: exists; use --force to overwrite it")
+
+def plan_outputs(outputs: dict, force: bool) -> None:
+    """Check the output paths before computing; exit 2 with one line if one
+    cannot be written (see :func:`rcc.cli.outputs.check_outputs`)."""
+    from rcc.cli.outputs import OutputError, check_outputs
+
+    try:
+        check_outputs(outputs, force)
+    except OutputError as error:
+        raise fail_input(str(error)) from None
+
+
+def write_outputs(writers) -> None:
+    """Run ``writers`` (callables taking an :class:`rcc.cli.outputs.OutputFiles`)
+    and move every file into place together; a write error (full disk, folder
+    removed meanwhile) exits 2 with one line and leaves no file behind."""
+    from rcc.cli.outputs import OutputFiles
+
+    try:
+        with OutputFiles() as files:
+            for writer in writers:
+                writer(files)
+    except OSError as error:
+        target = f" {error.filename}" if error.filename else ""
+        raise fail_input(f"cannot write{target}: {error.strerror or error}; no output "
+                         "file was changed") from None
+
+
+def echo_json(data) -> None:
+    """Print ``data`` as strict JSON (no NaN or Infinity: they become null)."""
+    from rcc.cli.outputs import strict_json
+
+    typer.echo(strict_json(data))
 
 
 def main() -> None:  # console-script entry point

@@ -2,21 +2,22 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, load_or_exit
+from rcc.cli.progress import QUIET_HELP, Status
+from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit
 
 
-@app.command()
+@app.command(short_help="Operating points, worst-case stresses and findings.")
 def check(
-    design_file: Path = typer.Argument(..., help="TOML design file."),
+    design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     verify: bool = typer.Option(False, "--verify", help="Also solve every reported point "
                                 "with the periodic-steady-state engine and show the "
                                 "differences (slow: seconds per point)."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Operating points at min/nominal/max line and load, stresses and findings.
 
@@ -25,18 +26,27 @@ def check(
     from rcc.analysis import full_check
     from rcc.report import format_check_report
 
-    design = load_or_exit(design_file)
-    report = full_check(design)
-    data = report.to_json()
-    if verify:
-        from rcc.verification import verification_rows
+    from rcc.startup import DcPointError
 
-        output = design.output
-        data["verification"] = verification_rows(
-            design, design.input.line_voltages,
-            [output.load_min, output.load_nominal, output.load_max])
+    design = load_or_exit(design_file)
+    with Status(quiet) as status:
+        status.phase("cycle model, start-up analysis and the engine from power-on")
+        try:
+            report = full_check(design, startup_engine=True)
+        except DcPointError as error:
+            raise fail_input(f"{design_file}: {error}") from None
+        data = report.to_json()
+        if verify:
+            from rcc.verification import verification_rows
+
+            output = design.output
+            status.phase("engine steady state at every point", total=9)
+            data["verification"] = verification_rows(
+                design, design.input.line_voltages,
+                [output.load_min, output.load_nominal, output.load_max],
+                progress=lambda done, total: status.update(done))
     if json_output:
-        typer.echo(json.dumps(data, indent=2))
+        echo_json(data)
     else:
         typer.echo(format_check_report(data))
     raise typer.Exit(EXIT_FINDING_FAILED if report.verdict == "fail" else EXIT_OK)

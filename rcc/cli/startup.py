@@ -3,13 +3,13 @@ time and findings; optionally the symbolic derivation and a loop-gain plot."""
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, fail_input, load_or_exit, \
-    refuse_overwrite
+from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit,
+                     plan_outputs, write_outputs)
+from rcc.cli.outputs import FIGURE_SUFFIXES
 
 
 def _si(value, unit):
@@ -60,15 +60,16 @@ def _text(report, findings) -> str:
     return "\n".join(lines)
 
 
-@app.command()
+@app.command(short_help="Will it start? DC point, poles, start-up voltage and time.")
 def startup(
-    design_file: Path = typer.Argument(..., help="TOML design file."),
+    design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     derivation: bool = typer.Option(False, "--derivation",
-                                    help="Also print the symbolic loop gain and the "
-                                         "start condition, every symbol explained."),
-    latex: bool = typer.Option(False, "--latex",
-                               help="Print the derivation as LaTeX (implies --derivation)."),
+                                    help="Also print the loop gain and the start condition "
+                                         "with the design's numbers, every symbol "
+                                         "explained."),
+    latex: Path = typer.Option(None, "--latex", help="Write the derivation with the "
+                               "design's numbers as a LaTeX document (e.g. startup.tex)."),
     plot: Path = typer.Option(None, "--plot", help="Write a Bode plot of the loop gain "
                                                    "(e.g. loop.png)."),
     force: bool = typer.Option(False, "--force", help="Overwrite the --plot file."),
@@ -81,44 +82,51 @@ def startup(
     from rcc.startup import DcPointError, plot_loop_gain, startup_findings, startup_report
 
     design = load_or_exit(design_file)
-    if plot is not None:
-        refuse_overwrite(plot, force)
-        if not plot.parent.exists():
-            raise fail_input(f"{plot}: folder {plot.parent} does not exist")
-        if plot.suffix.lower() not in (".png", ".pdf", ".svg"):
-            raise fail_input(f"{plot}: expected a .png, .pdf or .svg file name")
+    plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--latex": (latex, (".tex",))}, force)
     try:
         report = startup_report(design)
     except DcPointError as error:
         raise fail_input(f"{design_file}: {error}") from None
     findings = startup_findings(design, report)
-    text = None
-    if derivation or latex:
-        from rcc.startup.symbolic import derivation_text
+    text, writers = None, []
+    if derivation or latex is not None:
+        import shutil
 
-        text = derivation_text(latex=latex)
+        from rcc.startup.worked_derivation import (derivation_text, latex_document,
+                                                   worked_derivation)
+
+        worked = worked_derivation(design, report.result)
+        if derivation:
+            text = derivation_text(worked, width=shutil.get_terminal_size((92, 24)).columns)
+        if latex is not None:
+            writers.append(lambda files: files.write_text(latex, latex_document(worked)))
     if plot is not None:
-        import matplotlib
+        def write_plot(files):
+            import matplotlib
 
-        matplotlib.use("Agg")
-        import matplotlib.pyplot as plt
+            matplotlib.use("Agg")
+            import matplotlib.pyplot as plt
 
-        ax = plot_loop_gain(report.result)
-        ax.figure.tight_layout()
-        ax.figure.savefig(plot, dpi=120)
-        plt.close(ax.figure)
+            axes = plot_loop_gain(report.result)
+            figure = axes[0].figure if hasattr(axes, "__len__") else axes.figure
+            figure.savefig(files.path(plot), dpi=120)
+            plt.close(figure)
+
+        writers.append(write_plot)
+    write_outputs(writers)
     if json_output:
         data = {"design": report.title, "startup": report.to_json(),
                 "findings": [f.to_json() for f in findings]}
         if text is not None:
             data["derivation"] = text
-        typer.echo(json.dumps(data, indent=2))
+        echo_json(data)
     else:
         if text is not None:
             typer.echo(text)
             typer.echo("")
         typer.echo(_text(report, findings))
-        if plot is not None:
-            typer.echo(f"wrote {plot}")
+        for path in (plot, latex):
+            if path is not None:
+                typer.echo(f"wrote {path}")
     failed = any(f.severity == "fail" for f in findings)
     raise typer.Exit(EXIT_FINDING_FAILED if failed else EXIT_OK)

@@ -9,118 +9,243 @@ from typing import Optional
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, app, fail_input, load_or_exit, refuse_overwrite
-from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option, time_option
+from rcc.cli import (EXIT_FINDING_FAILED, app, fail_input, load_or_exit, plan_outputs,
+                     write_outputs)
+from rcc.cli.outputs import FIGURE_SUFFIXES
+from rcc.cli.progress import QUIET_HELP, Status
+from rcc.cli.options import (HFE_HELP, LINE_HELP, LOAD_HELP, TEMPERATURE_HELP, hfe_option,
+                             line_option, load_option, temperature_option, time_option)
 
 
-@app.command()
+#: A CSV larger than this is announced on stderr before it is written [B].
+LARGE_CSV_BYTES = 20e6
+
+
+@app.command(short_help="Simulate from switch-on (engine): waveforms and summary.")
 def waveforms(
-    design_file: Path = typer.Argument(..., help="TOML design file."),
+    design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
-    time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on."),
+    temperature: Optional[str] = typer.Option(None, "--temperature", help=TEMPERATURE_HELP),
+    hfe: Optional[str] = typer.Option(None, "--hfe", help=HFE_HELP),
+    time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on, "
+                             "with its unit (up to 10s)."),
     from_dc_point: bool = typer.Option(False, "--from-dc-point", help="Start from the DC "
                                        "operating point instead of discharged capacitors."),
-    plot: Optional[Path] = typer.Option(None, "--plot", help="Write stacked waveforms (PNG)."),
+    max_events: int = typer.Option(2_000_000, "--max-events", min=1000, max=100_000_000,
+                                   help="Stop after this many switching events."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Write stacked waveforms "
+                                        "(.png, .pdf or .svg)."),
     csv: Optional[Path] = typer.Option(None, "--csv", help="Write the traces as CSV."),
+    every: int = typer.Option(1, "--every", min=1, help="CSV: keep every N-th sample."),
+    window: Optional[str] = typer.Option(None, "--window", help="CSV: time window "
+                                         "START:STOP, e.g. 15ms:20ms."),
+    signals: Optional[str] = typer.Option(None, "--signals", help="CSV: comma-separated "
+                                          "signal names (and 'states' for the state "
+                                          "vector). Default: all."),
     force: bool = typer.Option(False, "--force", help="Overwrite existing output files."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Simulate the supply from switch-on: collector voltage, primary, base and
     limiter currents, feedback winding and output voltage.
 
-    Exit code 0 when the run completes, 1 when the engine stops on an event
-    storm or an inconsistent circuit, 2 on bad input.
+    The bus is held at its no-load value (the rectified peak for AC input).
+    Exit code 0 when the supply runs, 1 when it does not oscillate or locks up
+    or the engine stops (event storm, inconsistent circuit, --max-events
+    reached), 2 on bad input.
     """
     design = load_or_exit(design_file)
-    from rcc.cycle import reference_temperature
     from rcc.mains import bus_voltage as no_load_bus
 
     try:
         line_voltage = line_option(design, line)
         load_value = load_option(design, load)
         duration = time_option(time)
+        temperature_value = temperature_option(design, temperature)
+        gain = hfe_option(design, hfe)
+        csv_window = _window_option(window, duration)
+        csv_signals = _signals_option(signals)
     except ValueError as error:
         raise fail_input(str(error)) from None
+    plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--csv": (csv, None)}, force)
     # the bus is held at its no-load value: the rectified peak for AC input
     bus_voltage = float(no_load_bus(design, line_voltage))
-    if bus_voltage <= 0:
-        raise fail_input(f"--line {line!r}: the bus would be {bus_voltage:.3g} V after the "
-                         "bridge drop; expected a higher line voltage")
-    if plot is not None and plot.suffix.lower() != ".png":
-        raise fail_input(f"--plot {str(plot)!r}: expected a .png file name")
-    refuse_overwrite(plot, force)
-    refuse_overwrite(csv, force)
     from rcc.engine import EngineError, build_circuit, dc_initial_state, simulate
 
-    temperature = reference_temperature(design)
-    circuit = build_circuit(design, bus_voltage, load_value, temperature)
+    circuit = build_circuit(design, bus_voltage, load_value, temperature_value, gain)
     try:
         x0 = dc_initial_state(circuit, from_dc_point=from_dc_point)
-        trace = _run_with_progress(circuit, x0, duration, simulate)
+        with Status(quiet) as status:
+            status.phase(f"simulating {duration * 1e3:g} ms", total=duration)
+            trace = simulate(circuit, x0, duration, max_step=duration / 20000.0,
+                             max_events=max_events,
+                             progress=(lambda t, t_end: status.update(t))
+                             if status.enabled else None)
     except EngineError as error:
-        typer.echo(f"{design.title}\nengine stopped: {error}")
+        reason = str(error).replace("raise max_events", "raise --max-events")
+        typer.echo(f"{design.title}\nengine stopped: {reason}")
         raise typer.Exit(EXIT_FINDING_FAILED) from None
+    operation = operation_of(trace, design.output.voltage_target)
     typer.echo(format_summary(design.title, line_voltage, bus_voltage, load_value,
-                              temperature, trace))
+                              temperature_value, gain, trace, design.input.is_ac, operation))
+    writers = []
     if csv is not None:
-        from rcc.engine.plotting import write_csv
+        from rcc.engine.plotting import csv_size, write_csv
 
-        write_csv(trace, csv)
+        try:
+            size = csv_size(trace, csv_signals, every, csv_window)
+        except ValueError as error:
+            raise fail_input(f"--signals {signals!r}: {error}") from None
+        if size > LARGE_CSV_BYTES:
+            typer.echo(f"writing about {size / 1e6:.0f} MB to {csv} (reduce with --every, "
+                       "--window or --signals)", err=True)
+        writers.append(lambda files: write_csv(trace, files.path(csv), csv_signals, every,
+                                               csv_window))
     if plot is not None:
-        import matplotlib.pyplot as plt
+        def write_plot(files):
+            import matplotlib.pyplot as plt
 
-        from rcc.engine.plotting import plot_waveforms
+            from rcc.engine.plotting import plot_waveforms
 
-        axes = plot_waveforms(trace, title=design.title)
-        axes[0, 0].figure.savefig(plot, dpi=110)
-        plt.close(axes[0, 0].figure)
+            bus_text = (f"bus held at {bus_voltage:.4g} V (rectified peak of {line_voltage:.4g} V "
+                        "RMS)" if design.input.is_ac else f"bus {bus_voltage:.4g} V DC")
+            axes = plot_waveforms(trace, title=f"{design.title}\n{bus_text}, load "
+                                              f"{load_value.text()}")
+            axes[0, 0].figure.savefig(files.path(plot), dpi=110)
+            plt.close(axes[0, 0].figure)
 
-
-def _run_with_progress(circuit, x0, duration, simulate):
-    """Run the engine with a progress bar on stderr for long runs."""
-    max_step = duration / 20000.0
-    if duration < 5e-3:
-        return simulate(circuit, x0, duration, max_step=max_step)
-    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
-
-    with Progress(TextColumn("simulating"), BarColumn(), TextColumn("{task.percentage:>3.0f} %"),
-                  TimeElapsedColumn(), transient=True,
-                  console=_stderr_console()) as progress:
-        task = progress.add_task("run", total=duration)
-
-        def report(t, t_end):
-            progress.update(task, completed=t)
-
-        return simulate(circuit, x0, duration, max_step=max_step, progress=report)
+        writers.append(write_plot)
+    write_outputs(writers)
+    if operation["kind"] in NOT_RUNNING:
+        raise typer.Exit(EXIT_FINDING_FAILED)
 
 
-def _stderr_console():
-    from rich.console import Console
+def _window_option(text, duration):
+    """``--window START:STOP`` [s] inside the run."""
+    if text is None:
+        return None
+    from rcc.sweep import parse_range
 
-    return Console(stderr=True)
+    parts = text.split(":")
+    if len(parts) != 2:
+        raise ValueError(f"--window {text!r}: expected START:STOP with units, e.g. 15ms:20ms")
+    start, stop = (float(parse_range(part, "time", "--window")[0]) for part in parts)
+    if not 0 <= start < stop:
+        raise ValueError(f"--window {text!r}: expected 0 <= START < STOP")
+    if start >= duration:
+        raise ValueError(f"--window {text!r}: starts after the end of the run "
+                         f"({duration * 1e3:g} ms)")
+    return start, stop
 
 
-def format_summary(title, line_voltage, bus_voltage, load, temperature, trace) -> str:
+def _signals_option(text):
+    if text is None:
+        return None
+    from rcc.engine import SIGNAL_NAMES
+
+    names = [name.strip() for name in text.split(",") if name.strip()]
+    valid = list(SIGNAL_NAMES) + ["states"]
+    unknown = [name for name in names if name not in valid]
+    if unknown or not names:
+        raise ValueError(f"--signals {text!r}: expected some of {', '.join(valid)}")
+    return names
+
+
+def operation_of(trace, expected_output=None) -> dict:
+    """Kind of operation of a run over its last quarter, as a JSON-ready dict.
+
+    Uses :func:`rcc.operation.classify_operation` (regular, burst with its period
+    and pulses per burst, irregular, lock-up, none) when that module is
+    installed; otherwise tells only whether the supply oscillates at all.
+    """
+    import numpy as np
+
+    turn_ons = trace.turn_on_times()
+    try:
+        from rcc.operation import classify_operation
+    except ImportError:  # the classifier ships with the population tools
+        if turn_ons.size < 3:
+            return {"kind": "starting" if _rising(trace) else "none",
+                    "output_v": float(np.mean(trace.signals["output_voltage"][
+                        trace.times >= 0.75 * trace.final_time]))}
+        intervals = np.diff(turn_ons[-4:])
+        return {"kind": "oscillating", "frequency_hz": float(1.0 / np.median(intervals))}
+    ends = np.append(turn_ons, trace.final_time)
+    current = trace.signals["primary_current"]
+    peaks = np.array([float(np.max(current[(trace.times >= start) & (trace.times < end)],
+                                   initial=0.0)) for start, end in zip(ends, ends[1:])])
+    output = trace.signals["output_voltage"]
+    operation = classify_operation(turn_ons, peaks, trace.times, output,
+                                   expected_output=expected_output,
+                                   end_time=trace.final_time).to_json()
+    if operation["kind"] in NOT_RUNNING and _rising(trace):
+        operation["kind"] = "starting"  # a run too short to tell
+    return operation
+
+
+def _rising(trace) -> bool:
+    """Whether the output is still rising at the end of a run: its mean over the
+    last quarter exceeds the quarter before by :data:`RISING` (and 1 mV)."""
+    import numpy as np
+
+    output, times = trace.signals["output_voltage"], trace.times
+    quarter = trace.final_time / 4.0
+    last = output[times >= 3 * quarter]
+    before = output[(times >= 2 * quarter) & (times < 3 * quarter)]
+    return bool(before.size and last.size and np.mean(last) > 1e-3 and
+                np.mean(last) > RISING * np.mean(before))
+
+
+#: Output still rising when its mean over the last quarter of the run exceeds the
+#: quarter before by this factor: the supply is still starting, not locked up [1].
+RISING = 1.05
+#: Kinds of operation after which ``waveforms`` exits with 1.
+NOT_RUNNING = ("none", "lockup")
+
+
+def _operation_text(operation: dict) -> str:
+    kind = operation["kind"]
+    if kind == "none":
+        return "NO OSCILLATION (fewer than 3 turn-ons)"
+    if kind == "lockup":
+        return (f"LOCK-UP: switching far below the regulated output (mean "
+                f"{operation['output_v']:.3g} V over the last quarter)")
+    if kind == "starting":
+        return (f"still starting up at the end of the run (output {operation['output_v']:.3g} "
+                "V over the last quarter and rising): run longer with --time")
+    frequency = f"{operation['frequency_hz'] / 1e3:.4g} kHz"
+    if kind == "burst":
+        return (f"burst: {operation['pulses_per_burst']:.3g} pulses every "
+                f"{operation['burst_period_s'] * 1e3:.3g} ms (mean {frequency}; pulses "
+                f"{1e-3 / operation['pulse_interval_s']:.4g} kHz apart)")
+    if kind == "regular":
+        return f"regular at {frequency} over the last quarter of the run"
+    if kind == "irregular":
+        return (f"irregular (intervals spread {operation['interval_spread']:.0%}, mean "
+                f"{frequency})")
+    return f"oscillating, last cycles at {frequency}"
+
+
+def format_summary(title, line_voltage, bus_voltage, load, temperature, hfe, trace,
+                   is_ac=True, operation=None) -> str:
     """Plain-text summary of a run."""
     import numpy as np
 
     turn_ons = trace.turn_on_times()
     out = trace.signals["output_voltage"]
+    operation = operation or operation_of(trace)
     rows = [
-        ("line / bus", f"{line_voltage:.4g} V / {bus_voltage:.4g} V"),
+        ("line / bus", f"{line_voltage:.4g} V / {bus_voltage:.4g} V "
+                       + ("(held at the rectified peak: no bulk ripple)" if is_ac
+                          else "(DC input)")),
         ("load", load.text()),
-        ("temperature", f"{temperature - 273.15:.3g} degC"),
+        ("temperature / hFE", f"{temperature - 273.15:.3g} degC / {hfe:.3g} at 25 degC"),
         ("simulated", f"{trace.final_time * 1e3:.4g} ms, {len(trace.event_times)} switching "
                       f"events, {len(turn_ons)} switch turn-ons"),
+        ("operation", _operation_text(operation)),
         ("output at end", f"{out[-1]:.4g} V"),
         ("collector peak", f"{np.max(trace.signals['collector_voltage']):.4g} V"),
         ("primary peak", f"{np.max(trace.signals['primary_current']) * 1e3:.4g} mA"),
     ]
-    if len(turn_ons) >= 4:
-        periods = np.diff(turn_ons[-4:])
-        rows.append(("last cycles", f"{1e-3 / periods.mean():.4g} kHz "
-                                    f"(period {periods.mean() * 1e6:.4g} us)"))
-    else:
-        rows.append(("last cycles", "fewer than 4 turn-ons: not oscillating steadily"))
     width = max(len(name) for name, _ in rows)
     return "\n".join([title] + [f"  {name:<{width}}  {value}" for name, value in rows])

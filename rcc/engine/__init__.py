@@ -12,9 +12,14 @@ needs (segment transition matrices, saltation matrices, monodromy);
 element.
 """
 
-from rcc.engine.circuit import (SIGNAL_NAMES, SWITCH_STATES, Circuit, EngineError, Topology,
-                                build_circuit)
-from rcc.engine.simulate import (CyclePower, CycleResult, EventData, Segment, Trace,
+from rcc._numba_cache import configure as _configure_numba_cache
+
+_configure_numba_cache()  # per-user kernel cache, damaged files dropped (before numba loads)
+
+from rcc.engine.circuit import (SIGNAL_NAMES, SWITCH_STATES, Circuit,  # noqa: E402
+                                EngineError, Topology, build_circuit)
+from rcc.engine.simulate import (CyclePower, CycleResult, EventData,  # noqa: E402
+                                 Segment, Trace,
                                  advance_cycle, cycle_power, dc_initial_state, power_on_state,
                                  segment_energy, settle_topology, simulate)
 

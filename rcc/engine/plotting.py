@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["WAVEFORM_PANELS", "plot_waveforms", "plot_periodic_steady_state", "zoom_window",
-           "write_csv"]
+__all__ = ["WAVEFORM_PANELS", "CYCLE_PANELS", "cycle_status", "on_time_end", "plot_waveforms", "plot_periodic_steady_state", "zoom_window",
+           "write_csv", "csv_columns", "csv_rows", "csv_size"]
 
 #: Stacked panels: (signal name, axis label, display scale, unit).
 WAVEFORM_PANELS = (
@@ -49,7 +49,7 @@ def zoom_window(trace, cycles: int = 3) -> tuple[float, float]:
 
 
 def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
-    """Stacked waveforms: whole run on the left, a steady-state zoom on the right.
+    """Stacked waveforms: whole run on the left, the last cycles on the right.
 
     Parameters
     ----------
@@ -91,7 +91,8 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
     axes[-1, 0].set_xlabel(f"time [{unit_t}] (start-up)")
     axes[-1, 1].set_xlabel(f"time [{zunit_t}] (last {cycles} cycles)")
     axes[0, 0].set_title("whole run")
-    axes[0, 1].set_title("steady-state zoom")
+    axes[0, 1].set_title(f"last {cycles} turn-ons" if len(trace.turn_on_times()) > cycles
+                         else "end of the run (too few turn-ons for cycles)")
     if title:
         fig.suptitle(title)
     fig.tight_layout()
@@ -106,22 +107,111 @@ def _time_scale(span: float) -> tuple[float, str]:
     return 1e6, "us"
 
 
-def write_csv(trace, path) -> None:
-    """Write time, the named signals and the state vector as CSV.
+#: Bytes per CSV cell written with ``%.10g`` and a comma, on average [B].
+CSV_CELL_BYTES = 15
+
+
+def csv_columns(trace, signals=None) -> list[str]:
+    """Names of the signals (and states) a CSV of ``trace`` would hold.
+
+    Parameters
+    ----------
+    trace : Trace
+    signals : sequence of str, optional
+        Signal names of ``trace.signals`` and/or ``"states"`` (the whole state
+        vector); default every signal and the states.
+
+    Returns
+    -------
+    list of str
+
+    Raises
+    ------
+    ValueError
+        An unknown name; the message lists the valid ones.
+    """
+    valid = list(trace.signals) + ["states"]
+    if signals is None:
+        return valid
+    unknown = [name for name in signals if name not in valid]
+    if unknown:
+        raise ValueError(f"unknown signal {unknown[0]!r}; expected some of "
+                         + ", ".join(valid))
+    return list(dict.fromkeys(signals))
+
+
+def csv_rows(trace, every: int = 1, window=None) -> np.ndarray:
+    """Sample indices a CSV keeps.
+
+    Parameters
+    ----------
+    trace : Trace
+    every : int
+        Keep every ``every``-th sample [1].
+    window : (float, float), optional
+        Time window to keep [s].
+
+    Returns
+    -------
+    ndarray of int
+        Indices into ``trace.times`` [1].
+    """
+    index = np.arange(trace.times.size)
+    if window is not None:
+        start, end = window
+        index = index[(trace.times >= start) & (trace.times <= end)]
+    return index[::max(int(every), 1)]
+
+
+def csv_size(trace, signals=None, every: int = 1, window=None) -> int:
+    """Estimated size of the CSV file.
+
+    Parameters
+    ----------
+    trace : Trace
+    signals : sequence of str, optional
+        See :func:`csv_columns`.
+    every : int
+        Keep every ``every``-th sample [1].
+    window : (float, float), optional
+        Time window to keep [s].
+
+    Returns
+    -------
+    int
+        Size [B], at :data:`CSV_CELL_BYTES` per value.
+    """
+    columns = csv_columns(trace, signals)
+    width = 1 + sum(len(trace.state_names) if c == "states" else 1 for c in columns)
+    return int(csv_rows(trace, every, window).size * width * CSV_CELL_BYTES)
+
+
+def write_csv(trace, path, signals=None, every: int = 1, window=None) -> None:
+    """Write time, the chosen signals and (optionally) the state vector as CSV.
 
     Parameters
     ----------
     trace : Trace
     path : str or Path
         Output file (overwritten; the caller checks for existing files).
+    signals : sequence of str, optional
+        See :func:`csv_columns`; default all signals and the states.
+    every : int
+        Keep every ``every``-th sample [1] (events appear as two samples).
+    window : (float, float), optional
+        Time window to keep [s].
     """
-    names = list(trace.signals)
-    columns = [trace.times] + [trace.signals[n] for n in names] + list(trace.states.T)
-    header = ["time_s"] + [f"{n}_{_unit(n)}" for n in names] + [
-        f"state_{s}" for s in trace.state_names]
-    data = np.column_stack(columns)
-    np.savetxt(path, data, delimiter=",", header=",".join(header), comments="",
-               fmt="%.10g")
+    rows = csv_rows(trace, every, window)
+    columns, header = [trace.times[rows]], ["time_s"]
+    for name in csv_columns(trace, signals):
+        if name == "states":
+            columns += list(trace.states[rows].T)
+            header += [f"state_{state}" for state in trace.state_names]
+        else:
+            columns.append(trace.signals[name][rows])
+            header.append(f"{name}_{_unit(name)}")
+    np.savetxt(path, np.column_stack(columns), delimiter=",", header=",".join(header),
+               comments="", fmt="%.10g")
 
 
 def _unit(name: str) -> str:
@@ -130,22 +220,80 @@ def _unit(name: str) -> str:
     return "A"
 
 
-def plot_periodic_steady_state(result, axes=None):
+#: Panels of one steady-state period: the run's panels with the secondary and
+#: clamp currents before the output voltage.
+CYCLE_PANELS = WAVEFORM_PANELS[:5] + (
+    ("output_rectifier_current", "secondary", 1.0, "A"),
+    ("clamp_current", "clamp", 1e3, "mA"),
+) + WAVEFORM_PANELS[5:]
+
+
+def cycle_status(result) -> str:
+    """What the plotted period is, in words an engineer acts on.
+
+    Parameters
+    ----------
+    result : PeriodicSteadyState
+        Its ``converged`` and ``stable`` flags are used.
+
+    Returns
+    -------
+    str
+    """
+    if not result.converged:
+        return "NOT CONVERGED: last cycle of a long transient (may not be periodic)"
+    if not result.stable:
+        return "periodic but UNSTABLE: the supply does not stay on this cycle"
+    return "periodic steady state, stable"
+
+
+def on_time_end(result) -> tuple[float, str]:
+    """When the on-time ended and what ended it (display only).
+
+    Parameters
+    ----------
+    result : PeriodicSteadyState
+        The cycle; its waveform, on-time and peak current are used.
+
+    Returns
+    -------
+    (float, str)
+        Instant of the peak primary current within the on-time, where the switch
+        leaves saturation [s], and ``"limiter"`` if the limiter transistor
+        conducts then (current limit or regulation), else ``"base drive"``.
+    """
+    wave = result.waveform
+    inside = np.flatnonzero(wave.time <= result.on_time)
+    if inside.size == 0:
+        return float(result.on_time), "base drive"
+    index = int(inside[np.argmax(wave.primary_current[inside])])
+    limiter = float(wave.limiter_current[index])
+    return float(wave.time[index]), ("limiter" if limiter > 0.01 * max(
+        float(wave.primary_current[index]), 1e-12) else "base drive")
+
+
+def plot_periodic_steady_state(result, axes=None, rating=None):
     """Stacked plots of one steady-state period.
 
     Parameters
     ----------
     result : PeriodicSteadyState
         From :func:`rcc.engine.pss.periodic_steady_state`.
-    axes : sequence of 6 matplotlib Axes, optional
-        Where to draw; default a new figure with six stacked axes.
+    axes : sequence of 8 matplotlib Axes, optional
+        Where to draw; default a new figure with eight stacked axes.
+    rating : (float, str), optional
+        Allowed collector voltage [V] and its label (e.g. ``"80 % of VCEV"``),
+        drawn as a red line on the collector panel.
 
     Returns
     -------
     list of matplotlib Axes
-        Collector voltage [V], primary current [mA], base current [mA],
-        limiter current [mA], feedback winding voltage [V] and output
-        voltage [V] against time in [us].
+        Collector voltage [V], primary current [mA], base current [mA], limiter
+        current [mA], feedback winding voltage [V], secondary (output rectifier)
+        current [A], clamp current [mA] and output voltage [V] against time in
+        [us]; a dashed line where the on-time ended (the switch leaves saturation
+        at the peak primary current), labelled with what ended it.
+        The title says whether the period is a stable steady state.
     """
     import matplotlib
 
@@ -154,18 +302,31 @@ def plot_periodic_steady_state(result, axes=None):
 
     wave = result.waveform
     if axes is None:
-        figure, axes = plt.subplots(len(WAVEFORM_PANELS), 1, sharex=True, figsize=(8, 10))
+        figure, axes = plt.subplots(len(CYCLE_PANELS), 1, sharex=True, figsize=(8, 12))
     axes = list(axes)
     time_us = wave.time * 1e6
-    for ax, (name, label, scale, unit) in zip(axes, WAVEFORM_PANELS):
+    end, reason = on_time_end(result)
+    for ax, (name, label, scale, unit) in zip(axes, CYCLE_PANELS):
         ax.plot(time_us, getattr(wave, name) * scale, linewidth=0.9)
         ax.set_ylabel(f"{label} [{unit}]")
         ax.grid(True, alpha=0.3)
+        ax.axvline(end * 1e6, color="0.4", ls="--", lw=0.8)
+    axes[1].annotate(f"on-time ends: {reason}", (end * 1e6, 0.9),
+                     xycoords=("data", "axes fraction"), xytext=(-4, 0),
+                     textcoords="offset points", fontsize=8, color="0.3", ha="right",
+                     va="top")
+    if rating is not None:
+        volts, text = rating
+        axes[0].axhline(volts, color="tab:red", lw=1.0)
+        axes[0].annotate(text, (0.0, volts), xycoords=("axes fraction", "data"),
+                         xytext=(4, -3), textcoords="offset points", ha="left", va="top",
+                         fontsize=8, color="tab:red")
+        low, high = axes[0].get_ylim()
+        axes[0].set_ylim(low, max(high, 1.05 * volts))
     axes[-1].set_xlabel("time from turn-on [us]")
-    status = "stable" if result.stable else "UNSTABLE"
     axes[0].set_title(
-        f"periodic steady state: {result.frequency / 1e3:.4g} kHz, "
+        f"{cycle_status(result)}\n{result.frequency / 1e3:.4g} kHz, "
         f"{result.output_voltage:.4g} V out, bus {result.bus_voltage:.4g} V, "
-        f"load {result.load.text()} ({result.method}, {status})", fontsize=9)
+        f"load {result.load.text()} ({result.method})", fontsize=9)
     axes[0].figure.tight_layout()
     return axes

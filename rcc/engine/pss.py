@@ -82,7 +82,8 @@ __all__ = [
 
 #: Signals kept in the one-period waveform of a :class:`PeriodicSteadyState`.
 WAVEFORM_SIGNALS = ("collector_voltage", "primary_current", "base_current",
-                    "limiter_current", "feedback_voltage", "output_voltage")
+                    "limiter_current", "feedback_voltage", "output_voltage",
+                    "output_rectifier_current", "clamp_current")
 #: Samples per period of the stored waveform (at least, events added) [1].
 WAVEFORM_SAMPLES = 2000
 #: Switching cycles of the warm-up transient before Newton's method [1].
@@ -117,6 +118,10 @@ class CycleWaveform:
         Feedback winding voltage [V].
     output_voltage : ndarray
         Output voltage at the load [V].
+    output_rectifier_current : ndarray
+        Output rectifier (secondary) current [A].
+    clamp_current : ndarray
+        Clamp current [A] (zero without a clamp).
     """
 
     time: np.ndarray
@@ -126,6 +131,8 @@ class CycleWaveform:
     limiter_current: np.ndarray
     feedback_voltage: np.ndarray
     output_voltage: np.ndarray
+    output_rectifier_current: np.ndarray
+    clamp_current: np.ndarray
 
 
 @dataclass(frozen=True)

@@ -677,7 +677,7 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
                 f"The feedback winding is connected degeneratively: it opposes any rise "
                 f"of the collector current, so the circuit cannot start ({where}; "
                 f"slowest mode decays at {-r.growth_rate:.3g} 1/s).",
-                value=r.growth_rate, limit=0.0, unit="1/s",
+                value=r.growth_rate, limit=0.0, unit="1/s", bound="lower",
                 advice=_ADVICE["feedback-phase"]))
         elif element == "limiter":
             trip = design.limiter.vbe / design.limiter.sense_resistance
@@ -686,15 +686,16 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
                 f"The current-limit transistor holds a stable DC point with "
                 f"{r.dc.collector_current:.3g} A in the switch ({where}); all poles "
                 f"are in the left half-plane, so it never starts switching.",
-                value=r.dc.collector_current, limit=trip, unit="A",
+                value=r.dc.collector_current, limit=trip, unit="A", bound="",
                 advice=_ADVICE["limiter"]))
         else:
+            bound = "upper"  # the lowest bus that starts must not exceed the lowest bus
             if report.min_start_bus_voltage is not None:
                 value, limit, unit = report.min_start_bus_voltage, r.bus_voltage, "V"
                 extra = (f" It starts only above {report.min_start_bus_voltage:.4g} V "
                          f"bus.")
             else:
-                value, limit, unit = r.growth_rate, 0.0, "1/s"
+                value, limit, unit, bound = r.growth_rate, 0.0, "1/s", "lower"
                 extra = " It does not start at any bus voltage of the design."
             cause = ("the base is starved of start-up current"
                      if element == "startup-resistor"
@@ -703,7 +704,7 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
                 "no-start", "fail",
                 f"No start {where}: all poles are in the left half-plane because "
                 f"{cause} (DC collector current {r.dc.collector_current:.3g} A)."
-                + extra, value=value, limit=limit, unit=unit,
+                + extra, value=value, limit=limit, unit=unit, bound=bound,
                 advice=_ADVICE[element]))
         return findings
     drive = report.drive
@@ -713,8 +714,10 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
             f"At {drive.bus_voltage:.4g} V bus, {drive.temperature - 273.15:.3g} degC and "
             f"hFE(25 degC) {drive.hfe:.3g} the base current at the end of the on-time "
             f"({drive.base_current_end:.3g} A) cannot hold {drive.peak_current:.3g} A "
-            f"in saturation (needs {drive.base_current_needed:.3g} A).",
-            value=drive.base_current_end, limit=drive.base_current_needed, unit="A",
+            f"in saturation (needs {drive.base_current_needed:.3g} A): drive margin "
+            f"hFE*Ib/Ic = {drive.base_current_end / drive.base_current_needed:.2f}.",
+            value=drive.base_current_end / drive.base_current_needed, limit=1.0, unit="",
+            bound="lower",
             advice="Lower the drive resistor, add feedback turns, enlarge the drive "
                    "capacitor or use a switch with more gain."))
     if drive is not None and drive.hiccup:
@@ -725,7 +728,7 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
             f"base-emitter on-voltage, so the start-up resistor has to restart the "
             f"switch each time ({drive.bus_voltage:.4g} V bus, "
             f"{drive.temperature - 273.15:.3g} degC); the supply runs in bursts.",
-            value=drive.restart_margin, limit=0.0, unit="V",
+            value=drive.restart_margin, limit=0.0, unit="V", bound="lower",
             advice="Give the drive capacitor a discharge path during the off-time (a "
                    "lower base-emitter resistor), enlarge it, or add feedback turns."))
     if report.start_time is not None and \

@@ -1,0 +1,74 @@
+"""Progress of long commands on stderr: a spinner with the phase, and a bar
+when the amount of work is known.
+
+Shown only when both stdout and stderr are terminals and ``--quiet`` is not
+given, so piped or redirected output, CI logs and tests stay clean.  The
+display is transient: it disappears when the phase ends.
+"""
+
+from __future__ import annotations
+
+import sys
+
+__all__ = ["Status", "QUIET_HELP"]
+
+QUIET_HELP = "No progress display on stderr (it is also off when output is not a terminal)."
+
+
+def _interactive() -> bool:
+    try:
+        return sys.stdout.isatty() and sys.stderr.isatty()
+    except (AttributeError, ValueError):  # replaced or closed streams
+        return False
+
+
+class Status:
+    """Context manager showing what a long command is doing.
+
+    Parameters
+    ----------
+    quiet : bool
+        Show nothing.
+
+    Examples
+    --------
+    >>> with Status(quiet=True) as status:
+    ...     status.phase("simulating", total=2.0)
+    ...     status.update(1.0)
+    """
+
+    def __init__(self, quiet: bool = False):
+        self.enabled = not quiet and _interactive()
+        self._progress = None
+        self._task = None
+
+    def __enter__(self) -> "Status":
+        if self.enabled:
+            from rich.console import Console
+            from rich.progress import (BarColumn, Progress, SpinnerColumn, TextColumn,
+                                       TimeElapsedColumn)
+
+            self._progress = Progress(SpinnerColumn(), TextColumn("{task.description}"),
+                                      BarColumn(), TextColumn("{task.percentage:>3.0f} %"),
+                                      TimeElapsedColumn(), transient=True,
+                                      console=Console(stderr=True, force_terminal=True))
+            self._progress.__enter__()
+        return self
+
+    def phase(self, description: str, total: float | None = None) -> None:
+        """Start a phase; ``total`` known amount of work, ``None`` for a spinner."""
+        if self._progress is None:
+            return
+        if self._task is not None:
+            self._progress.remove_task(self._task)
+        self._task = self._progress.add_task(description, total=total)
+
+    def update(self, completed: float) -> None:
+        """Work done so far in the current phase (same unit as ``total``)."""
+        if self._progress is not None and self._task is not None:
+            self._progress.update(self._task, completed=completed)
+
+    def __exit__(self, kind, error, trace) -> bool:
+        if self._progress is not None:
+            self._progress.__exit__(kind, error, trace)
+        return False
