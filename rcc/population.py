@@ -336,6 +336,7 @@ def _preferred(value: float, series, how: str = "nearest") -> float:
     """Round to a preferred-number series (E6/E12/E24) over all decades."""
     decade = 10.0 ** math.floor(math.log10(value))
     candidates = [d * m for d in (decade / 10, decade, decade * 10) for m in series]
+    candidates = [float(f"{c:.3g}") for c in candidates]     # no binary noise
     if how == "up":
         return min(c for c in candidates if c >= value * (1 - 1e-12))
     if how == "down":

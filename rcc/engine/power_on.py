@@ -138,6 +138,11 @@ class PowerOnRun:
         Centres of the output bins [s].
     output : ndarray
         Bin-averaged output voltage [V].
+    final_state : ndarray
+        Engine state at the end (order of ``state_names``; empty if failed)
+        [state units].
+    state_names : tuple of str
+        Names of the engine's state variables.
     """
 
     kind: str
@@ -164,6 +169,8 @@ class PowerOnRun:
     peak_currents: np.ndarray = field(default_factory=lambda: np.empty(0), repr=False)
     time: np.ndarray = field(default_factory=lambda: np.empty(0), repr=False)
     output: np.ndarray = field(default_factory=lambda: np.empty(0), repr=False)
+    final_state: np.ndarray = field(default_factory=lambda: np.empty(0), repr=False)
+    state_names: tuple = ()
 
     def to_json(self) -> dict:
         """JSON-ready summary (SI units; no arrays, no NaN)."""
@@ -367,7 +374,9 @@ def run_from_power_on(design: Design, line_voltage: float, load, *, temperature=
                       time_to_regulation=to_regulation, settled=settled, operation=operation,
                       duration=t, events=record.events,
                       wall_time=_clock.perf_counter() - started, turn_on_times=turn_ons,
-                      peak_currents=peaks, time=times, output=output, **common)
+                      peak_currents=peaks, time=times, output=output,
+                      final_state=np.array(x, dtype=float), state_names=circuit.state_names,
+                      **common)
 
 
 class _Record:
