@@ -17,8 +17,9 @@ through
   from the engine's settled state (capacitors, inductor currents; the
   reference's own node voltages at rest) and run for
   :data:`REFERENCE_CYCLES` engine periods (at least three burst periods for
-  a burst), between :data:`REFERENCE_MIN` and :data:`REFERENCE_MAX`; its
-  second half is classified.  The reference thus checks that the engine's
+  a burst), between :data:`REFERENCE_MIN` and :data:`REFERENCE_MAX`
+  (:data:`LOCKUP_PULSES` engine pulses up to :data:`LOCKUP_MAX` at a lock-up
+  or no oscillation); its second half is classified.  The reference thus checks that the engine's
   settled orbit is the reference's (it is not an independent power-on: a
   full power-on with the smooth solver costs minutes per millisecond).
 
@@ -73,6 +74,9 @@ CYCLE_TOLERANCE = {"frequency": 0.10, "peak_current": 0.10, "output_voltage": 0.
 REFERENCE_CYCLES = 40
 REFERENCE_MIN = 0.3e-3
 REFERENCE_MAX = 3e-3
+#: Reference run at a lock-up: engine pulses, and its longest duration [s].
+LOCKUP_PULSES = 4
+LOCKUP_MAX = 50e-3
 #: Temperature of every point [K] (25 degC).
 TEMPERATURE = 298.15
 #: Engine state names carried into the reference (engine name -> reference name).
@@ -156,6 +160,10 @@ def reference_point(task) -> dict:
     if engine["kind"] == "burst":
         duration = max(duration, 3.0 * engine["burst_period_s"])
     duration = float(np.clip(duration, REFERENCE_MIN, REFERENCE_MAX))
+    if engine["kind"] in ("lockup", "none"):
+        # a lock-up pulses every few ms and idles in between (cheap for the
+        # solver): long enough for LOCKUP_PULSES of the engine's pulses
+        duration = float(np.clip(LOCKUP_PULSES * period, REFERENCE_MAX, LOCKUP_MAX))
     initial = {SHARED_STATES[name]: value for name, value in record["engine_state"].items()
                if name in SHARED_STATES}
     started = time.process_time()
@@ -199,15 +207,18 @@ def within(model: dict, truth: dict, tolerance: dict) -> bool:
                for name, key in pairs.items())
 
 
-def choose_reference(records: list[dict], count: int) -> list[int]:
+def choose_reference(records: list[dict], count: int, seed: int) -> list[int]:
     """Indices of the points for the reference: round-robin over families
-    (regulation, clamp, input, engine kind) in sorted order, points in
+    (regulation, clamp, input, engine kind) in an order shuffled with
+    ``seed`` (so that a few points spread over all families), points in
     population order inside a family; failed engine runs are skipped."""
     groups = defaultdict(list)
     for k, record in enumerate(records):
         if record["engine"]["kind"] != "failed":
             groups[_family_key(record)].append(k)
-    chosen, keys = [], sorted(groups)
+    keys = sorted(groups)
+    order = np.random.default_rng(seed).permutation(len(keys))
+    chosen, keys = [], [keys[i] for i in order]
     while len(chosen) < count and any(groups[key] for key in keys):
         for key in keys:
             if groups[key] and len(chosen) < count:
@@ -290,7 +301,7 @@ def run(designs: int, seed: int, reference_points: int, workers: int):
     with context.Pool(workers) as pool:
         records = list(pool.imap(model_point, tasks, chunksize=1))
         model_seconds = time.perf_counter() - started
-        chosen = choose_reference(records, reference_points)
+        chosen = choose_reference(records, reference_points, seed)
         references = list(pool.imap(reference_point, [records[k] for k in chosen],
                                      chunksize=1))
     for k, reference in zip(chosen, references):
