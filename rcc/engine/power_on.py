@@ -341,7 +341,7 @@ def run_from_power_on(design: Design, line_voltage: float, load, *, temperature=
             x, code, t = trace.final_state, trace.final_topology, trace.final_time
             if t < target * (1.0 - 1e-12):
                 continue
-            settled = record.settled(t, expected)
+            settled = bool(record.settled(t, expected))
             if fixed or settled or t >= limit * (1.0 - 1e-12):
                 break
             target = min(limit, t + 0.5 * planned)
