@@ -40,8 +40,9 @@ share of those points where the cycle model and the engine report the same
 kind (regular / burst / irregular / lock-up / none).  A relative difference
 is taken against the engine (or the reference); two zeros agree.  Before it,
 a table per family (regulation method, clamp, AC/DC input, the engine's
-kind) says where the models disagree.  ``--json`` writes one record per
-point.
+kind) says where the models disagree.  A share with nothing to compare
+(no completed reference point) prints as ``n/a``.  ``--json`` writes one
+record per point.
 """
 
 from __future__ import annotations
@@ -243,7 +244,7 @@ def summarise(records: list[dict]) -> dict:
         if reference is not None and reference["kind"] != "failed":
             record["engine_within_reference"] = within(engine, reference, ENGINE_TOLERANCE)
     with_reference = [r for r in records if "engine_within_reference" in r]
-    share = lambda flags: 100.0 * sum(flags) / len(flags) if flags else 0.0  # noqa: E731
+    share = lambda flags: 100.0 * sum(flags) / len(flags) if flags else None  # noqa: E731
     table = defaultdict(lambda: defaultdict(list))
     for record in compared:
         row = table[_family_key(record)]
@@ -313,6 +314,11 @@ def run(designs: int, seed: int, reference_points: int, workers: int):
     return records, model_seconds, time.perf_counter() - started
 
 
+def _percent(value) -> str:
+    """A share in per cent with one decimal, ``n/a`` with nothing to compare."""
+    return "n/a" if value is None else f"{value:.1f}"
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--designs", type=int, default=100, help="designs (2 points each)")
@@ -340,7 +346,7 @@ def main(argv=None) -> int:
           "output, capped at 999 %; flag: points the cycle model marks startup_lockup):")
     print(format_table(summary))
     print(f"(information: mode agreement with the cycle model's startup_lockup flag read as "
-          f"lock-up: {summary['mode_agreement_flag_as_lockup']:.1f} %)")
+          f"lock-up: {_percent(summary['mode_agreement_flag_as_lockup'])} %)")
     if args.json is not None:
         with open(args.json, "w", encoding="utf-8") as handle:
             json.dump({"designs": args.designs, "seed": args.seed,
@@ -348,9 +354,9 @@ def main(argv=None) -> int:
                        "summary": {k: v for k, v in summary.items() if k != "table"},
                        "points": records}, handle, indent=1, default=str)
     print(f"points={summary['points']} reference_points={summary['reference_points']} "
-          f"engine_vs_reference={summary['engine_vs_reference']:.1f} "
-          f"cycle_vs_engine={summary['cycle_vs_engine']:.1f} "
-          f"mode_agreement={summary['mode_agreement']:.1f}")
+          f"engine_vs_reference={_percent(summary['engine_vs_reference'])} "
+          f"cycle_vs_engine={_percent(summary['cycle_vs_engine'])} "
+          f"mode_agreement={_percent(summary['mode_agreement'])}")
     return 0
 
 
