@@ -37,7 +37,8 @@ def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
     report = check_design(design)
     startup = startup_report(design)
     findings = ordered_findings(_one_per_code(
-        report.findings + tuple(startup_findings(design, startup)), ("weak-drive",)))
+        report.findings + tuple(startup_findings(design, startup)),
+        ("weak-drive", "startup-lockup")))
     report = replace(report, findings=findings, extra={**report.extra,
                                                        "startup": startup.to_json()})
     if startup_engine:

@@ -51,14 +51,39 @@ def format_points_table(records) -> str:
         The table, values scaled with SI prefixes for reading.
     """
     headers = ["line", "bus", "load", "T", "Vout", "freq", "t_on", "t_off", "duty",
-               "Ipk", "mode", "on ends by", "off ends by"]
-    rows = [[format_si(r["line_v"], "V", 3), format_si(r["bus_v"], "V", 3),
-             format_si(r["load_a"], "A", 3), f"{r['temperature_c']:.0f} degC",
-             format_si(r["output_v"], "V", 4), format_si(r["frequency_hz"], "Hz", 3),
-             format_si(r["on_time_s"], "s", 3), format_si(r["off_time_s"], "s", 3),
-             f"{r['duty']:.3f}", format_si(r["peak_current_a"], "A", 3), r["mode"],
-             r["on_end"], r["off_end"]] for r in records]
-    return format_table(headers, rows)
+               "Ipk", "mode", "on ends by", "off ends by", "source"]
+    rows = []
+    doubts = set()
+    for r in records:
+        doubt = r.get("doubt", "")
+        source = r.get("source", "cycle-model")
+        if doubt.startswith("invariant"):
+            # a point that breaks a physical invariant is never printed as numbers
+            rows.append([format_si(r["line_v"], "V", 3), "-", format_si(r["load_a"], "A", 3),
+                         f"{r['temperature_c']:.0f} degC"] + ["-"] * 9
+                        + [f"refused ({doubt})"])
+            doubts.add(doubt)
+            continue
+        if doubt:
+            doubts.add(doubt)
+        rows.append([format_si(r["line_v"], "V", 3), format_si(r["bus_v"], "V", 3),
+                     format_si(r["load_a"], "A", 3), f"{r['temperature_c']:.0f} degC",
+                     format_si(r["output_v"], "V", 4), format_si(r["frequency_hz"], "Hz", 3),
+                     format_si(r["on_time_s"], "s", 3), format_si(r["off_time_s"], "s", 3),
+                     f"{r['duty']:.3f}", format_si(r["peak_current_a"], "A", 3), r["mode"],
+                     r["on_end"], r["off_end"],
+                     f"{source} (unverified: {doubt})" if doubt else source])
+    table = format_table(headers, rows)
+    if doubts:
+        table += "\n" + _wrap(
+            "unverified: the cycle model is outside the domain where it was checked "
+            "against the time-domain engine (pattern: a burst or irregular pattern, "
+            "values are averages and the peak that of the strongest pulse; "
+            "regime-boundary: the balance sits on a jump between two cycle regimes and "
+            "the supply alternates between them; lockup: the low state the output "
+            "stops in from power-on). Confirm such points with `rcc waveforms` or "
+            "`rcc cycle` before acting on them.", indent="")
+    return table
 
 
 def _wrap(text, indent="    "):
@@ -94,10 +119,24 @@ def format_check_report(data: dict) -> str:
     startup = data.get("startup")
     if startup:
         out += ["Start-up (lowest line, worst corner of hFE and temperature)", ""]
-        if startup.get("starts"):
-            out.append("    starts: the power-on DC point is unstable")
-        else:
+        run = startup.get("power_on")
+        if not startup.get("oscillation_begins", startup.get("starts")):
             out.append(f"    does NOT start: held by {startup.get('holding_element')}")
+        elif run is None:
+            out.append("    oscillation begins: the power-on DC point is unstable "
+                       "(the engine was not run from power-on)")
+        else:
+            verdict = ("starts into its load" if startup.get("starts")
+                       else "does NOT start into its load")
+            out.append(f"    {verdict}: the power-on DC point is unstable, and the engine "
+                       f"from power-on at {format_si(run['line_v'], 'V', 4)} line, "
+                       f"{run['temperature_c']:.3g} degC, hFE {run['hfe']:.3g}, "
+                       f"{run['load']} gives '{run['kind']}' at "
+                       f"{format_si(run['output_v'], 'V', 3)} (expected "
+                       f"{format_si(run['expected_output_v'], 'V', 3)})")
+            if startup.get("time_to_regulation_s") is not None:
+                out.append(f"    time to regulation: "
+                           f"{format_si(startup['time_to_regulation_s'], 's', 3)}")
         dc = startup.get("dc_point") or {}
         if dc:
             out.append(f"    DC point: {dc.get('region')}, Ic {format_si(dc.get('ic_a'), 'A', 3)}, "
@@ -105,8 +144,8 @@ def format_check_report(data: dict) -> str:
                        f"{'on' if dc.get('limiter_active') else 'off'}")
         rows = (("growth rate", "growth_rate_per_s", lambda v: f"{v:.4g} 1/s"),
                 ("growth frequency", "growth_frequency_hz", lambda v: format_si(v, "Hz", 4)),
-                ("minimum start bus", "min_start_bus_v", lambda v: format_si(v, "V", 4)),
-                ("minimum start line", "min_start_line_v", lambda v: format_si(v, "V", 4)),
+                ("oscillation from bus", "min_start_bus_v", lambda v: format_si(v, "V", 4)),
+                ("oscillation from line", "min_start_line_v", lambda v: format_si(v, "V", 4)),
                 ("start-up time", "start_time_s", lambda v: format_si(v, "s", 4)))
         for label, key, show in rows:
             if startup.get(key) is not None:

@@ -91,10 +91,20 @@ def test_core_flux_is_faraday_at_worst_peak(standby, standby_report):
 
 def test_overload_fires_when_the_limit_is_too_low(standby, standby_report):
     assert "overload" not in codes(standby_report)
-    # a 12.6 V rail at the same 0.5 A leaves about 6 % reserve: a warning
-    tight = codes(check_design(standby.with_values({"output.voltage_target": "12.6 V"})))
+    from rcc.cycle import limit_power_capability
+
+    env = standby.environment
+    capability = float(limit_power_capability(
+        standby, standby.input.line_voltages[0],
+        max(env.temperature_min, env.temperature_max)))
+    target = standby.output.voltage_target
+    # a heaviest load that leaves about 6 % reserve: a warning
+    tight = codes(check_design(standby.with_values(
+        {"output.load_max": f"{capability / 1.06 / target:.6g} A"})))
     assert tight["overload"].severity == "warn"
-    report = check_design(standby.with_values({"limiter.sense_resistance": "2.2 ohm"}))
+    # and one 20 % beyond the limit's capability: a failure
+    report = check_design(standby.with_values(
+        {"output.load_max": f"{capability * 1.2 / target:.6g} A"}))
     finding = codes(report)["overload"]
     assert finding.severity == "fail" and finding.limit < finding.value
 

@@ -32,8 +32,23 @@ def _text(report, findings) -> str:
             f"{p.real:.4g}{p.imag:+.4g}j" if p.imag else f"{p.real:.4g}" for p in r.poles),
     ]
     if r.starts:
-        lines.append(f"  verdict      starts: growth rate {r.growth_rate:.4g} 1/s, "
-                     f"frequency {_si(r.growth_frequency, 'Hz')}")
+        lines.append(f"  DC point     unstable: oscillation begins, growth rate "
+                     f"{r.growth_rate:.4g} 1/s, frequency {_si(r.growth_frequency, 'Hz')}")
+        run = report.into_load
+        if run is not None:
+            reached = "reaches its operating point" if report.reaches_operating_point \
+                else "does NOT reach its operating point"
+            settle = "" if run.time_to_regulation is None else \
+                f", regulated after {_si(run.time_to_regulation, 's')}"
+            lines.append(
+                f"  into load    engine from power-on at {run.line_voltage:.4g} V line, "
+                f"{run.temperature - 273.15:.3g} degC, hFE(25 degC) {run.hfe:.3g}, "
+                f"{run.load.text()}: {run.kind}, output {run.output_voltage:.3g} V of "
+                f"{run.expected_output:.3g} V{settle}")
+            lines.append(f"  verdict      {'starts' if report.starts else 'does not start'}"
+                         f" into its load: it {reached}")
+        else:
+            lines.append("  verdict      starts (small-signal only: the engine was not run)")
     else:
         lines.append(f"  verdict      stalls, held by: {r.holding_element}")
     threshold = report.min_start_bus_voltage
@@ -41,7 +56,8 @@ def _text(report, findings) -> str:
         else f"{threshold:.4g} V bus"
     if threshold is not None and report.min_start_line_voltage is not None:
         text += f" ({report.min_start_line_voltage:.4g} V RMS line)"
-    lines.append(f"  starts from  {text}")
+    lines.append(f"  oscillation begins from  {text} (small-signal threshold at the worst "
+                 f"corner; starting into the load is checked at the lowest line)")
     t = report.start_time
     if t is not None:
         lines.append(f"  start time   {_si(t.total, 's')} (bulk {_si(t.bulk_charge_time, 's')}, "

@@ -586,12 +586,50 @@ class StartupReport:
     start_time: StartTime | None
     drive: DriveCycle | None
     is_ac: bool
+    into_load: object | None = None
+
+    @property
+    def oscillation_begins(self) -> bool:
+        """The power-on DC point is unstable (small-signal verdict) [-]."""
+        return bool(self.result.starts)
+
+    @property
+    def reaches_operating_point(self) -> bool | None:
+        """From power-on at the worst corner and full load the engine reaches a
+        regulated operating point (regular switching or bursts near the
+        expected output); ``None`` where it was not run [-]."""
+        if self.into_load is None:
+            return None if self.result.starts else False
+        return self.into_load.kind in ("regular", "burst", "irregular")
+
+    @property
+    def starts(self) -> bool:
+        """Oscillation begins and the supply reaches its operating point [-]."""
+        reaches = self.reaches_operating_point
+        return self.oscillation_begins and reaches is not False
 
     def to_json(self) -> dict:
         """The ``startup`` object of the JSON report (no NaN or infinity)."""
         r = self.result
+        run = self.into_load
         return {
-            "starts": r.starts,
+            "starts": self.starts,
+            "oscillation_begins": self.oscillation_begins,
+            "reaches_operating_point": self.reaches_operating_point,
+            "time_to_regulation_s": None if run is None
+            else _number(run.time_to_regulation),
+            "power_on": None if run is None else {
+                "kind": run.kind,
+                "line_v": _number(run.line_voltage),
+                "bus_v": _number(run.bus_voltage),
+                "temperature_c": _number(run.temperature - 273.15),
+                "hfe": _number(run.hfe),
+                "load": run.load.text(),
+                "output_v": _number(run.output_voltage),
+                "expected_output_v": _number(run.expected_output),
+                "frequency_hz": _number(run.frequency),
+                "peak_current_a": _number(run.peak_current),
+            },
             "growth_rate_per_s": _number(r.growth_rate),
             "growth_frequency_hz": _number(r.growth_frequency),
             "min_start_bus_v": _number(self.min_start_bus_voltage),
@@ -609,12 +647,15 @@ class StartupReport:
         }
 
 
-def startup_report(design) -> StartupReport:
+def startup_report(design, engine: bool = True) -> StartupReport:
     """Run the whole start-up analysis of a design.
 
     Parameters
     ----------
     design : rcc.design.Design
+    engine : bool
+        Also run the time-domain engine from power-on at the worst corner and
+        full load (start-up into the load; seconds of CPU) [-].
 
     Returns
     -------
@@ -630,8 +671,30 @@ def startup_report(design) -> StartupReport:
         start_time = None if any(t is None for t in times) else max(
             times, key=lambda t: t.total)
         drive = drive_cycle(design)
+    into_load = _into_load(design) if (result.starts and engine) else None
     return StartupReport(design.title, result, threshold, line, start_time, drive,
-                         design.input.is_ac)
+                         design.input.is_ac, into_load)
+
+
+#: Longest engine run from power-on for the start-up-into-load verdict [s].
+INTO_LOAD_DURATION = 0.06
+
+
+def _into_load(design):
+    """The engine from power-on at the worst start-up corner, full load.
+
+    Lowest line, coldest temperature, ``hfe_min``, the heaviest load: the
+    supply must not only begin to oscillate there but reach its operating
+    point (:func:`rcc.engine.power_on.run_from_power_on`, at most
+    :data:`INTO_LOAD_DURATION`).
+    """
+    from rcc.engine.power_on import run_from_power_on
+
+    return run_from_power_on(design, float(design.input.line_voltages[0]),
+                             design.output.load_max,
+                             temperature=design.environment.temperature_min,
+                             hfe=design.switch.hfe_min,
+                             max_duration=INTO_LOAD_DURATION)
 
 
 _ADVICE = {
@@ -707,6 +770,20 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
                 + extra, value=value, limit=limit, unit=unit, bound=bound,
                 advice=_ADVICE[element]))
         return findings
+    run = report.into_load
+    if run is not None and not report.reaches_operating_point:
+        findings.append(Finding(
+            "startup-lockup", "fail",
+            f"The power-on DC point is unstable, but from power-on at "
+            f"{run.line_voltage:.4g} V line ({run.bus_voltage:.4g} V bus), "
+            f"{run.temperature - 273.15:.3g} degC, hFE(25 degC) {run.hfe:.3g} and full load "
+            f"({run.load.text()}) the time-domain engine does not reach the operating "
+            f"point: '{run.kind}', output {run.output_voltage:.3g} V of the expected "
+            f"{run.expected_output:.3g} V.",
+            value=run.output_voltage, limit=run.expected_output, unit="V", bound="lower",
+            advice="Let the flyback plateau reset the drive capacitor at a low output: "
+                   "a smaller drive capacitor, a lower start-up resistor or a "
+                   "base-emitter resistor; check with `rcc waveforms`."))
     drive = report.drive
     if drive is not None and drive.weak_drive:
         findings.append(Finding(
