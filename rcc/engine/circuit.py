@@ -27,16 +27,28 @@ Device models
 -------------
 *Switch* (NPN): charge-control model with one state, the stored base charge
 ``q`` (Moll 1954; Beaufoy & Sparkes 1957).  Cut-off: no junction current,
-``dq/dt = -q / tau_BF``.  Active: base-emitter junction as ``Vbe(T)`` plus a
-base resistance, collector current ``q / tau_F`` with ``tau_F = 1 / (2 pi fT)``
+``dq/dt = -q / tau_BF``.  Active: the base-emitter junction voltage follows
+the stored charge, ``Vbe = V_T ln(1 + q / (tau_F I_S))`` (the collector
+current ``q / tau_F`` on the Shockley law, ``I_S`` from ``switch.vbe`` at the
+trip current ``limiter.vbe / limiter.sense_resistance`` as in the start-up
+analysis; the junction of the Gummel-Poon charge-control model [7]_), as
+chords in ``q`` (see *Junction laws* below), plus the base spreading
+resistance ``SWITCH_BASE_RESISTANCE``; so the base looks like ``r_pi`` in
+parallel with the diffusion capacitance ``C_pi = tau_BF / r_pi`` of the
+hybrid-pi model, the junction voltage falls along the law while a reverse
+base current draws the charge out, and cut-off comes when the charge is
+gone.  Collector current ``q / tau_F`` with ``tau_F = 1 / (2 pi fT)``
 and ``dq/dt = i_B - q / tau_BF``, ``tau_BF = hFE tau_F`` (so ``i_C = hFE i_B``
 in steady state).  Saturated: collector-emitter ``Vce,sat`` plus a
 resistance, ``dq/dt = i_B - i_C / hFE - (q - tau_F i_C) / tau_S``; the
 transistor leaves saturation when the excess charge ``q - tau_F i_C`` is
 gone, which puts the storage time in the model.  ``tau_S`` is chosen so
 that the storage time at the datasheet drive ``I_B1 = I_B2`` with hard
-overdrive equals ``switch.storage_time``: ``tau_S = t_s / ln 2``.
-Base-emitter reverse breakdown at ``switch.vebo``.
+overdrive equals ``switch.storage_time``: ``tau_S = t_s / ln 2``.  In
+saturation the junction follows the whole stored charge, excess included,
+so it sits ``V_T ln(q / (tau_F i_C))`` above the active-region law (about
+18 mV at twofold overdrive).  Base-emitter reverse breakdown at
+``switch.vebo``.
 
 *Switch collector-base capacitance* (Miller feedback): the switch's
 ``output_capacitance`` is the datasheet Cob, measured common-base with the
@@ -71,27 +83,74 @@ energy balance still closes (Tellegen), but a real ``C_mu`` is lossless and
 the source's cycle average ``-C_mu <v_b dv_c/dt>`` is the approximation's
 error there: -4 mW and -12 mW against 0.89 W and 1.29 W of switch loss on
 the standby and legacy worked cases at 325 V (under 1 %).  The remaining
-difference at the DC point is the fixed junction resistance
-``SWITCH_BASE_RESISTANCE`` in place of the
-incremental ``r_pi = hFE V_T / I_C`` of the real junction [5]_: 1-4 % on
-the standby case, up to about 20 % for a low-gain switch at a few mA
-(``r_pi`` of 100-200 ohm next to the drive resistor).
+difference at the DC point is the chord of the junction law in place of
+its tangent, the incremental ``r_pi = hFE V_T / I_C`` [5]_: the
+DC-point pole of the standby case is within 0.5 % of the start-up
+analysis's, and within -1.0 to +1.7 % at the hFE and temperature corners
+at low line (with the former fixed 2 ohm junction: 1-4 %).
 
-*Limiter* (NPN): cut-off, active (``i_C = hFE i_B``), saturated, and a
+*Limiter* (NPN): base-emitter junction as chords of the Shockley law
+through ``limiter.vbe`` at 1 mA of collector current (as in the start-up
+analysis) with ``LIMITER_BASE_RESISTANCE`` in series, in every conducting
+state: cut-off, active (``i_C = hFE i_B``), saturated, and a
 "collector-open" state when its collector is pulled below the saturation
 voltage with the base driven (the inverse-mode current is neglected, so the
 limiter cannot source the drive current back into the switch base); no
 charge storage (a small-signal transistor, much faster than the switch).
 
-*Diodes and zeners*: forward drop plus resistance, blocking otherwise.  The
-limiter's collector-base junction is one of them (from its base into the
-switch base): it resets the drive capacitor while the feedback winding holds
-the switch base negative.
+*Diodes and zeners*: chords of their exponential laws with series
+resistance, blocking below the first chord's zero-current voltage.  The
+output rectifier and the clamp diode have their datasheet drop
+(``output.rectifier_drop``, ``CLAMP_DIODE_DROP``) across the junction at
+1 A, the auxiliary rectifier (``regulation.rectifier_drop``) at 10 mA; the
+regulation zener has ``Vz(T)`` at its 5 mA test current and a knee of
+60 mV per decade of current (Sze & Ng [8]_, sec. 2.4.2; the slope  # common
+practice), with ``regulation.series_resistance`` plus
+``REGULATION_ZENER_RESISTANCE`` in series.  The limiter's collector-base
+junction is a diode too (from its base into the switch base; the inverse
+Ebers-Moll diode with reverse gain 1, 1 mA at ``limiter.vbe``): it resets the
+drive capacitor while the feedback winding holds the switch base negative.
+The zener clamp and the optocoupler LED keep a single threshold with a
+resistance.
+
+*Junction laws* (:class:`JunctionLaw`, :class:`JunctionSegments`): chords
+of ``V(I) = offset + n V_T ln(1 + I / I_S) + R I`` (Shockley [7]_ with
+series resistance; emission coefficient 1) between geometric breakpoints,
+``SEGMENTS_PER_DECADE`` = 2 chords per decade, so every chord lies below
+the law by at most ``0.163 n V_T`` (4.2 mV at 25 degC; the closed form is in
+:class:`JunctionSegments`, the test ``tests/test_engine_junctions.py``
+computes the error of every table).  Ranges (first to last breakpoint; the
+first chord continues to zero current, where the junction starts or stops
+conducting with no jump, the last continues above): switch collector
+current 10 uA-10 A (12 chords, in stored charge), limiter base current
+100 nA-100 mA (12; collector 10 uA-10 A at hFE 100), limiter
+collector-base 10 uA-100 mA (8), zener 10 uA-100 mA (8), auxiliary
+rectifier 10 uA-1 A (10), output rectifier and clamp diode 1 mA-10 A (8).
+Below the first breakpoint the current is off by less than that
+breakpoint's current.  Every chord is a state of its device (``active/3``,
+``on/1``; :func:`state_kind` strips the chord), and moving between chords
+is a switching event: it costs events, not accuracy (the field is
+continuous across a breakpoint, so its saltation matrix is the identity).
+Where thresholds matter this is what a sharp threshold missed: a real
+junction conducts microamperes a hundred millivolts and more below its
+datasheet voltage, so the regulation zener keeps the limiter on (and the
+switch off) after demagnetization until the auxiliary capacitor has drained
+further than a threshold model lets it.
 
 *Transformer*: magnetizing inductance (with the core-loss resistance in
 parallel) and a leakage inductance in series on the primary side, then an
 ideal transformer with the feedback, output and auxiliary windings.  This
 magnetizing-plus-leakage form stays well conditioned for coupling near 1.
+A resistance ``Q sqrt(L_lk / C_node)`` across the leakage inductance
+(:func:`leakage_damping_resistance`, ``Q`` =
+``transformer.leakage_ring_quality``, default 4) stands for the loss of
+the winding and core at the megahertz of the leakage ring: as an effective
+series resistance ``(omega L_lk)^2 / R`` it grows as ``f^2`` like the
+proximity-effect loss of a winding (Dowell [9]_), is negligible in the
+on-time and the flyback plateau and gives the ring quality factor ``Q``:
+it dies within about a microsecond after the clamp lets go, as on a bench,
+instead of ringing through the whole flyback (quality factor about 90
+before).
 The feedback winding sees the magnetizing voltage only (a real winding
 couples part of the leakage ring too).  The leakage ring at turn-off still
 reaches the base through the switch's collector-base capacitance (above):
@@ -104,7 +163,8 @@ excursion ends in cut-off without saturating and is not a turn-on
 the expected output voltage it behaves as a resistance through the origin,
 as an electronic load does near zero volts); a constant power, approximated
 by secants of the hyperbola ``i = P / v`` between geometrically spaced
-breakpoints (relative current error below 0.3 %), a resistance through the
+breakpoints (relative current error below ``(r^(1/4) - r^(-1/4))^2`` =
+0.43 % for the spacing ``r = 2^(3/16)``), a resistance through the
 origin below the first breakpoint and a constant current above the last.
 
 A conductance ``NODE_LEAK_CONDUCTANCE`` from every node to ground keeps the
@@ -127,6 +187,15 @@ References
 .. [6] J. M. Miller, "Dependence of the input impedance of a
    three-electrode vacuum tube upon the load in the plate circuit",
    Scientific Papers of the Bureau of Standards 15(351), 1920.
+.. [7] W. Shockley, "The theory of p-n junctions in semiconductors and p-n
+   junction transistors", Bell Syst. Tech. J. 28(3), 435-489, 1949;
+   H. K. Gummel, H. C. Poon, "An integral charge control model of bipolar
+   transistors", Bell Syst. Tech. J. 49(5), 827-852, 1970.
+.. [8] S. M. Sze, K. K. Ng, *Physics of Semiconductor Devices*, 3rd ed.,
+   Wiley, 2007, sec. 2.3 (ideal diode law, eq. 2.48) and sec. 2.4.2
+   (junction breakdown).
+.. [9] P. L. Dowell, "Effects of eddy currents in transformer windings",
+   Proc. IEE 113(8), 1387-1394, 1966.
 """
 
 from __future__ import annotations
