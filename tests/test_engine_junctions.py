@@ -17,6 +17,7 @@ from scipy import constants
 from rcc.design import Load, load_design
 from rcc.engine import build_circuit
 from rcc.engine.circuit import (
+    COARSE_SEGMENTS_PER_DECADE,
     SEGMENTS_PER_DECADE,
     JunctionLaw,
     chord_error_bound,
@@ -96,17 +97,23 @@ def test_zener_knee_is_60_mv_per_decade():
 def test_every_junction_of_the_worked_case_is_within_its_bound():
     """The circuit's junction tables (switch and limiter base-emitter,
     limiter collector-base, regulation zener, rectifiers, clamp diode) meet
-    the chord bound of their emission voltage over their whole range."""
+    the chord bound of their emission voltage over their whole range: 4.2 mV
+    for the fine tables, 16 mV for the coarse ones (25 degC)."""
     design = load_design(WORKED)
     circuit = build_circuit(design, 325.0, Load("current", 0.3), 298.15)
     tables = circuit.parameters["junctions"]
     assert set(tables) == {"switch", "limiter", "limiter_collector_base", "output_rectifier",
                            "aux_rectifier", "regulation_zener", "clamp_diode"}
-    ratio = 10.0 ** (1.0 / SEGMENTS_PER_DECADE)
+    # two chords per decade where the threshold matters, one where only the
+    # drop on volts does (module constants of rcc.engine.circuit)
+    fine = {"switch", "limiter", "regulation_zener", "limiter_collector_base"}
     for name, table in tables.items():
+        ratio = table.currents[1] / table.currents[0]
+        per_decade = SEGMENTS_PER_DECADE if name in fine else COARSE_SEGMENTS_PER_DECADE
+        assert ratio == pytest.approx(10.0 ** (1.0 / per_decade), rel=1e-12), name
         bound = chord_error_bound(ratio, table.law.emission_voltage)
         assert junction_worst_error(table) <= bound * (1.0 + 1e-3), name
-        assert bound <= 4.3e-3, name
+        assert bound <= (4.3e-3 if name in fine else 16.5e-3), name
     # the limiter: 0.6 V at 1 mA of collector current (limiter.vbe), as in
     # the start-up analysis
     limiter = tables["limiter"]

@@ -115,17 +115,24 @@ resistance.
 
 *Junction laws* (:class:`JunctionLaw`, :class:`JunctionSegments`): chords
 of ``V(I) = offset + n V_T ln(1 + I / I_S) + R I`` (Shockley [7]_ with
-series resistance; emission coefficient 1) between geometric breakpoints,
-``SEGMENTS_PER_DECADE`` = 2 chords per decade, so every chord lies below
-the law by at most ``0.163 n V_T`` (4.2 mV at 25 degC; the closed form is in
+series resistance; emission coefficient 1) between geometric breakpoints:
+two chords per decade (``SEGMENTS_PER_DECADE``) where the threshold sets
+what the circuit does (start-up, trip, regulation), so every chord lies
+below the law by at most ``0.163 n V_T`` (4.2 mV at 25 degC), one per decade
+(``COARSE_SEGMENTS_PER_DECADE``) where only a drop in series with volts
+does, at most ``0.619 n V_T`` (16 mV); the closed form is in
 :class:`JunctionSegments`, the test ``tests/test_engine_junctions.py``
-computes the error of every table).  Ranges (first to last breakpoint; the
+computes the error of every table.  Ranges (first to last breakpoint; the
 first chord continues to zero current, where the junction starts or stops
-conducting with no jump, the last continues above): switch collector
+conducting with no jump, the last continues above): fine, switch collector
 current 10 uA-10 A (12 chords, in stored charge), limiter base current
-100 nA-100 mA (12; collector 10 uA-10 A at hFE 100), limiter
-collector-base 10 uA-100 mA (8), zener 10 uA-100 mA (8), auxiliary
-rectifier 10 uA-1 A (10), output rectifier and clamp diode 1 mA-10 A (8).
+100 nA-100 mA (12; collector 10 uA-10 A at hFE 100), zener 10 uA-100 mA
+(8), limiter collector-base 10 uA-100 mA (8); coarse, auxiliary rectifier
+100 uA-1 A (4), output rectifier and clamp diode 10 mA-10 A (3).  (Two
+chords per decade everywhere built about twice as many topologies and ran
+a 1000-cycle start-up about 2.5 times slower; one per decade on the
+limiter's collector-base junction made the limiter chatter between its
+active and saturated states at one instant on the legacy case.)
 Below the first breakpoint the current is off by less than that
 breakpoint's current.  Every chord is a state of its device (``active/3``,
 ``on/1``; :func:`state_kind` strips the chord), and moving between chords
@@ -244,21 +251,24 @@ CLAMP_DIODE_DROP = 1.0
 CLAMP_DIODE_RESISTANCE = 1.0
 CLAMP_ZENER_RESISTANCE = 2.0
 REGULATION_ZENER_RESISTANCE = 10.0
-#: Chords per decade of current in every junction law (worst error 0.163 n V_T,
-#: 4.2 mV at 25 degC: :class:`JunctionSegments`)
+#: Chords per decade of current where a junction's threshold matters (worst
+#: error 0.163 n V_T, 4.2 mV at 25 degC: :class:`JunctionSegments`), and where
+#: only its drop on volts and more does (0.619 n V_T, 16 mV)
 SEGMENTS_PER_DECADE = 2.0
-#: Breakpoint ranges [A] of the junction chords: the switch collector current
-#: (its stored charge), the
-#: limiter base current (collector from 10 uA at hFE 100), the limiter's
-#: collector-base junction, the regulation zener, the auxiliary rectifier,
-#: and the output rectifier and clamp diode.  Below the first breakpoint the
-#: junction blocks; above the last the last chord continues.
-SWITCH_JUNCTION_CURRENTS = (1e-5, 10.0)
-LIMITER_JUNCTION_CURRENTS = (1e-7, 1e-1)
-LIMITER_COLLECTOR_BASE_CURRENTS = (1e-5, 1e-1)
-ZENER_CURRENTS = (1e-5, 1e-1)
-AUX_RECTIFIER_CURRENTS = (1e-5, 1.0)
-POWER_RECTIFIER_CURRENTS = (1e-3, 10.0)
+COARSE_SEGMENTS_PER_DECADE = 1.0
+#: Breakpoint ranges [A] and chords per decade of the junction tables: the
+#: switch collector current (its stored charge), the limiter base current
+#: (collector from 10 uA at hFE 100), the regulation zener, the limiter's
+#: collector-base junction (fine: they set the start-up, the trip, the
+#: regulation and the drive reset), the auxiliary rectifier, and the output
+#: rectifier and clamp diode (coarse).  Below the first breakpoint the first chord continues to
+#: zero current; above the last the last chord continues.
+SWITCH_JUNCTION_CURRENTS = (1e-5, 10.0, SEGMENTS_PER_DECADE)
+LIMITER_JUNCTION_CURRENTS = (1e-7, 1e-1, SEGMENTS_PER_DECADE)
+ZENER_CURRENTS = (1e-5, 1e-1, SEGMENTS_PER_DECADE)
+LIMITER_COLLECTOR_BASE_CURRENTS = (1e-5, 1e-1, SEGMENTS_PER_DECADE)
+AUX_RECTIFIER_CURRENTS = (1e-4, 1.0, COARSE_SEGMENTS_PER_DECADE)
+POWER_RECTIFIER_CURRENTS = (1e-2, 10.0, COARSE_SEGMENTS_PER_DECADE)
 #: Collector current at which the limiter's ``vbe`` holds [A] (as in the
 #: start-up analysis, :data:`rcc.startup.dcpoint.LIMITER_REFERENCE_CURRENT`)
 LIMITER_REFERENCE_CURRENT = 1e-3
@@ -955,7 +965,7 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     # start-up analysis), as chords in q, plus the base spreading resistance
     trip = limiter_vbe / lim.sense_resistance
     switch_junction = junction_segments(JunctionLaw.through(vbe, trip, vt),
-                                        *SWITCH_JUNCTION_CURRENTS, SEGMENTS_PER_DECADE)
+                                        *SWITCH_JUNCTION_CURRENTS)
     chords = len(switch_junction.drops)
     # state order: off, active/1..K, saturated/1..K, breakdown
     active0, saturated0, breakdown = 1, 1 + chords, 1 + 2 * chords
@@ -1015,8 +1025,7 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     limiter_junction = junction_segments(
         JunctionLaw.through(limiter_vbe + LIMITER_BASE_RESISTANCE * LIMITER_REFERENCE_CURRENT
                             / lim.hfe, LIMITER_REFERENCE_CURRENT / lim.hfe, vt,
-                            LIMITER_BASE_RESISTANCE), *LIMITER_JUNCTION_CURRENTS,
-        SEGMENTS_PER_DECADE)
+                            LIMITER_BASE_RESISTANCE), *LIMITER_JUNCTION_CURRENTS)
     chords2 = len(limiter_junction.drops)
     # state order: off, active/1..K, saturated/1..K, collector-open/1..K
     active2, saturated2, open2 = 1, 1 + chords2, 1 + 2 * chords2
@@ -1056,7 +1065,7 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     junctions["limiter_collector_base"] = junction_segments(
         JunctionLaw.through(limiter_vbe + LIMITER_BASE_RESISTANCE * LIMITER_REFERENCE_CURRENT,
                             LIMITER_REFERENCE_CURRENT, vt, LIMITER_BASE_RESISTANCE),
-        *LIMITER_COLLECTOR_BASE_CURRENTS, SEGMENTS_PER_DECADE)
+        *LIMITER_COLLECTOR_BASE_CURRENTS)
     devs.append(_junction("limiter_collector_base", "l", "b",
                           junctions["limiter_collector_base"]))
     junctions["output_rectifier"] = _rectifier_segments(
@@ -1075,7 +1084,7 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
             JunctionLaw.through(zener_v + resistance * ZENER_REFERENCE_CURRENT,
                                 ZENER_REFERENCE_CURRENT, ZENER_KNEE_SLOPE / math.log(10.0),
                                 resistance, saturation_current=ZENER_KNEE_FOOT_CURRENT),
-            *ZENER_CURRENTS, SEGMENTS_PER_DECADE)
+            *ZENER_CURRENTS)
         devs.append(_junction("regulation_zener", "a", "l", junctions["regulation_zener"]))
     elif reg.method == "optocoupler":
         devs.append(_diode("optocoupler_led", "o", "0", reg.reference_voltage + reg.led_drop,
@@ -1185,7 +1194,7 @@ def _rectifier_segments(drop, resistance, reference_current, currents, thermal_v
     ``resistance`` in series."""
     return junction_segments(
         JunctionLaw.through(drop + resistance * reference_current, reference_current,
-                            thermal_voltage_, resistance), *currents, SEGMENTS_PER_DECADE)
+                            thermal_voltage_, resistance), *currents)
 
 
 def _diode(name, anode, cathode, drop, resistance, extra=()):

@@ -234,7 +234,7 @@ def turn_on_indices(event_devices, event_from, event_to, switch: int, weight: in
         Kind of every switch state as an index into
         :data:`rcc.engine.circuit.SWITCH_STATES` (the junction chords of the
         active and saturated regions are states of one kind); default: the
-        state index itself.
+        state index itself, for a switch with exactly those four states.
 
     Returns
     -------
@@ -257,7 +257,12 @@ def turn_on_indices(event_devices, event_from, event_to, switch: int, weight: in
     when ``stopped``.
     """
     devices = np.asarray(event_devices)
-    kinds = np.arange(radix) if kinds is None else np.asarray(kinds)
+    if kinds is None:
+        if radix != len(SWITCH_STATES):
+            raise ValueError(f"radix = {radix}: a switch with junction chords has more states "
+                             f"than {SWITCH_STATES}; pass kinds (Circuit.state_kinds)")
+        kinds = np.arange(radix)
+    kinds = np.asarray(kinds)
     old = kinds[(np.asarray(event_from) // weight) % radix]
     new = kinds[(np.asarray(event_to) // weight) % radix]
     found, candidate = [], -1
