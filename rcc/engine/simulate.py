@@ -209,7 +209,7 @@ class Trace:
         d = self.device_names.index("switch")
         indices = turn_on_indices(self.event_devices, self.event_from, self.event_to, d,
                                   self.topology_weights[d], self.topology_radices[d],
-                                  self.stopped, self.switch_kinds)
+                                  self.stopped, self.switch_kinds or None)
         return self.event_times[indices]
 
 
