@@ -177,6 +177,7 @@ class TransformerSpec:
     saturation_flux_density: float
     primary_resistance: float
     core_loss_resistance: float
+    leakage_ring_quality: float
 
 
 @dataclass(frozen=True)

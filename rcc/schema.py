@@ -199,6 +199,12 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
        "Equivalent parallel resistance of the magnetizing branch (core loss). "
        "Default: the value giving a ring quality factor of 20 with the node "
        "capacitance, Q * sqrt(Lm / C_node).", required=False),
+    _q("transformer", "leakage_ring_quality", "dimensionless",
+       "Quality factor of the ring of the leakage inductance with the node "
+       "capacitance after the clamp lets go (winding AC resistance and core loss at "
+       "megahertz); the time-domain engine puts Q * sqrt(L_lk / C_node) across the "
+       "leakage inductance.", required=False, default=4.0),
+    # rings of wound flyback transformers die within a few periods, common practice
     # ------------------------------------------------------------ startup
     _q("startup", "resistance", "resistance",
        "Start-up resistor from the bus to the switch base."),

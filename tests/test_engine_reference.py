@@ -26,6 +26,7 @@ from rcc.engine.simulate import simulate_reference
 
 WORKED = "worked_cases/standby_12v_universal.toml"
 LEGACY = "worked_cases/legacy_24v_substitute.toml"
+AUX = "worked_cases/aux_5v_48v_dc.toml"
 #: 230 V RMS mains rectified: 325 V peak (DOMAIN check values)
 BUS = 325.0
 TEMPERATURE = 298.15
@@ -50,12 +51,16 @@ def test_switching_instants_and_states_match_radau(circuit):
     x0 = dc_initial_state(circuit)
     t_end = 3.5e-6
     engine = simulate(circuit, x0, t_end, record=False)
-    reference = simulate_reference(circuit, x0, t_end, rtol=RTOL, atol=ATOL)
+    # rtol 1e-10 here: the limiter's junction chords are crossed by slowly
+    # changing currents, and Radau at 1e-9 places one of them 1.1e-12 s off
+    # (measured: 4.5e-14 s at 1e-10, 2.1e-15 s at 1e-11, converging on the
+    # engine's instant)
+    reference = simulate_reference(circuit, x0, t_end, rtol=RTOL / 10, atol=ATOL / 10)
     assert len(engine.event_times) >= 3
     assert len(reference.event_times) == len(engine.event_times)
     np.testing.assert_array_equal(engine.event_from, reference.event_from)
     np.testing.assert_array_equal(engine.event_to, reference.event_to)
-    # Radau at rtol 1e-9 places events to about 1e-13 s on these
+    # Radau at rtol 1e-10 places events to about 1e-13 s on these
     # microsecond segments; the engine to MIN_STEP (1e-15 s)
     np.testing.assert_allclose(engine.event_times, reference.event_times, rtol=0, atol=1e-12)
     final = reference.final_state
@@ -96,20 +101,22 @@ def multi_cycle(request):
     # runs on to 10 ns past that saturation for the turn-on count
     ahead = simulate(circuit, cycles.final_state, 5e-6, record=False,
                      topology=cycles.final_topology)
-    decided = simulate(circuit, x0, t_end + ahead.device_transitions("switch", 1, 2)[0],
+    decided = simulate(circuit, x0,
+                       t_end + ahead.device_transitions("switch", "active", "saturated")[0],
                        record=False, topology=topology)
     return request.param, circuit, engine, reference, t_end, decided
 
 
 def _transitions(circuit, trace):
-    """Set of (device, state before, state after) of the recorded switches."""
+    """Set of (device, state kind before, state kind after) of the recorded
+    switches (moves between chords of one junction law are not listed)."""
     found = set()
     for code_from, code_to in zip(trace.event_from, trace.event_to):
         old, new = circuit.decode(int(code_from)), circuit.decode(int(code_to))
         for d, (a, b) in enumerate(zip(old, new)):
-            if a != b:
-                names = circuit.device_state_names[d]
-                found.add((circuit.device_names[d], names[a], names[b]))
+            kinds = circuit.state_kinds(circuit.device_names[d])
+            if kinds[a] != kinds[b]:
+                found.add((circuit.device_names[d], kinds[a], kinds[b]))
     return found
 
 
@@ -249,19 +256,22 @@ def test_turn_on_rule_is_the_same_in_the_kernel_and_on_the_trace():
     """A turn-on starts an on-time: the switch goes from cut-off to the
     active region and then saturates (common practice: the on-time of a
     ringing-choke converter is the switch's saturated interval).  On the
-    legacy case from power-on (no clamp, 45 pF collector-base capacitance)
-    the collector rise after an on-time lifts the base into the active
-    region through that capacitance (the Miller effect: J. M. Miller, Sci.
-    Papers Bureau of Standards 15, 1920) for a hundred nanoseconds or so,
-    and the switch is cut off again without saturating.  Those excursions
-    happen with the collector rising and are no turn-ons; the engine's stop
-    rule (``stop_on_turn_on``) and ``Trace.turn_on_times`` pick the same
-    events, to the bit."""
-    circuit = build_circuit(load_design(LEGACY), BUS, Load("resistance", 64.0), TEMPERATURE)
+    5 V auxiliary case from power-on at 48 V and 0.6 A (its start-up
+    lock-up) the collector rise after each on-time lifts the base into the
+    active region through the collector-base capacitance (the Miller
+    effect: J. M. Miller, Sci. Papers Bureau of Standards 15, 1920), and the
+    switch is cut off again without saturating.  Those excursions happen
+    with the collector rising and are no turn-ons; the engine's stop rule
+    (``stop_on_turn_on``) and ``Trace.turn_on_times`` pick the same events,
+    to the bit.  (With the base-emitter junction following the stored
+    charge, the legacy and standby cases no longer show such excursions: the
+    switch is still in its active region, charge not yet drawn out, while
+    the collector rises.)"""
+    circuit = build_circuit(load_design(AUX), 48.0, Load("current", 0.6), TEMPERATURE)
     x0 = dc_initial_state(circuit)
-    run = simulate(circuit, x0, 6e-4, record=True)
+    run = simulate(circuit, x0, 2e-3, record=True)
     turn_ons = run.turn_on_times()
-    candidates = run.device_transitions("switch", 0, 1)
+    candidates = run.device_transitions("switch", "off", "active")
     excursions = np.setdiff1d(candidates, turn_ons)
     assert len(turn_ons) >= 10 and len(excursions) >= 10
     node = circuit.state_index("v_node")
@@ -270,7 +280,7 @@ def test_turn_on_rule_is_the_same_in_the_kernel_and_on_the_trace():
         field = circuit.topology(int(run.topologies[k])).vector_field(run.states[k])
         assert field[node] > 0.0      # the collector is rising
     for count in (1, 2, len(turn_ons)):
-        stopped = simulate(circuit, x0, 6e-4, record=False, stop_on_turn_on=count)
+        stopped = simulate(circuit, x0, 2e-3, record=False, stop_on_turn_on=count)
         assert stopped.stopped
         assert stopped.final_time == turn_ons[count - 1]
         assert len(stopped.turn_on_times()) == count

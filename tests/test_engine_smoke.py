@@ -30,8 +30,10 @@ def test_power_on_run_switches_and_stays_finite(circuit):
     trace = simulate(circuit, dc_initial_state(circuit), 3e-3, record=True)
     assert np.all(np.isfinite(trace.states))
     switch = circuit.device_index("switch")
+    kinds = circuit.state_kinds("switch")
     turn_ons = [1 for f, t in zip(trace.event_from, trace.event_to)
-                if circuit.decode(f)[switch] == 0 and circuit.decode(t)[switch] == 1]
+                if kinds[circuit.decode(f)[switch]] == "off"
+                and kinds[circuit.decode(t)[switch]] == "active"]
     assert len(turn_ons) >= 2  # start-up bursts of the worked case, about 1 ms apart
     # the bus current at the first instant is zero (capacitors discharged)
     assert trace["primary_current"][0] == 0.0
@@ -61,3 +63,21 @@ def test_turn_on_rule_on_a_handmade_event_list():
     np.testing.assert_array_equal(found, [0, 9])
     found = turn_on_indices(devices, before, after, 0, 1, 4, stopped=True)
     np.testing.assert_array_equal(found, [0, 9, 14])
+
+
+def test_turn_on_rule_ignores_moves_between_junction_chords():
+    """The active and saturated regions are split into the chords of the
+    base-emitter junction law (rcc.engine.circuit.JunctionSegments): a move
+    from one chord to the next is no change of the switch's region.  States
+    off, active/1, active/2, saturated/1 with kinds 0, 1, 1, 2."""
+    from rcc.engine.simulate import turn_on_indices
+
+    kinds = [0, 1, 1, 2]
+    steps = [(0, 1), (1, 2), (2, 3),     # 0: turn-on, chord move, saturation
+             (3, 2), (2, 1), (1, 0),     # storage, chord move, cut-off
+             (0, 1), (1, 2), (2, 1), (1, 0)]  # 6: excursion through two chords
+    devices = np.zeros(len(steps), dtype=int)
+    before = np.array([a for a, _ in steps])
+    after = np.array([b for _, b in steps])
+    found = turn_on_indices(devices, before, after, 0, 1, 4, kinds=kinds)
+    np.testing.assert_array_equal(found, [0])

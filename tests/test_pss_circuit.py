@@ -66,7 +66,9 @@ def test_newton_converges_and_figures_are_consistent(legacy):
     assert 0.0 < result.on_time < result.period
     text = json.dumps(result.to_json(), allow_nan=False)
     assert "frequency_hz" in text
-    assert result.event_sequence[-1] == "switch:active"
+    # the closing event is the turn-on into the first chord of the active
+    # region's junction law
+    assert result.event_sequence[-1] == "switch:active/1"
 
 
 def test_fixed_point_matches_long_transient(legacy):
@@ -132,7 +134,7 @@ def test_power_balance_and_losses_against_sampled_waveforms(legacy):
     """The exact cycle power balance (segment Gramians, Van Loan 1978)
     closes (Tellegen's theorem: input = output + losses on a periodic
     orbit, 1e-6 relative); the load takes its 12 W (constant-power load by
-    secants, 0.3 % documented error); and the sense-resistor loss equals the
+    secants, 0.43 % documented error); and the sense-resistor loss equals the
     trapezoidal quadrature (scipy.integrate.trapezoid) of v_e^2 / R_s on a
     finely sampled engine trace of the same cycle (0.5 %)."""
     from scipy.integrate import trapezoid
@@ -144,7 +146,7 @@ def test_power_balance_and_losses_against_sampled_waveforms(legacy):
     assert power.input - power.output - power.loss - power.stored == pytest.approx(
         0.0, abs=1e-6 * power.input)
     assert abs(power.stored) < 1e-6 * power.input
-    assert power.output == pytest.approx(12.0, rel=3e-3)
+    assert power.output == pytest.approx(12.0, rel=4.3e-3)  # measured +0.35 %
     assert all(watts > -1e-9 for watts in power.losses.values())
     assert list(power.losses.values()) == sorted(power.losses.values(), reverse=True)
     circuit = build_circuit(design, result.bus_voltage, result.load, result.temperature,
@@ -158,7 +160,7 @@ def test_power_balance_and_losses_against_sampled_waveforms(legacy):
 
 def test_rcd_clamp_loss_matches_textbook_clamp_formula():
     """The engine's exact RCD-clamp dissipation at the standby case's full-load
-    orbit (230 V) vs the textbook clamp balance Vc (Vc - V_R) = R L_lk Ipk^2 f / 2,
+    orbit (85 V) vs the textbook clamp balance Vc (Vc - V_R) = R L_lk Ipk^2 f / 2,
     P = Vc^2 / R (Basso, *Switch-Mode Power Supplies*, 2008, ch. 7, RCD clamp;
     rcc.stress.rcd_clamp_voltage), fed with the engine's own peak current,
     frequency and reflected voltage: within 15 % and below it (the formula
@@ -167,7 +169,7 @@ def test_rcd_clamp_loss_matches_textbook_clamp_formula():
     from rcc.stress import rcd_clamp_voltage
 
     design = rcc.load_design(STANDBY)
-    result = periodic_steady_state(design, 230.0, design.output.load_max)
+    result = periodic_steady_state(design, 85.0, design.output.load_max)
     assert result.converged
     tr = design.transformer
     reflected = (result.output_voltage + design.output.rectifier_drop) \
@@ -176,8 +178,10 @@ def test_rcd_clamp_loss_matches_textbook_clamp_formula():
                                             result.peak_current, result.frequency,
                                             design.clamp.resistance))
     textbook = clamp_voltage**2 / design.clamp.resistance
-    # measured: engine 13 % below the formula at 230 V, 8 % at 85 V (the
-    # formula is the upper bound of a clamp that keeps all the ring energy)
+    # measured: engine 11 % below the formula at 85 V (8 % before the leakage
+    # ring was damped, 13 % at 230 V, where the engine has no period-1 orbit
+    # at full load any more); the formula is the upper bound of a clamp that
+    # keeps all the ring energy
     assert result.power.losses["clamp"] == pytest.approx(textbook, rel=0.15)
     assert result.power.losses["clamp"] <= textbook
     # and it is well above the bare leakage energy rate the cycle model books
@@ -207,11 +211,14 @@ _TURN_ON_REASON = ("high line: the cycle model leaves the turn-on transition out
                    "charge builds, 0.2-0.4 us in the engine), so its period is 5-8 % "
                    "short and, with the same power, its peak current up to 9 % low "
                    "(notes/cycle_model.md, limitations)")
-_AUX_REASON = ("output 2-3 % above the cycle model's: at the trip the engine's limiter "
-               "has to sink the whole base drive through its finite gain (its base "
-               "current flows through the zener path), so the regulation needs about "
-               "0.24 V more auxiliary voltage (measured: 10.41 V in the engine against "
-               "10.17 V in the model at 195 V); the cycle model's limiter is ideal")
+_AUX_REASON = ("output 2.4-5.3 % above the cycle model's (measured: standby 85 V 30 % "
+               "load +2.4 %, legacy 195 V +4.7 %, 230 V +5.3 %): at the trip the "
+               "engine's limiter sinks the whole base drive (150-200 mA) through its "
+               "exponential junction, whose voltage is limiter.vbe at 1 mA of collector "
+               "current (as in the start-up analysis), so it trips about 0.1 V above "
+               "limiter.vbe and the regulation needs correspondingly more auxiliary "
+               "voltage (before the junction laws: 10.41 V in the engine against 10.17 V "
+               "in the model at 195 V); the cycle model trips at limiter.vbe")
 _IRREGULAR_REASON = ("the engine does not settle to a period-1 orbit here (irregular or "
                      "burst switching still after 5000 cycles; the result is the "
                      "transient fall-back, not converged): nothing to compare")
@@ -224,8 +231,9 @@ XFAIL = {
     ("legacy_24v_substitute", 1, 1.0): _TURN_ON_REASON + "; " + _AUX_REASON,
     ("legacy_24v_substitute", 2, 0.1): _IRREGULAR_REASON,
     ("legacy_24v_substitute", 2, 1.0): _IRREGULAR_REASON,
+    ("standby_12v_universal", 0, 0.1): _IRREGULAR_REASON,
     ("standby_12v_universal", 1, 0.1): _IRREGULAR_REASON,
-    ("standby_12v_universal", 1, 1.0): _TURN_ON_REASON,
+    ("standby_12v_universal", 1, 1.0): _IRREGULAR_REASON,
     ("standby_12v_universal", 2, 0.1): _IRREGULAR_REASON,
     ("standby_12v_universal", 2, 1.0): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 0, 0.1): _IRREGULAR_REASON,
@@ -268,16 +276,19 @@ def test_cycle_model_agrees_with_periodic_steady_state(case, line_index, fractio
 
 @pytest.mark.parametrize("case, line_index, fraction, bands", [
     # (frequency, output, peak current) bands around the measured gaps
-    ("standby_12v_universal", 0, 0.3, ((-0.05, 0.05), (-0.02, 0.02), (-0.05, 0.05))),
-    ("standby_12v_universal", 1, 1.0, ((-0.09, -0.02), (-0.02, 0.02), (0.04, 0.11))),
-    ("legacy_24v_substitute", 0, 1.0, ((-0.06, 0.0), (0.0, 0.04), (-0.04, 0.03))),
-    ("legacy_24v_substitute", 1, 1.0, ((-0.10, -0.04), (0.0, 0.04), (-0.02, 0.05))),
+    # measured with the engine's junction laws (issue 8): standby 85 V 30 %
+    # (-1.3 %, +2.4 %, +3.9 %), legacy 195 V (-3.8 %, +4.7 %, +1.2 %), legacy
+    # 230 V (-6.3 %, +5.3 %, +2.4 %); the standby case at 230 V full load has
+    # no period-1 orbit in the engine any more (xfail above)
+    ("standby_12v_universal", 0, 0.3, ((-0.05, 0.03), (0.01, 0.04), (0.0, 0.07))),
+    ("legacy_24v_substitute", 0, 1.0, ((-0.07, 0.0), (0.03, 0.07), (-0.02, 0.04))),
+    ("legacy_24v_substitute", 1, 1.0, ((-0.10, -0.03), (0.03, 0.07), (0.0, 0.05))),
 ])
 def test_converged_points_agree_or_show_the_documented_gap(case, line_index, fraction, bands):
     """Where the engine has a period-1 orbit the two models agree within the
-    issue's tolerances (standby, 85 V, 30 % load) or show the documented gaps
-    (turn-on transition at high line, the cycle model's ideal limiter on the
-    legacy case; notes/periodic_steady_state.md).  If a model
+    issue's tolerances or show the documented gaps (turn-on transition at
+    high line, the limiter's trip voltage against the cycle model's ideal
+    limiter: ``_AUX_REASON``; notes/periodic_steady_state.md).  If a model
     change moves a gap out of its band this fails, and the xfail table above
     and the notes must be updated."""
     design = rcc.load_design(CASES / f"{case}.toml")
@@ -366,11 +377,11 @@ def test_library_rejects_bad_inputs():
 
 
 def test_cli_engine_trouble_is_a_clear_error_not_a_traceback():
-    """A supply the engine cannot run into a cycle (here the 5 V case at its
-    lowest input and full load, where the engine's circuit does not
-    oscillate) ends with a one-line reason and exit 1."""
-    out = runner.invoke(app, ["cycle", str(CASES / "aux_5v_48v_dc.toml"), "--line", "36V",
-                              "--load", "1A"])
+    """A supply the engine cannot run into a cycle (here the fault case with
+    the feedback winding reversed, which does not oscillate) ends with a
+    one-line reason and exit 1.  (The 5 V case at 36 V and 1 A, used here
+    before, bursts with the engine's junction laws.)"""
+    out = runner.invoke(app, ["cycle", str(CASES / "fault_feedback_reversed.toml")])
     assert out.exit_code == 1, out.output
     assert "no periodic steady state" in out.output
     assert "Traceback" not in out.output and out.exception is None or \

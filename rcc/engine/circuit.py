@@ -27,16 +27,28 @@ Device models
 -------------
 *Switch* (NPN): charge-control model with one state, the stored base charge
 ``q`` (Moll 1954; Beaufoy & Sparkes 1957).  Cut-off: no junction current,
-``dq/dt = -q / tau_BF``.  Active: base-emitter junction as ``Vbe(T)`` plus a
-base resistance, collector current ``q / tau_F`` with ``tau_F = 1 / (2 pi fT)``
+``dq/dt = -q / tau_BF``.  Active: the base-emitter junction voltage follows
+the stored charge, ``Vbe = V_T ln(1 + q / (tau_F I_S))`` (the collector
+current ``q / tau_F`` on the Shockley law, ``I_S`` from ``switch.vbe`` at the
+trip current ``limiter.vbe / limiter.sense_resistance`` as in the start-up
+analysis; the junction of the Gummel-Poon charge-control model [7]_), as
+chords in ``q`` (see *Junction laws* below), plus the base spreading
+resistance ``SWITCH_BASE_RESISTANCE``; so the base looks like ``r_pi`` in
+parallel with the diffusion capacitance ``C_pi = tau_BF / r_pi`` of the
+hybrid-pi model, the junction voltage falls along the law while a reverse
+base current draws the charge out, and cut-off comes when the charge is
+gone.  Collector current ``q / tau_F`` with ``tau_F = 1 / (2 pi fT)``
 and ``dq/dt = i_B - q / tau_BF``, ``tau_BF = hFE tau_F`` (so ``i_C = hFE i_B``
 in steady state).  Saturated: collector-emitter ``Vce,sat`` plus a
 resistance, ``dq/dt = i_B - i_C / hFE - (q - tau_F i_C) / tau_S``; the
 transistor leaves saturation when the excess charge ``q - tau_F i_C`` is
 gone, which puts the storage time in the model.  ``tau_S`` is chosen so
 that the storage time at the datasheet drive ``I_B1 = I_B2`` with hard
-overdrive equals ``switch.storage_time``: ``tau_S = t_s / ln 2``.
-Base-emitter reverse breakdown at ``switch.vebo``.
+overdrive equals ``switch.storage_time``: ``tau_S = t_s / ln 2``.  In
+saturation the junction follows the whole stored charge, excess included,
+so it sits ``V_T ln(q / (tau_F i_C))`` above the active-region law (about
+18 mV at twofold overdrive).  Base-emitter reverse breakdown at
+``switch.vebo``.
 
 *Switch collector-base capacitance* (Miller feedback): the switch's
 ``output_capacitance`` is the datasheet Cob, measured common-base with the
@@ -71,27 +83,81 @@ energy balance still closes (Tellegen), but a real ``C_mu`` is lossless and
 the source's cycle average ``-C_mu <v_b dv_c/dt>`` is the approximation's
 error there: -4 mW and -12 mW against 0.89 W and 1.29 W of switch loss on
 the standby and legacy worked cases at 325 V (under 1 %).  The remaining
-difference at the DC point is the fixed junction resistance
-``SWITCH_BASE_RESISTANCE`` in place of the
-incremental ``r_pi = hFE V_T / I_C`` of the real junction [5]_: 1-4 % on
-the standby case, up to about 20 % for a low-gain switch at a few mA
-(``r_pi`` of 100-200 ohm next to the drive resistor).
+difference at the DC point is the chord of the junction law in place of
+its tangent, the incremental ``r_pi = hFE V_T / I_C`` [5]_: the
+DC-point pole of the standby case is within 0.5 % of the start-up
+analysis's, and within -1.0 to +1.7 % at the hFE and temperature corners
+at low line (with the former fixed 2 ohm junction: 1-4 %).
 
-*Limiter* (NPN): cut-off, active (``i_C = hFE i_B``), saturated, and a
+*Limiter* (NPN): base-emitter junction as chords of the Shockley law
+through ``limiter.vbe`` at 1 mA of collector current (as in the start-up
+analysis) with ``LIMITER_BASE_RESISTANCE`` in series, in every conducting
+state: cut-off, active (``i_C = hFE i_B``), saturated, and a
 "collector-open" state when its collector is pulled below the saturation
 voltage with the base driven (the inverse-mode current is neglected, so the
 limiter cannot source the drive current back into the switch base); no
 charge storage (a small-signal transistor, much faster than the switch).
 
-*Diodes and zeners*: forward drop plus resistance, blocking otherwise.  The
-limiter's collector-base junction is one of them (from its base into the
-switch base): it resets the drive capacitor while the feedback winding holds
-the switch base negative.
+*Diodes and zeners*: chords of their exponential laws with series
+resistance, blocking below the first chord's zero-current voltage.  The
+output rectifier and the clamp diode have their datasheet drop
+(``output.rectifier_drop``, ``CLAMP_DIODE_DROP``) across the junction at
+1 A, the auxiliary rectifier (``regulation.rectifier_drop``) at 10 mA; the
+regulation zener has ``Vz(T)`` at its 5 mA test current and a knee of
+60 mV per decade of current (Sze & Ng [8]_, sec. 2.4.2; the slope  # common
+practice), with ``regulation.series_resistance`` plus
+``REGULATION_ZENER_RESISTANCE`` in series.  The limiter's collector-base
+junction is a diode too (from its base into the switch base; the inverse
+Ebers-Moll diode with reverse gain 1, 1 mA at ``limiter.vbe``): it resets the
+drive capacitor while the feedback winding holds the switch base negative.
+The zener clamp and the optocoupler LED keep a single threshold with a
+resistance.
+
+*Junction laws* (:class:`JunctionLaw`, :class:`JunctionSegments`): chords
+of ``V(I) = offset + n V_T ln(1 + I / I_S) + R I`` (Shockley [7]_ with
+series resistance; emission coefficient 1) between geometric breakpoints:
+two chords per decade (``SEGMENTS_PER_DECADE``) where the threshold sets
+what the circuit does (start-up, trip, regulation), so every chord lies
+below the law by at most ``0.163 n V_T`` (4.2 mV at 25 degC), one per decade
+(``COARSE_SEGMENTS_PER_DECADE``) where only a drop in series with volts
+does, at most ``0.619 n V_T`` (16 mV); the closed form is in
+:class:`JunctionSegments`, the test ``tests/test_engine_junctions.py``
+computes the error of every table.  Ranges (first to last breakpoint; the
+first chord continues to zero current, where the junction starts or stops
+conducting with no jump, the last continues above): fine, switch collector
+current 10 uA-10 A (12 chords, in stored charge), limiter base current
+100 nA-100 mA (12; collector 10 uA-10 A at hFE 100), zener 10 uA-100 mA
+(8), limiter collector-base 10 uA-100 mA (8); coarse, auxiliary rectifier
+100 uA-1 A (4), output rectifier and clamp diode 10 mA-10 A (3).  (Two
+chords per decade everywhere built about twice as many topologies and ran
+a 1000-cycle start-up about 2.5 times slower; one per decade on the
+limiter's collector-base junction made the limiter chatter between its
+active and saturated states at one instant on the legacy case.)
+Below the first breakpoint the current is off by less than that
+breakpoint's current.  Every chord is a state of its device (``active/3``,
+``on/1``; :func:`state_kind` strips the chord), and moving between chords
+is a switching event: it costs events, not accuracy (the field is
+continuous across a breakpoint, so its saltation matrix is the identity).
+Where thresholds matter this is what a sharp threshold missed: a real
+junction conducts microamperes a hundred millivolts and more below its
+datasheet voltage, so the regulation zener keeps the limiter on (and the
+switch off) after demagnetization until the auxiliary capacitor has drained
+further than a threshold model lets it.
 
 *Transformer*: magnetizing inductance (with the core-loss resistance in
 parallel) and a leakage inductance in series on the primary side, then an
 ideal transformer with the feedback, output and auxiliary windings.  This
 magnetizing-plus-leakage form stays well conditioned for coupling near 1.
+A resistance ``Q sqrt(L_lk / C_node)`` across the leakage inductance
+(:func:`leakage_damping_resistance`, ``Q`` =
+``transformer.leakage_ring_quality``, default 4) stands for the loss of
+the winding and core at the megahertz of the leakage ring: as an effective
+series resistance ``(omega L_lk)^2 / R`` it grows as ``f^2`` like the
+proximity-effect loss of a winding (Dowell [9]_), is negligible in the
+on-time and the flyback plateau and gives the ring quality factor ``Q``:
+it dies within about a microsecond after the clamp lets go, as on a bench,
+instead of ringing through the whole flyback (quality factor about 90
+before).
 The feedback winding sees the magnetizing voltage only (a real winding
 couples part of the leakage ring too).  The leakage ring at turn-off still
 reaches the base through the switch's collector-base capacitance (above):
@@ -104,7 +170,8 @@ excursion ends in cut-off without saturating and is not a turn-on
 the expected output voltage it behaves as a resistance through the origin,
 as an electronic load does near zero volts); a constant power, approximated
 by secants of the hyperbola ``i = P / v`` between geometrically spaced
-breakpoints (relative current error below 0.3 %), a resistance through the
+breakpoints (relative current error below ``(r^(1/4) - r^(-1/4))^2`` =
+0.43 % for the spacing ``r = 2^(3/16)``), a resistance through the
 origin below the first breakpoint and a constant current above the last.
 
 A conductance ``NODE_LEAK_CONDUCTANCE`` from every node to ground keeps the
@@ -127,6 +194,15 @@ References
 .. [6] J. M. Miller, "Dependence of the input impedance of a
    three-electrode vacuum tube upon the load in the plate circuit",
    Scientific Papers of the Bureau of Standards 15(351), 1920.
+.. [7] W. Shockley, "The theory of p-n junctions in semiconductors and p-n
+   junction transistors", Bell Syst. Tech. J. 28(3), 435-489, 1949;
+   H. K. Gummel, H. C. Poon, "An integral charge control model of bipolar
+   transistors", Bell Syst. Tech. J. 49(5), 827-852, 1970.
+.. [8] S. M. Sze, K. K. Ng, *Physics of Semiconductor Devices*, 3rd ed.,
+   Wiley, 2007, sec. 2.3 (ideal diode law, eq. 2.48) and sec. 2.4.2
+   (junction breakdown).
+.. [9] P. L. Dowell, "Effects of eddy currents in transformer windings",
+   Proc. IEE 113(8), 1387-1394, 1966.
 """
 
 from __future__ import annotations
@@ -147,6 +223,13 @@ __all__ = [
     "build_circuit",
     "SIGNAL_NAMES",
     "SWITCH_STATES",
+    "JunctionLaw",
+    "JunctionSegments",
+    "junction_segments",
+    "junction_worst_error",
+    "chord_error_bound",
+    "state_kind",
+    "leakage_damping_resistance",
 ]
 
 #: Conductance from every node to ground [S]  # common practice (gmin)
@@ -168,6 +251,39 @@ CLAMP_DIODE_DROP = 1.0
 CLAMP_DIODE_RESISTANCE = 1.0
 CLAMP_ZENER_RESISTANCE = 2.0
 REGULATION_ZENER_RESISTANCE = 10.0
+#: Chords per decade of current where a junction's threshold matters (worst
+#: error 0.163 n V_T, 4.2 mV at 25 degC: :class:`JunctionSegments`), and where
+#: only its drop on volts and more does (0.619 n V_T, 16 mV)
+SEGMENTS_PER_DECADE = 2.0
+COARSE_SEGMENTS_PER_DECADE = 1.0
+#: Breakpoint ranges [A] and chords per decade of the junction tables: the
+#: switch collector current (its stored charge), the limiter base current
+#: (collector from 10 uA at hFE 100), the regulation zener, the limiter's
+#: collector-base junction (fine: they set the start-up, the trip, the
+#: regulation and the drive reset), the auxiliary rectifier, and the output
+#: rectifier and clamp diode (coarse).  Below the first breakpoint the first chord continues to
+#: zero current; above the last the last chord continues.
+SWITCH_JUNCTION_CURRENTS = (1e-5, 10.0, SEGMENTS_PER_DECADE)
+LIMITER_JUNCTION_CURRENTS = (1e-7, 1e-1, SEGMENTS_PER_DECADE)
+ZENER_CURRENTS = (1e-5, 1e-1, SEGMENTS_PER_DECADE)
+LIMITER_COLLECTOR_BASE_CURRENTS = (1e-5, 1e-1, SEGMENTS_PER_DECADE)
+AUX_RECTIFIER_CURRENTS = (1e-4, 1.0, COARSE_SEGMENTS_PER_DECADE)
+POWER_RECTIFIER_CURRENTS = (1e-2, 10.0, COARSE_SEGMENTS_PER_DECADE)
+#: Collector current at which the limiter's ``vbe`` holds [A] (as in the
+#: start-up analysis, :data:`rcc.startup.dcpoint.LIMITER_REFERENCE_CURRENT`)
+LIMITER_REFERENCE_CURRENT = 1e-3
+#: Currents at which a rectifier's datasheet drop (``output.rectifier_drop``,
+#: ``regulation.rectifier_drop``, :data:`CLAMP_DIODE_DROP`) is the junction
+#: voltage [A]: power rectifiers quote VF near 1 A, small-signal diodes at
+#: 10 mA  # common practice
+POWER_RECTIFIER_REFERENCE_CURRENT = 1.0
+SIGNAL_RECTIFIER_REFERENCE_CURRENT = 1e-2
+#: Regulation zener: ``zener_voltage`` at the test current I_ZT [A] (small
+#: zener datasheets quote VZ at 5 mA), knee slope [V/decade], and the current
+#: at the foot of the knee where the exponential starts [A]  # common practice
+ZENER_REFERENCE_CURRENT = 5e-3
+ZENER_KNEE_SLOPE = 0.06
+ZENER_KNEE_FOOT_CURRENT = 1e-9
 #: Constant-current load: resistive below this fraction of the expected output voltage
 LOAD_KNEE_FRACTION = 0.2
 #: Constant-power load: breakpoints from 0.25x to 2x the expected voltage
@@ -217,8 +333,9 @@ class _Element:
     b: str
     value: float = 0.0   # R [ohm], C [F], L [H], V0 [V], gain [1], ratio [1]
     resistance: float = 0.0  # series resistance of a V element [ohm]
-    state: str = ""      # state variable (C, L, Istate)
+    state: str = ""      # state variable (C, L, Istate; V: its voltage follows it)
     control: str = ""    # controlling branch (CCCS)
+    gain: float = 0.0    # V element with a state: voltage value + gain * state
 
 
 @dataclass(frozen=True)
@@ -343,6 +460,218 @@ class Topology:
         return self.A @ np.asarray(x) + self.b
 
 
+
+# -------------------------------------------------------- junction laws
+@dataclass(frozen=True)
+class JunctionLaw:
+    """Exponential law of a junction with series resistance.
+
+    ``V(I) = offset + emission_voltage * ln(1 + I / saturation_current)
+    + series_resistance * I`` for a forward current ``I >= 0``: the Shockley
+    law ``I = I_S (exp(V_j / (n V_T)) - 1)`` solved for the junction voltage
+    ``V_j``, plus the ohmic drop (Shockley 1949 [7]_; Sze & Ng 2007 [8]_,
+    eq. 2.48 with series resistance).  A zener in breakdown follows the same
+    form above its knee with ``offset`` near the breakdown voltage and an
+    emission voltage of about 26 mV (60 mV per decade of current, a
+    soft avalanche knee, [8]_ sec. 2.4.2  # common practice for the slope).
+
+    Attributes
+    ----------
+    saturation_current : float
+        ``I_S`` [A].
+    emission_voltage : float
+        ``n V_T`` [V].
+    series_resistance : float
+        Ohmic resistance in series [ohm].
+    offset : float
+        Constant voltage in series (0 for a forward-biased diode; the
+        breakdown voltage less the knee for a zener) [V].
+    """
+
+    saturation_current: float
+    emission_voltage: float
+    series_resistance: float
+    offset: float = 0.0
+
+    @classmethod
+    def through(cls, voltage, current, emission_voltage, series_resistance=0.0,
+                saturation_current=None) -> "JunctionLaw":
+        """The law through one datasheet point ``(current, voltage)``.
+
+        Parameters
+        ----------
+        voltage : float
+            Terminal voltage at ``current`` [V].
+        current : float
+            Reference forward current [A].
+        emission_voltage : float
+            ``n V_T`` [V].
+        series_resistance : float
+            [ohm].
+        saturation_current : float, optional
+            Given for a zener (then ``offset`` takes up the rest of the
+            voltage); default: from the point with ``offset = 0`` [A].
+        """
+        junction = voltage - series_resistance * current
+        if saturation_current is None:
+            if not junction > 0:
+                raise ValueError(f"junction voltage {junction!r} at {current!r} A: expected "
+                                 "a positive forward voltage [V]")
+            return cls(current / math.expm1(junction / emission_voltage), emission_voltage,
+                       series_resistance)
+        offset = junction - emission_voltage * math.log1p(current / saturation_current)
+        return cls(saturation_current, emission_voltage, series_resistance, offset)
+
+    def voltage(self, current):
+        """Terminal voltage at forward current(s) ``current`` [A] -> [V]."""
+        current = np.asarray(current, dtype=float)
+        return (self.offset + self.emission_voltage * np.log1p(current / self.saturation_current)
+                + self.series_resistance * current)
+
+    def current(self, voltage):
+        """Forward current at terminal voltage(s) ``voltage`` [V] -> [A]
+        (Newton on the implicit law; 0 below ``offset``)."""
+        voltage = np.asarray(voltage, dtype=float)
+        m, i_s, r = self.emission_voltage, self.saturation_current, self.series_resistance
+        drive = np.maximum(voltage - self.offset, 0.0)
+        i = np.minimum(i_s * np.expm1(np.minimum(drive / m, 700.0)), drive / max(r, 1e-300))
+        for _ in range(100):
+            f = self.offset + m * np.log1p(i / i_s) + r * i - voltage
+            i_new = np.maximum(i - f / (m / (i + i_s) + r), 0.5 * i)
+            if np.all(np.abs(i_new - i) <= 1e-14 * np.maximum(i, 1e-300)):
+                i = i_new
+                break
+            i = i_new
+        return np.where(voltage > self.offset, i, 0.0)
+
+
+@dataclass(frozen=True)
+class JunctionSegments:
+    """Piecewise-linear approximation of a :class:`JunctionLaw`.
+
+    Segment ``k`` is the chord of the law between the breakpoint currents
+    ``currents[k]`` and ``currents[k+1]``: a voltage source
+    ``drops[k]`` in series with ``resistances[k]``; the last chord
+    continues above the last breakpoint, and the first one below the first
+    breakpoint down to zero current at ``drops[0]`` (:attr:`threshold`),
+    where the junction blocks: below ``currents[0]`` the current is off by
+    less than ``currents[0]``, and entering or leaving conduction is
+    continuous (zero current on both sides).  The breakpoints are geometric, so every
+    chord spans the same current ratio ``r`` and, because ``ln`` is concave,
+    lies below the law by at most (tangent-parallel point of the chord)::
+
+        emission_voltage * (ln((r - 1) / ln r) - 1 + ln(r) / (r - 1))
+
+    which is 0.163 ``n V_T`` (4.2 mV at ``n V_T`` = 25.7 mV) for two
+    chords per decade and 0.619 ``n V_T`` for one; the series resistance is
+    linear and exact.  :func:`junction_worst_error` computes the error on
+    a dense grid and the tests check it against this bound.
+
+    Attributes
+    ----------
+    law : JunctionLaw
+    currents : ndarray, shape (k+1,)
+        Breakpoint currents, increasing [A].
+    voltages : ndarray, shape (k+1,)
+        The law at the breakpoints [V].
+    drops, resistances : ndarray, shape (k,)
+        Chord ``k``: ``V = drops[k] + resistances[k] * I`` [V], [ohm].
+    """
+
+    law: JunctionLaw
+    currents: np.ndarray
+    voltages: np.ndarray
+    drops: np.ndarray
+    resistances: np.ndarray
+
+    @property
+    def threshold(self) -> float:
+        """Voltage at which the junction starts conducting: the first chord
+        at zero current [V]."""
+        return float(self.drops[0])
+
+    def voltage(self, current):
+        """Piecewise-linear voltage at forward current(s) ``current >= 0``
+        [A] -> [V]."""
+        current = np.asarray(current, dtype=float)
+        k = np.clip(np.searchsorted(self.currents, current, side="right") - 1, 0,
+                    len(self.drops) - 1)
+        return self.drops[k] + self.resistances[k] * current
+
+    def current(self, voltage):
+        """Piecewise-linear current at voltage(s) ``voltage`` [V] -> [A]
+        (0 below the threshold)."""
+        voltage = np.asarray(voltage, dtype=float)
+        k = np.clip(np.searchsorted(self.voltages, voltage, side="right") - 1, 0,
+                    len(self.drops) - 1)
+        return np.maximum((voltage - self.drops[k]) / self.resistances[k], 0.0)
+
+
+def junction_segments(law: JunctionLaw, lowest: float, highest: float,
+                      per_decade: float = 2.0) -> JunctionSegments:
+    """Chords of a junction law between geometric breakpoints.
+
+    Parameters
+    ----------
+    law : JunctionLaw
+    lowest, highest : float
+        First and last breakpoint current [A].
+    per_decade : float
+        Chords per decade of current [1].
+
+    Returns
+    -------
+    JunctionSegments
+    """
+    count = max(1, int(round(per_decade * math.log10(highest / lowest))))
+    currents = np.geomspace(lowest, highest, count + 1)
+    voltages = law.voltage(currents)
+    resistances = np.diff(voltages) / np.diff(currents)
+    drops = voltages[:-1] - resistances * currents[:-1]
+    return JunctionSegments(law, currents, voltages, drops, resistances)
+
+
+def junction_worst_error(segments: JunctionSegments, points: int = 20001) -> float:
+    """Largest gap between the chords and the exponential law.
+
+    Parameters
+    ----------
+    segments : JunctionSegments
+        The chord table and its law.
+    points : int
+        Currents of the geometric grid over the breakpoint range [1].
+
+    Returns
+    -------
+    float
+        ``max |V_pwl(I) - V(I)|`` over the grid [V].
+    """
+    grid = np.geomspace(segments.currents[0], segments.currents[-1], points)
+    return float(np.max(np.abs(segments.voltage(grid) - segments.law.voltage(grid))))
+
+
+def chord_error_bound(ratio: float, emission_voltage: float) -> float:
+    """Largest gap between a logarithmic law and its chord.
+
+    Parameters
+    ----------
+    ratio : float
+        Current ratio spanned by the chord [1].
+    emission_voltage : float
+        ``n V_T`` of the law ``n V_T ln(I)`` [V].
+
+    Returns
+    -------
+    float
+        ``n V_T (ln((r-1)/ln r) - 1 + ln r/(r-1))``, the gap at the point
+        where the law's slope equals the chord's (closed form in
+        :class:`JunctionSegments`) [V].
+    """
+    log_ratio = math.log(ratio)
+    return emission_voltage * (math.log((ratio - 1.0) / log_ratio) - 1.0
+                               + log_ratio / (ratio - 1.0))
+
+
 # ---------------------------------------------------------------- circuit
 @dataclass(frozen=True)
 class Circuit:
@@ -416,6 +745,19 @@ class Circuit:
         """Device state indices of a topology code."""
         return tuple((int(code) // w) % r for w, r in zip(self.weights, self.radices))
 
+    def state_kinds(self, device: str) -> tuple:
+        """Kind of every state of ``device`` (:func:`state_kind`: the state
+        name without its junction chord), in state-index order."""
+        return tuple(state_kind(name)
+                     for name in self.device_state_names[self.device_index(device)])
+
+    @property
+    def max_guards(self) -> int:
+        """Most guards any topology can have (the sum over devices of the
+        most guards of one of their states)."""
+        return sum(max(len(state.guards) for state in device.states)
+                   for device in self._devices)
+
     def state_index(self, name: str) -> int:
         """Position of a state variable in the state vector."""
         return self.state_names.index(name)
@@ -467,6 +809,38 @@ def _expected_output_voltage(design: Design, temperature: float) -> float:
     if hold is not None:
         return float(hold)
     return 12.0  # no regulation and no target: breakpoints only  # common practice
+
+
+def leakage_damping_resistance(design: Design) -> float:
+    """Resistance across the leakage inductance that gives its ring with the
+    node capacitance the quality factor ``transformer.leakage_ring_quality``
+    [ohm].
+
+    Parameters
+    ----------
+    design : Design
+
+    Returns
+    -------
+    float
+        ``Q sqrt(L_lk / C_node)`` [ohm].
+
+    Notes
+    -----
+    The loss of a real winding at the megahertz of the leakage ring (eddy
+    and proximity currents in the copper, core and dielectric loss) grows
+    with frequency: a resistance ``R_p`` across the leakage inductance is an
+    effective series resistance ``(omega L)^2 / R_p``, rising as ``f^2`` (the
+    low-frequency proximity-effect law of Dowell 1966 [9]_), negligible in
+    the on-time and the flyback plateau, where the leakage carries a slowly
+    changing current, and ``sqrt(L/C)/Q`` at the ring.  A parallel RLC with
+    ``R_p = Q sqrt(L/C)`` has quality factor ``Q`` (any circuits text, e.g.
+    Nilsson & Riedel, *Electric Circuits*, ch. 8 and 9).
+    """
+    leakage = max(design.transformer.leakage_inductance,
+                  MIN_LEAKAGE_FRACTION * design.transformer.magnetizing_inductance)
+    return design.transformer.leakage_ring_quality * math.sqrt(
+        leakage / design.node_capacitance)
 
 
 def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: float,
@@ -539,6 +913,7 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         primary_top = "p1"
     els += [
         E("L", "leakage", primary_top, "m", leakage, state="i_leakage"),
+        E("R", "leakage_damping", primary_top, "m", leakage_damping_resistance(design)),
         E("L", "magnetizing", "m", "c", tr.magnetizing_inductance, state="i_magnetizing"),
         E("R", "core_loss", "m", "c", tr.core_loss_resistance),
         E("C", "node", "c", "0", design.node_capacitance, state="v_node"),
@@ -570,7 +945,6 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     DS = _DeviceState
     devs = []
     # ----- switch
-    be_on = E("V", "q1_be", "b", "e", vbe, SWITCH_BASE_RESISTANCE)
     # collector-base capacitance: its share of the node-capacitor current,
     # from ground into the base, in every state (Miller feedback, see the
     # module docstring)
@@ -584,65 +958,134 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     q_tol = tau_f * 1e-3 * CURRENT_TOLERANCE
     q_deep = tau_f * 1e3 * CURRENT_TOLERANCE   # the charge of 1 uA of collector current
     vbe_open = (("v", "b", 1.0), ("v", "e", -1.0))
-    devs.append(_Device("switch", (
-        DS("off", (miller,), (
-            G((("c", "", vbe),) + _scale(vbe_open, -1.0), 1, v_tol, "switch base reaches Vbe"),
-            G((("c", "", sw.vebo),) + vbe_open, 3, v_tol, "switch base-emitter breakdown"),
-        ), (("x", "q_base", -1.0 / tau_bf),)),
-        DS("active", (be_on, miller,
-                      E("Istate", "q1_collector", "c", "e", 1.0 / tau_f, state="q_base")), (
-            G((("x", "q_base", 1.0),), 0, q_tol, "switch stored charge gone",
-              deep=math.inf),
-            G((("v", "c", 1.0), ("v", "e", -1.0), ("c", "", -sw.vce_sat)), 2, v_tol,
-              "switch saturates"),
-        ), (("i", "q1_be", 1.0), ("x", "q_base", -1.0 / tau_bf))),
-        DS("saturated", (be_on, miller, E("V", "q1_ce", "c", "e", sw.vce_sat,
-                                          SWITCH_SATURATION_RESISTANCE)), (
-            G((("x", "q_base", 1.0), ("i", "q1_ce", -tau_f)), 1, q_tol,
-              "switch excess charge gone (end of storage)", deep=q_deep),
-        ), (("i", "q1_be", 1.0), ("i", "q1_ce", -1.0 / gain), ("x", "q_base", -1.0 / tau_s),
-            ("i", "q1_ce", tau_f / tau_s))),
-        DS("breakdown", (miller, E("V", "q1_eb", "e", "b", sw.vebo, BREAKDOWN_RESISTANCE)), (
-            G((("i", "q1_eb", 1.0),), 0, i_tol, "base-emitter breakdown ends"),
-        ), (("x", "q_base", -1.0 / tau_bf),)),
-    )))
+    vt = float(devices.thermal_voltage(temperature))
+    # base-emitter junction: its voltage follows the stored charge,
+    # Vbe = V_T ln(1 + q / (tau_F I_S)) (the collector current q / tau_F on
+    # the Shockley law; I_S from switch.vbe at the trip current, as in the
+    # start-up analysis), as chords in q, plus the base spreading resistance
+    trip = limiter_vbe / lim.sense_resistance
+    switch_junction = junction_segments(JunctionLaw.through(vbe, trip, vt),
+                                        *SWITCH_JUNCTION_CURRENTS)
+    chords = len(switch_junction.drops)
+    # state order: off, active/1..K, saturated/1..K, breakdown
+    active0, saturated0, breakdown = 1, 1 + chords, 1 + 2 * chords
+    collector_active = E("Istate", "q1_collector", "c", "e", 1.0 / tau_f, state="q_base")
+    collector_saturated = E("V", "q1_ce", "c", "e", sw.vce_sat, SWITCH_SATURATION_RESISTANCE)
+    active_law = (("i", "q1_be", 1.0), ("x", "q_base", -1.0 / tau_bf))
+    saturated_law = (("i", "q1_be", 1.0), ("i", "q1_ce", -1.0 / gain),
+                     ("x", "q_base", -1.0 / tau_s), ("i", "q1_ce", tau_f / tau_s))
+
+    def charge_guards(k, first):
+        """Chord ``k`` of the junction holds for ``q`` between the charges of
+        its breakpoint currents; below the first chord the stored charge is
+        gone (cut-off)."""
+        guards = []
+        if k == 0:
+            guards.append(G((("x", "q_base", 1.0),), 0, q_tol, "switch stored charge gone",
+                            deep=math.inf))
+        else:
+            low = tau_f * float(switch_junction.currents[k])
+            guards.append(G((("x", "q_base", 1.0), ("c", "", -low)), first + k - 1, q_tol,
+                            "switch charge below a junction breakpoint"))
+        if k + 1 < chords:
+            high = tau_f * float(switch_junction.currents[k + 1])
+            guards.append(G((("c", "", high), ("x", "q_base", -1.0)), first + k + 1, q_tol,
+                            "switch charge above a junction breakpoint"))
+        return tuple(guards)
+
+    switch_states = [DS("off", (miller,), (
+        G((("c", "", switch_junction.threshold),) + _scale(vbe_open, -1.0), active0,
+          v_tol, "switch base reaches its junction threshold"),
+        G((("c", "", sw.vebo),) + vbe_open, breakdown, v_tol, "switch base-emitter breakdown"),
+    ), (("x", "q_base", -1.0 / tau_bf),))]
+    for kind, first in (("active", active0), ("saturated", saturated0)):
+        for k in range(chords):
+            junction = E("V", "q1_be", "b", "e", float(switch_junction.drops[k]),
+                         SWITCH_BASE_RESISTANCE, state="q_base",
+                         gain=float(switch_junction.resistances[k]) / tau_f)
+            if kind == "active":
+                own = (G((("v", "c", 1.0), ("v", "e", -1.0), ("c", "", -sw.vce_sat)),
+                         saturated0 + k, v_tol, "switch saturates"),)
+                chord = charge_guards(k, first)
+                switch_states.append(DS(f"active/{k + 1}", (junction, miller, collector_active),
+                                        own + chord, active_law))
+            else:
+                own = (G((("x", "q_base", 1.0), ("i", "q1_ce", -tau_f)), active0 + k, q_tol,
+                         "switch excess charge gone (end of storage)", deep=q_deep),)
+                chord = charge_guards(k, first)[1 if k == 0 else 0:]
+                switch_states.append(DS(f"saturated/{k + 1}",
+                                        (junction, miller, collector_saturated),
+                                        own + chord, saturated_law))
+    switch_states.append(DS("breakdown", (miller, E("V", "q1_eb", "e", "b", sw.vebo,
+                                                    BREAKDOWN_RESISTANCE)), (
+        G((("i", "q1_eb", 1.0),), 0, i_tol, "base-emitter breakdown ends"),
+    ), (("x", "q_base", -1.0 / tau_bf),)))
+    devs.append(_Device("switch", tuple(switch_states)))
     # ----- limiter
-    q2_be = E("V", "q2_be", "l", "0", limiter_vbe, LIMITER_BASE_RESISTANCE)
-    devs.append(_Device("limiter", (
-        DS("off", (), (G((("c", "", limiter_vbe), ("v", "l", -1.0)), 1, v_tol,
-                         "limiter base reaches Vbe"),)),
-        DS("active", (q2_be, E("CCCS", "q2_collector", "b", "0", lim.hfe, control="q2_be")), (
-            G((("i", "q2_be", 1.0),), 0, i_tol, "limiter base current ends"),
-            G((("v", "b", 1.0), ("c", "", -LIMITER_SATURATION_VOLTAGE)), 2, v_tol,
-              "limiter saturates"),
-        )),
-        DS("saturated", (q2_be, E("V", "q2_ce", "b", "0", LIMITER_SATURATION_VOLTAGE,
-                                  LIMITER_SATURATION_RESISTANCE)), (
-            G((("i", "q2_be", lim.hfe), ("i", "q2_ce", -1.0)), 1, i_tol,
-              "limiter leaves saturation"),
-            G((("i", "q2_be", 1.0),), 0, i_tol, "limiter base current ends"),
-            G((("i", "q2_ce", 1.0),), 3, i_tol, "limiter collector current reverses"),
-        )),
-        DS("collector-open", (q2_be,), (
-            G((("c", "", LIMITER_SATURATION_VOLTAGE), ("v", "b", -1.0)), 2, v_tol,
-              "limiter collector rises to saturation"),
-            G((("i", "q2_be", 1.0),), 0, i_tol, "limiter base current ends"),
-        )),
-    )))
+    limiter_junction = junction_segments(
+        JunctionLaw.through(limiter_vbe + LIMITER_BASE_RESISTANCE * LIMITER_REFERENCE_CURRENT
+                            / lim.hfe, LIMITER_REFERENCE_CURRENT / lim.hfe, vt,
+                            LIMITER_BASE_RESISTANCE), *LIMITER_JUNCTION_CURRENTS)
+    chords2 = len(limiter_junction.drops)
+    # state order: off, active/1..K, saturated/1..K, collector-open/1..K
+    active2, saturated2, open2 = 1, 1 + chords2, 1 + 2 * chords2
+    limiter_states = [DS("off", (), (G((("c", "", limiter_junction.threshold), ("v", "l", -1.0)),
+                                       active2, v_tol, "limiter base reaches its threshold"),))]
+    for kind, first in (("active", active2), ("saturated", saturated2),
+                        ("collector-open", open2)):
+        for k in range(chords2):
+            q2_be = E("V", "q2_be", "l", "0", float(limiter_junction.drops[k]),
+                      float(limiter_junction.resistances[k]))
+            chord = _segment_guards("q2_be", limiter_junction, k, first + k - 1 if k else 0,
+                                    first + k + 1 if k + 1 < chords2 else None)
+            if kind == "active":
+                elements = (q2_be, E("CCCS", "q2_collector", "b", "0", lim.hfe,
+                                     control="q2_be"))
+                own = (G((("v", "b", 1.0), ("c", "", -LIMITER_SATURATION_VOLTAGE)),
+                         saturated2 + k, v_tol, "limiter saturates"),)
+            elif kind == "saturated":
+                elements = (q2_be, E("V", "q2_ce", "b", "0", LIMITER_SATURATION_VOLTAGE,
+                                     LIMITER_SATURATION_RESISTANCE))
+                own = (G((("i", "q2_be", lim.hfe), ("i", "q2_ce", -1.0)), active2 + k, i_tol,
+                         "limiter leaves saturation"),
+                       G((("i", "q2_ce", 1.0),), open2 + k, i_tol,
+                         "limiter collector current reverses"))
+            else:
+                elements = (q2_be,)
+                own = (G((("c", "", LIMITER_SATURATION_VOLTAGE), ("v", "b", -1.0)),
+                         saturated2 + k, v_tol, "limiter collector rises to saturation"),)
+            limiter_states.append(DS(f"{kind}/{k + 1}", elements, own + chord))
+    devs.append(_Device("limiter", tuple(limiter_states)))
     # the limiter's collector-base junction: conducts from its base into the
     # switch base once the feedback winding pulls that below about -Vbe, and
-    # so resets the drive capacitor through R_lb (notes/circuit.md)
-    devs.append(_diode("limiter_collector_base", "l", "b", limiter_vbe,
-                       LIMITER_BASE_RESISTANCE))
-    devs.append(_diode("output_rectifier", "s", "o", out.rectifier_drop,
-                       OUTPUT_RECTIFIER_RESISTANCE))
+    # so resets the drive capacitor through R_lb (notes/circuit.md); the
+    # inverse Ebers-Moll diode with reverse gain 1 carries the limiter's
+    # reference current at its Vbe
+    junctions = {"switch": switch_junction, "limiter": limiter_junction}
+    junctions["limiter_collector_base"] = junction_segments(
+        JunctionLaw.through(limiter_vbe + LIMITER_BASE_RESISTANCE * LIMITER_REFERENCE_CURRENT,
+                            LIMITER_REFERENCE_CURRENT, vt, LIMITER_BASE_RESISTANCE),
+        *LIMITER_COLLECTOR_BASE_CURRENTS)
+    devs.append(_junction("limiter_collector_base", "l", "b",
+                          junctions["limiter_collector_base"]))
+    junctions["output_rectifier"] = _rectifier_segments(
+        out.rectifier_drop, OUTPUT_RECTIFIER_RESISTANCE, POWER_RECTIFIER_REFERENCE_CURRENT,
+        POWER_RECTIFIER_CURRENTS, vt)
+    devs.append(_junction("output_rectifier", "s", "o", junctions["output_rectifier"]))
     zener_v = None
     if has_aux:
-        devs.append(_diode("aux_rectifier", "w", "a", reg.rectifier_drop,
-                           AUX_RECTIFIER_RESISTANCE))
+        junctions["aux_rectifier"] = _rectifier_segments(
+            reg.rectifier_drop, AUX_RECTIFIER_RESISTANCE, SIGNAL_RECTIFIER_REFERENCE_CURRENT,
+            AUX_RECTIFIER_CURRENTS, vt)
+        devs.append(_junction("aux_rectifier", "w", "a", junctions["aux_rectifier"]))
         zener_v = float(devices.zener_voltage(reg.zener_voltage, reg.zener_tempco, temperature))
-        devs.append(_diode("regulation_zener", "a", "l", zener_v,
-                           reg.series_resistance + REGULATION_ZENER_RESISTANCE))
+        resistance = reg.series_resistance + REGULATION_ZENER_RESISTANCE
+        junctions["regulation_zener"] = junction_segments(
+            JunctionLaw.through(zener_v + resistance * ZENER_REFERENCE_CURRENT,
+                                ZENER_REFERENCE_CURRENT, ZENER_KNEE_SLOPE / math.log(10.0),
+                                resistance, saturation_current=ZENER_KNEE_FOOT_CURRENT),
+            *ZENER_CURRENTS)
+        devs.append(_junction("regulation_zener", "a", "l", junctions["regulation_zener"]))
     elif reg.method == "optocoupler":
         devs.append(_diode("optocoupler_led", "o", "0", reg.reference_voltage + reg.led_drop,
                            reg.series_resistance,
@@ -651,7 +1094,10 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     if clamp.type == "zener":
         devs.append(_diode("clamp_zener", "c", "bus", clamp.voltage, CLAMP_ZENER_RESISTANCE))
     elif has_rcd:
-        devs.append(_diode("clamp_diode", "c", "k", CLAMP_DIODE_DROP, CLAMP_DIODE_RESISTANCE))
+        junctions["clamp_diode"] = _rectifier_segments(
+            CLAMP_DIODE_DROP, CLAMP_DIODE_RESISTANCE, POWER_RECTIFIER_REFERENCE_CURRENT,
+            POWER_RECTIFIER_CURRENTS, vt)
+        devs.append(_junction("clamp_diode", "c", "k", junctions["clamp_diode"]))
     if load.kind in ("current", "power"):
         devs.append(_load_device(load, expected))
 
@@ -683,6 +1129,8 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         "expected_output_voltage": expected,
         "feedback_ratio": sign * tr.feedback_turns / np_turns,
         "output_ratio": tr.output_turns / np_turns,
+        "junctions": junctions,
+        "leakage_damping_resistance": leakage_damping_resistance(design),
     }
     return _make_circuit(els, devs, states, signals, parameters, design=design,
                          bus_voltage=float(bus_voltage), load=load,
@@ -740,6 +1188,15 @@ def _scale(terms, factor):
     return tuple((kind, key, coefficient * factor) for kind, key, coefficient in terms)
 
 
+def _rectifier_segments(drop, resistance, reference_current, currents, thermal_voltage_):
+    """Chords of a rectifier: the Shockley law (emission coefficient 1)
+    whose junction voltage is ``drop`` at ``reference_current``, with
+    ``resistance`` in series."""
+    return junction_segments(
+        JunctionLaw.through(drop + resistance * reference_current, reference_current,
+                            thermal_voltage_, resistance), *currents)
+
+
 def _diode(name, anode, cathode, drop, resistance, extra=()):
     """Diode or zener (breakdown direction given as anode -> cathode):
     forward drop plus resistance when conducting, open when blocking."""
@@ -751,6 +1208,57 @@ def _diode(name, anode, cathode, drop, resistance, extra=()):
         _DeviceState("on", (on,) + tuple(extra), (
             _Guard((("i", name, 1.0),), 0, CURRENT_TOLERANCE, f"{name} current ends"),)),
     ))
+
+
+def state_kind(name: str) -> str:
+    """Kind of a device state.
+
+    Parameters
+    ----------
+    name : str
+        State name, with the junction chord after a slash [-].
+
+    Returns
+    -------
+    str
+        The name without the chord (``"active/3"`` -> ``"active"``,
+        ``"on/1"`` -> ``"on"``, ``"off"`` -> ``"off"``) [-].
+    """
+    return name.partition("/")[0]
+
+
+def _segment_guards(branch, segments, index, below, above, scale=1.0):
+    """Guards that move a junction from chord ``index`` to its neighbours:
+    below ``currents[index]`` (below zero for the first chord) to state
+    ``below``, above
+    ``currents[index + 1]`` to ``above`` (None: the last chord continues).
+    ``scale`` multiplies the branch current (-1 for a branch that carries
+    the junction current backwards)."""
+    low = float(segments.currents[index]) if index > 0 else 0.0
+    guards = [_Guard((("i", branch, scale), ("c", "", -low)), below,
+                     CURRENT_TOLERANCE, f"{branch} below {low:.3g} A")]
+    if above is not None:
+        high = float(segments.currents[index + 1])
+        guards.append(_Guard((("c", "", high), ("i", branch, -scale)), above,
+                             CURRENT_TOLERANCE, f"{branch} above {high:.3g} A"))
+    return tuple(guards)
+
+
+def _junction(name, anode, cathode, segments: JunctionSegments, extra=()):
+    """Diode or zener (breakdown direction given as anode -> cathode) as
+    chords of its exponential law (:class:`JunctionSegments`): state
+    ``off`` blocks, state ``on/k`` is chord ``k``."""
+    count = len(segments.drops)
+    threshold = segments.threshold
+    states = [_DeviceState("off", (), (
+        _Guard((("c", "", threshold), ("v", anode, -1.0), ("v", cathode, 1.0)), 1,
+               VOLTAGE_TOLERANCE, f"{name} starts conducting"),))]
+    for k in range(count):
+        element = _Element("V", name, anode, cathode, float(segments.drops[k]),
+                           float(segments.resistances[k]))
+        states.append(_DeviceState(f"on/{k + 1}", (element,) + tuple(extra), _segment_guards(
+            name, segments, k, k, k + 2 if k + 1 < count else None)))
+    return _Device(name, tuple(states))
 
 
 def _load_device(load: Load, expected: float) -> _Device:
@@ -796,7 +1304,7 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
     charge_law = ()
     for device, s in zip(circuit._devices, device_states):
         state = device.states[s]
-        active[device.name] = state.name
+        active[device.name] = state_kind(state.name)
         elements.extend(state.elements)
         if state.charge_law:
             charge_law = state.charge_law
@@ -830,6 +1338,8 @@ def _build_topology(circuit: Circuit, code: int) -> Topology:
             if el.kind == "V":
                 G[k, k] -= el.resistance
                 B0[k] += el.value
+                if el.state:
+                    Bx[k, sidx[el.state]] += el.gain
             elif el.kind == "C":
                 Bx[k, sidx[el.state]] += 1.0
             else:  # ideal winding: v_a - v_b = ratio * (v_m - v_c)

@@ -104,7 +104,7 @@ def affine_flow(topology, duration: float) -> np.ndarray:
 
 
 def _switch_state_names(circuit):
-    return circuit.device_state_names[circuit.device_index("switch")]
+    return circuit.state_kinds("switch")
 
 
 def is_turn_on(circuit, device: int, before: int, after: int) -> bool:

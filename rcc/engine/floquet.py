@@ -164,6 +164,14 @@ class CycleData:
         return tuple(event.label for event in self.events)
 
 
+#: Relative jump of the vector field below which an event is taken as a
+#: crossing of a continuous field (no saltation, even when grazing): a genuine
+#: switch changes the field by order one, the breakpoint between two chords
+#: of a junction law only by the rounding of the nodal solution and the
+#: crossing tolerance
+CONTINUOUS_FIELD = 1e-6
+
+
 # ------------------------------------------------------------- sensitivities
 def saltation_matrix(field_before, field_after, gradient, reset_jacobian=None):
     """Saltation matrix of a transversal switching event.
@@ -198,10 +206,17 @@ def saltation_matrix(field_before, field_after, gradient, reset_jacobian=None):
     reset = np.eye(n) if reset_jacobian is None else np.asarray(reset_jacobian, dtype=float)
     speed = float(normal @ before)
     scale = float(np.linalg.norm(normal) * np.linalg.norm(before))
+    jump = after - reset @ before
     if scale == 0.0 or abs(speed) <= 1e-12 * scale:
+        if np.linalg.norm(jump) <= CONTINUOUS_FIELD * np.linalg.norm(before):
+            # the field is continuous across the surface (a breakpoint
+            # between two chords of one junction law, where both chords give
+            # the same currents): the flow crosses it without a jump, so
+            # the saltation is the reset alone however flat the crossing
+            return reset
         raise CycleError("grazing switching event: the flow is tangent to the "
                          "switching surface, the saltation matrix is undefined")
-    return reset + np.outer(after - reset @ before, normal) / speed
+    return reset + np.outer(jump, normal) / speed
 
 
 def monodromy(cycle: CycleData, include_section: bool = True) -> np.ndarray:

@@ -65,7 +65,8 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
     Returns
     -------
     matplotlib Axes grid, shape (6, 2)
-        The axes drawn in (signals in V and mA, time in ms and us) [-].
+        The axes drawn in (signals in V and mA, time in ms and us; the zoom
+        from the start of its window) [-].
     """
     import matplotlib
 
@@ -84,12 +85,16 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
     for row, (name, label, scale, unit) in enumerate(WAVEFORM_PANELS):
         values = trace.signals[name] * scale
         axes[row, 0].plot(trace.times * scale_t, values, lw=0.6, color="C0")
-        axes[row, 1].plot(trace.times[zoom] * zscale_t, values[zoom], lw=0.9, color="C1")
+        axes[row, 1].plot((trace.times[zoom] - start) * zscale_t, values[zoom], lw=0.9,
+                          color="C1")
         axes[row, 0].set_ylabel(f"{label} [{unit}]")
         for ax in axes[row]:
             ax.grid(True, alpha=0.3)
     axes[-1, 0].set_xlabel(f"time [{unit_t}] (start-up)")
-    axes[-1, 1].set_xlabel(f"time [{zunit_t}] (last {cycles} cycles)")
+    # the zoom's time axis starts at the window (absolute microseconds late
+    # in a run have too many digits to read)
+    axes[-1, 1].set_xlabel(f"time [{zunit_t}] after t = {start * scale_t:.6g} {unit_t} "
+                           f"(last {cycles} cycles)")
     axes[0, 0].set_title("whole run")
     axes[0, 1].set_title(f"last {cycles} turn-ons" if len(trace.turn_on_times()) > cycles
                          else "end of the run (too few turn-ons for cycles)")

@@ -547,7 +547,7 @@ def _summarise(circuit, line, bus, load, temperature, hfe, orbit, final, flags,
     times = times[keep]
     signals = {name: values[keep] for name, values in signals.items()}
     switch = circuit.device_index("switch")
-    switch_names = circuit.device_state_names[switch]
+    switch_names = circuit.state_kinds("switch")
     on_time = closing
     for event in final.events:
         state = switch_names[circuit.decode(event.topology_after)[switch]]
@@ -592,11 +592,23 @@ def _summarise(circuit, line, bus, load, temperature, hfe, orbit, final, flags,
 
 def _sample_cycle(circuit, cycle_result, samples: int):
     """States and signals over one engine cycle: uniform samples in every
-    segment plus its ends.  Returns ``(times, states, signals)``."""
+    segment plus its ends.  Returns ``(times, states, signals)``.
+
+    Zero-length segments are left out: they are the intermediate topologies
+    of a chain of switches at one instant (a device's switch violating
+    another device's guard, resolved before time advances), not states the
+    circuit is in.  Their signals are those of an inconsistent network (for
+    example the limiter still saturated while the switch base is already in
+    base-emitter breakdown: -650 mA through the limiter and +650 mA into the
+    base on the legacy worked case) and drew spikes on the plots that no
+    circuit produces.  :func:`rcc.engine.simulate.simulate` records only the
+    settled topology at an event for the same reason."""
     period = float(cycle_result.period) if cycle_result.period > 0 else 1.0
     spacing = period / samples
     times, states, codes = [], [], []
-    for segment in cycle_result.segments:
+    segments = [segment for segment in cycle_result.segments if segment.duration > 0] \
+        or list(cycle_result.segments[:1])
+    for segment in segments:
         top = circuit.topology(segment.topology)
         x = np.asarray(segment.start_state, dtype=float)
         n = x.size

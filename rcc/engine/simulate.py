@@ -56,6 +56,7 @@ from rcc.engine.circuit import (
     Circuit,
     EngineError,
     Topology,
+    state_kind,
 )
 
 __all__ = [
@@ -145,6 +146,11 @@ class Trace:
     topology_weights, topology_radices : tuple of int
         Mixed-radix layout of the topology codes (device ``d`` is in state
         ``(code // weights[d]) % radices[d]``).
+    switch_kinds : tuple of int
+        Kind of every switch state (index into
+        :data:`rcc.engine.circuit.SWITCH_STATES`).
+    device_state_names : tuple of tuple of str
+        Copied from the circuit.
     """
 
     times: np.ndarray
@@ -163,19 +169,26 @@ class Trace:
     device_names: tuple = ()
     topology_weights: tuple = ()
     topology_radices: tuple = ()
+    switch_kinds: tuple = ()
+    device_state_names: tuple = ()
 
     def __getitem__(self, name: str) -> np.ndarray:
         return self.signals[name]
 
-    def device_transitions(self, device: str, before: int, after: int) -> np.ndarray:
+    def device_transitions(self, device: str, before, after) -> np.ndarray:
         """Instants where ``device`` switched from state ``before`` to
-        ``after`` (state indices) [s]."""
+        ``after`` [s]: state indices, or state kinds (names without the
+        junction chord, :func:`rcc.engine.circuit.state_kind`; a move between
+        chords of one kind is not a transition of that kind)."""
         if device not in self.device_names:
             return np.empty(0)
         d = self.device_names.index(device)
         weight, radix = self.topology_weights[d], self.topology_radices[d]
         old = (self.event_from // weight) % radix
         new = (self.event_to // weight) % radix
+        if isinstance(before, str) or isinstance(after, str):
+            kinds = np.array([state_kind(name) for name in self.device_state_names[d]])
+            old, new = kinds[old], kinds[new]
         mask = (self.event_devices == d) & (old == before) & (new == after)
         return self.event_times[mask]
 
@@ -196,12 +209,12 @@ class Trace:
         d = self.device_names.index("switch")
         indices = turn_on_indices(self.event_devices, self.event_from, self.event_to, d,
                                   self.topology_weights[d], self.topology_radices[d],
-                                  self.stopped)
+                                  self.stopped, self.switch_kinds or None)
         return self.event_times[indices]
 
 
 def turn_on_indices(event_devices, event_from, event_to, switch: int, weight: int, radix: int,
-                    stopped: bool = False) -> np.ndarray:
+                    stopped: bool = False, kinds=None) -> np.ndarray:
     """Indices of the switch turn-ons in an event list.
 
     Parameters
@@ -217,6 +230,11 @@ def turn_on_indices(event_devices, event_from, event_to, switch: int, weight: in
     stopped : bool
         The list ends at a turn-on confirmed by the engine
         (``simulate(..., stop_on_turn_on=k)``): its last candidate counts.
+    kinds : array_like of int, shape (radix,), optional
+        Kind of every switch state as an index into
+        :data:`rcc.engine.circuit.SWITCH_STATES` (the junction chords of the
+        active and saturated regions are states of one kind); default: the
+        state index itself, for a switch with exactly those four states.
 
     Returns
     -------
@@ -239,19 +257,34 @@ def turn_on_indices(event_devices, event_from, event_to, switch: int, weight: in
     when ``stopped``.
     """
     devices = np.asarray(event_devices)
-    old = (np.asarray(event_from) // weight) % radix
-    new = (np.asarray(event_to) // weight) % radix
+    if kinds is None:
+        if radix != len(SWITCH_STATES):
+            raise ValueError(f"radix = {radix}: a switch with junction chords has more states "
+                             f"than {SWITCH_STATES}; pass kinds (Circuit.state_kinds)")
+        kinds = np.arange(radix)
+    kinds = np.asarray(kinds)
+    old = kinds[(np.asarray(event_from) // weight) % radix]
+    new = kinds[(np.asarray(event_to) // weight) % radix]
     found, candidate = [], -1
     for k in np.flatnonzero(devices == switch):
         if old[k] == _SWITCH_OFF and new[k] == _SWITCH_ACTIVE:
             candidate = int(k)
-        elif old[k] == _SWITCH_ACTIVE and candidate >= 0:
+        elif old[k] == _SWITCH_ACTIVE and candidate >= 0 and new[k] != _SWITCH_ACTIVE:
             if new[k] == _SWITCH_SATURATED:
                 found.append(candidate)
             candidate = -1
     if stopped and candidate >= 0:
         found.append(candidate)
     return np.array(found, dtype=np.int64)
+
+
+def _switch_kinds(circuit: Circuit) -> np.ndarray:
+    """Kind of every switch state as an index into ``SWITCH_STATES`` (one
+    state of kind ``off`` when the circuit has no switch)."""
+    if "switch" not in circuit.device_names:
+        return np.zeros(1, dtype=np.int64)
+    return np.array([SWITCH_STATES.index(kind) for kind in circuit.state_kinds("switch")],
+                    dtype=np.int64)
 
 
 @dataclass(frozen=True)
@@ -382,23 +415,40 @@ def _field(A, b, x, out, n):
 
 
 @njit(cache=True)
+def _find_slot(keys, values, code):
+    """Slot of a topology code in the open-addressing table (``-1``: not
+    built yet)."""
+    mask = keys.shape[0] - 1
+    h = code & mask
+    while True:
+        key = keys[h]
+        if key == code:
+            return values[h]
+        if key < 0:
+            return -1
+        h = (h + 1) & mask
+
+
+@njit(cache=True)
 def _kernel(x, t, slot, t_end, max_step,
-            slot_of_code, code_of_slot, weights, radices,
+            table_keys, table_values, code_of_slot, weights, radices,
             ladder, steps, top_level, nlevels, A, b,
             gc, gd, gt, gdeep, gdev, gtarget, ng,
             rec_t, rec_x, rec_code, rec_n, record,
             ev_t, ev_from, ev_to, ev_dev, ev_guard, ev_n, max_events,
-            stop_dev, stop_to, stop_confirm, stop_after,
+            stop_dev, stop_kinds, stop_after,
             storm, storm_pos, pending, pending_x, pending_storm, ev_base, rec_base):
     """Advance until t_end, a stop event, a missing topology or a full buffer.
 
-    The stop event is a *confirmed* turn-on of device ``stop_dev``: a switch
-    from state 0 (cut-off) to ``stop_to`` after ``stop_after`` is remembered
+    The stop event is a *confirmed* turn-on of device ``stop_dev`` (state
+    kinds ``stop_kinds``, indices into ``SWITCH_STATES``): a switch from
+    kind ``off`` to ``active`` after ``stop_after`` is remembered
     (``pending``: flag, time, slot, event and record counts including the
     flushed ones from ``ev_base`` and ``rec_base``, storm position; the state
     in ``pending_x``, the storm buffer in ``pending_storm``) and confirmed
-    when the device next switches from ``stop_to`` to ``stop_confirm``; any
-    other switch of the device from ``stop_to`` drops it.  On confirmation
+    when the device next switches from ``active`` to ``saturated``; any
+    other switch of the device out of the active kind drops it (moves
+    between junction chords of the active region do not).  On confirmation
     the run is put back exactly at the remembered event (state, time, slot,
     storm buffer) and ``_STOP`` is returned; the caller discards the events
     and samples after it (``pending[3]``, ``pending[4]``).  The pending
@@ -450,7 +500,7 @@ def _kernel(x, t, slot, t_end, max_step,
             code = code_of_slot[slot]
             current = (code // weights[dev]) % radices[dev]
             new_code = code + (gtarget[slot, fired] - current) * weights[dev]
-            new_slot = slot_of_code[new_code]
+            new_slot = _find_slot(table_keys, table_values, new_code)
             if new_slot < 0:
                 return _NEED, slot, t, new_code, rec_n, ev_n, storm_pos
             if ev_n >= cap_ev or (record and rec_n + 2 >= cap_rec):
@@ -469,11 +519,13 @@ def _kernel(x, t, slot, t_end, max_step,
             storm_pos = (storm_pos + 1) % storm.shape[0]
             if t - oldest < STORM_WINDOW:
                 return _STORM, new_slot, t, -1, rec_n, ev_n, storm_pos
+            target = gtarget[slot, fired]
             slot = new_slot
             switched = True
             if dev == stop_dev:
-                target = gtarget[slot_of_code[code], fired]
-                if current == 0 and target == stop_to:
+                kind_from = stop_kinds[current]
+                kind_to = stop_kinds[target]
+                if kind_from == 0 and kind_to == 1:
                     # a candidate turn-on: remember it, decide later
                     if t > stop_after:
                         pending[0] = 1.0
@@ -486,8 +538,8 @@ def _kernel(x, t, slot, t_end, max_step,
                             pending_x[j] = x[j]
                         for j in range(storm.shape[0]):
                             pending_storm[j] = storm[j]
-                elif current == stop_to and pending[0] > 0.0:
-                    if target == stop_confirm:
+                elif kind_from == 1 and kind_to != 1 and pending[0] > 0.0:
+                    if kind_to == 2:
                         # confirmed: back to the turn-on event
                         pending[0] = 0.0
                         for j in range(n):
@@ -593,8 +645,12 @@ class _Store:
         self.n = n
         self.capacity = capacity
         self.count = 0
-        self.max_guards = 2 * len(circuit.device_names) + 2
-        self.slot_of_code = np.full(circuit.n_codes, -1, dtype=np.int64)
+        self.max_guards = max(1, circuit.max_guards)
+        # open-addressing table code -> slot (the code space of a circuit
+        # with junction chords is far too large for a dense array)
+        self.table_keys = np.full(1024, -1, dtype=np.int64)
+        self.table_values = np.full(1024, -1, dtype=np.int64)
+        self.switch_kinds = _switch_kinds(circuit)
         self.code_of_slot = np.zeros(capacity, dtype=np.int64)
         self.weights = np.array(circuit.weights, dtype=np.int64)
         self.radices = np.array(circuit.radices, dtype=np.int64)
@@ -622,8 +678,29 @@ class _Store:
             setattr(self, name, grown)
         self.capacity = new
 
+    def slot_of(self, code: int) -> int:
+        """Slot of a topology code, -1 when it is not built yet."""
+        return int(_find_slot(self.table_keys, self.table_values, np.int64(code)))
+
+    def _insert(self, code: int, slot: int) -> None:
+        if 2 * (self.count + 1) > self.table_keys.shape[0]:
+            keys, values = self.table_keys, self.table_values
+            self.table_keys = np.full(2 * keys.shape[0], -1, dtype=np.int64)
+            self.table_values = np.full(2 * keys.shape[0], -1, dtype=np.int64)
+            for key, value in zip(keys, values):
+                if key >= 0:
+                    self._place(int(key), int(value))
+        self._place(code, slot)
+
+    def _place(self, code: int, slot: int) -> None:
+        mask = self.table_keys.shape[0] - 1
+        h = code & mask
+        while self.table_keys[h] >= 0:
+            h = (h + 1) & mask
+        self.table_keys[h], self.table_values[h] = code, slot
+
     def ensure(self, code: int) -> int:
-        slot = int(self.slot_of_code[code])
+        slot = self.slot_of(code)
         if slot >= 0:
             return slot
         if self.count == self.capacity:
@@ -656,7 +733,7 @@ class _Store:
             raise EngineError(f"non-finite matrix exponential in topology "
                               f"{self.circuit.label(code)}")
         self.code_of_slot[slot] = code
-        self.slot_of_code[code] = slot
+        self._insert(code, slot)
         self.count += 1
         return slot
 
@@ -923,12 +1000,13 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
         end = t if settle_only else min(chunk_end, t_end)
         status, slot, t, missing, rec_n, ev_n, storm_pos = _kernel(
             x, t, slot, end, step_cap,
-            store.slot_of_code, store.code_of_slot, store.weights, store.radices,
+            store.table_keys, store.table_values, store.code_of_slot, store.weights,
+            store.radices,
             store.ladder, store.steps, store.top_level, store.nlevels, store.A, store.b,
             store.gc, store.gd, store.gt, store.gdeep, store.gdev, store.gtarget, store.ng,
             rec_t, rec_x, rec_code, rec_n, record,
             ev_t, ev_from, ev_to, ev_dev, ev_guard, ev_n, max_events - total_events,
-            -1 if settle_only else stop_dev, _SWITCH_ACTIVE, _SWITCH_SATURATED, stop_after,
+            -1 if settle_only else stop_dev, store.switch_kinds, stop_after,
             storm, storm_pos, pending, pending_x, pending_storm, total_events, total_records)
         if status == _NEED:
             store.ensure(int(missing))
@@ -999,6 +1077,8 @@ def simulate(circuit: Circuit, x0, t_end: float, max_events: int = 2_000_000,
         final_time=float(t), stopped=stopped,
         state_names=circuit.state_names, device_names=circuit.device_names,
         topology_weights=circuit.weights, topology_radices=circuit.radices,
+        switch_kinds=tuple(int(k) for k in _switch_kinds(circuit)),
+        device_state_names=circuit.device_state_names,
     )
 
 
