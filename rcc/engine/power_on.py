@@ -387,6 +387,10 @@ class _Record:
         self.switch = circuit.device_index("switch")
         self.weight = circuit.weights[self.switch]
         self.radix = circuit.radices[self.switch]
+        # kind of every switch state (the junction chords of one region are
+        # several states of one kind)
+        self.kinds = np.array([SWITCH_STATES.index(kind)
+                               for kind in circuit.state_kinds("switch")], dtype=np.int64)
         self.bin_width = float(bin_width)
         self.event_parts: list = []
         self.candidate_times: list = []
@@ -402,8 +406,8 @@ class _Record:
         self.event_parts.append((trace.event_times, trace.event_devices, trace.event_from,
                                  trace.event_to))
         # candidate turn-ons (cut-off -> active) of this chunk
-        old = (trace.event_from // self.weight) % self.radix
-        new = (trace.event_to // self.weight) % self.radix
+        old = self.kinds[(trace.event_from // self.weight) % self.radix]
+        new = self.kinds[(trace.event_to // self.weight) % self.radix]
         mask = (trace.event_devices == self.switch) & (old == _OFF) & (
             new == _ACTIVE)
         candidates = trace.event_times[mask]
@@ -448,7 +452,8 @@ class _Record:
         if not self.event_parts:
             return np.empty(0), np.empty(0)
         event_t, devices, old, new = (np.concatenate(p) for p in zip(*self.event_parts))
-        indices = turn_on_indices(devices, old, new, self.switch, self.weight, self.radix)
+        indices = turn_on_indices(devices, old, new, self.switch, self.weight, self.radix,
+                                  kinds=self.kinds)
         times = event_t[indices]
         candidates = np.asarray(self.candidate_times)
         segment_max = np.asarray(self.segment_max + [self.open_max])
