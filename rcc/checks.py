@@ -131,15 +131,6 @@ class CheckReport:
         return result
 
 
-def _grid_points(design: Design, temperature=None, hfe=None) -> cycle.OperatingPoints:
-    """Report grid: (min, nominal, max line) x (min, nominal, max load)."""
-    lines = np.array(design.input.line_voltages, dtype=float)
-    output = design.output
-    columns = [cycle.operating_points(design, lines, load, temperature, hfe)
-               for load in (output.load_min, output.load_nominal, output.load_max)]
-    return _stack(columns)
-
-
 def _stack(columns) -> cycle.OperatingPoints:
     """Stack per-load results (each over lines) into a (lines, loads) grid."""
     from dataclasses import fields
@@ -156,13 +147,6 @@ def _stack(columns) -> cycle.OperatingPoints:
         else:
             kwargs[item.name] = stack([getattr(c, item.name) for c in columns])
     return cycle.OperatingPoints(**kwargs)
-
-
-def _corner_points(design: Design, line, loads, temperatures, gains):
-    """Operating points over temperatures x gains for several loads at one line."""
-    temperatures = np.asarray(temperatures, dtype=float)[:, None]
-    gains = np.asarray(gains, dtype=float)[None, :]
-    return [cycle.operating_points(design, line, load, temperatures, gains) for load in loads]
 
 
 def check_design(design: Design) -> CheckReport:
@@ -194,10 +178,18 @@ def check_design(design: Design) -> CheckReport:
                              env.temperature_max])
     gains = np.array([sw.hfe_min, sw.hfe_typ, sw.hfe_max])
     lines = np.array(design.input.line_voltages, dtype=float)
-    points = _grid_points(design)
     loads = (out.load_min, out.load_nominal, out.load_max)
-    high_line = _corner_points(design, lines[2], loads, temperatures, gains)
-    low_line = _corner_points(design, lines[0], loads, temperatures, gains)
+    # every operating point of the check in one vectorized call: the report
+    # grid (lines x loads at the reference temperature and hfe_typ) and the
+    # corners (temperatures x gains) at the highest and lowest line
+    corner_temperatures = temperatures[:, None]
+    corner_gains = gains[None, :]
+    requests = ([(lines, load, None, None) for load in loads]
+                + [(lines[2], load, corner_temperatures, corner_gains) for load in loads]
+                + [(lines[0], load, corner_temperatures, corner_gains) for load in loads])
+    solved = cycle.operating_points_batch(design, requests)
+    points = _stack(solved[:3])
+    high_line, low_line = solved[3:6], solved[6:9]
 
     findings: list[Finding] = []
     stress_result = _switch_and_core(design, high_line, findings)

@@ -55,6 +55,7 @@ __all__ = [
     "reference_temperature",
     "hold_output_voltage",
     "limit_power_capability",
+    "operating_points_batch",
 ]
 
 #: Kinds of operation.  ``bcm``: turn-on in the ring after demagnetization;
@@ -999,6 +1000,71 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
         result = _solve_output(design, bus, temp, gain, load)
         input_power_estimate = result["input_power"]
     return _assemble(design, line, bus, temp, gain, load, result)
+
+
+def operating_points_batch(design: Design, requests):
+    """Several :func:`operating_points` requests solved in one vectorized call.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    requests : sequence of tuple
+        ``(line_voltage, load, temperature, hfe)`` per request, as the
+        arguments of :func:`operating_points` (``load`` a :class:`Load`;
+        ``temperature`` and ``hfe`` may be None for the defaults) [V, -, K, 1].
+
+    Returns
+    -------
+    list of OperatingPoints
+        One per request, shaped as that request's broadcast inputs.
+
+    Notes
+    -----
+    The cycle model's cost is set by the number of its vectorized passes,
+    not by the number of points, so requests with loads of the same kind are
+    flattened into one call (the load values become an array) and the results
+    split again.  Each point is solved independently: the results equal those
+    of separate calls.
+    """
+    results = [None] * len(requests)
+    groups: dict = {}
+    for index, (line, load, temperature, hfe) in enumerate(requests):
+        if temperature is None:
+            temperature = reference_temperature(design)
+        if hfe is None:
+            hfe = design.switch.hfe_typ
+        value = load.value if isinstance(load, Load) else load
+        kind = load.kind if isinstance(load, Load) else "current"
+        arrays = np.broadcast_arrays(*(np.asarray(a, dtype=float)
+                                       for a in (line, temperature, hfe, value)))
+        groups.setdefault(kind, []).append((index, arrays))
+    for kind, members in groups.items():
+        flat = [np.concatenate([np.ravel(arrays[i]) for _, arrays in members])
+                for i in range(4)]
+        points = operating_points(design, flat[0], Load(kind, flat[3]), flat[1], flat[2])
+        start = 0
+        for index, arrays in members:
+            shape = arrays[0].shape
+            size = int(np.prod(shape, dtype=int))
+            results[index] = _slice_points(points, slice(start, start + size), shape)
+            start += size
+    return results
+
+
+def _slice_points(points: OperatingPoints, part: slice, shape) -> OperatingPoints:
+    def cut(value):
+        return np.reshape(np.broadcast_to(value, points.shape)[part], shape)
+
+    values = {}
+    for item in fields(OperatingPoints):
+        value = getattr(points, item.name)
+        if item.name == "losses":
+            values[item.name] = Losses(**{loss.name: cut(getattr(value, loss.name))
+                                          for loss in fields(Losses)})
+        else:
+            values[item.name] = cut(value)
+    return OperatingPoints(**values)
 
 
 def _upper_output(design: Design, temperature, bus):
