@@ -485,10 +485,14 @@ def load_design(path, overrides: Mapping[str, Any] | None = None) -> Design:
         raise DesignError([f"{name}: not valid TOML ({error})"]) from None
     if overrides:
         for dotted, value in overrides.items():
-            section, _, key = dotted.rpartition(".")
-            target = data.setdefault(section, {}) if section else data
-            if isinstance(target, dict):
-                target[key] = value
+            # nested tables by the dotted path ("tolerances.startup.resistance")
+            *parents, key = dotted.split(".")
+            target = data
+            for part in parents:
+                if not isinstance(target.get(part), dict):
+                    target[part] = {}
+                target = target[part]
+            target[key] = value
     return design_from_dict(data, source=name)
 
 

@@ -4,15 +4,18 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, load_or_exit
+from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app
+from rcc.cli.overrides import load_with_overrides, set_option
 
 
 @app.command()
 def check(
     design_file: Path = typer.Argument(..., help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     verify: bool = typer.Option(False, "--verify", help="Also solve every reported point "
                                 "with the periodic-steady-state engine and show the "
@@ -25,7 +28,7 @@ def check(
     from rcc.analysis import full_check
     from rcc.report import format_check_report
 
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     report = full_check(design)
     data = report.to_json()
     if verify:

@@ -6,17 +6,19 @@ from __future__ import annotations
 import json
 import math
 from pathlib import Path
-from typing import Optional
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, fail_input, load_or_exit, refuse_overwrite
+from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, fail_input, refuse_overwrite
+from rcc.cli.overrides import load_with_overrides, set_option
 from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option
 
 
 @app.command()
 def cycle(
     design_file: Path = typer.Argument(..., help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
@@ -33,7 +35,7 @@ def cycle(
     from rcc.engine.pss import (PeriodicSteadyStateError, periodic_steady_state,
                                 plot_periodic_steady_state)
 
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     refuse_overwrite(plot, force)
     if plot is not None and plot.suffix.lower() != ".png":
         raise fail_input(f"--plot {str(plot)!r}: expected a .png file name")

@@ -5,11 +5,12 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, fail_input, load_or_exit, \
-    refuse_overwrite
+from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, fail_input, refuse_overwrite
+from rcc.cli.overrides import load_with_overrides, set_option
 
 
 def _si(value, unit):
@@ -63,6 +64,7 @@ def _text(report, findings) -> str:
 @app.command()
 def startup(
     design_file: Path = typer.Argument(..., help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     derivation: bool = typer.Option(False, "--derivation",
                                     help="Also print the symbolic loop gain and the "
@@ -80,7 +82,7 @@ def startup(
     """
     from rcc.startup import DcPointError, plot_loop_gain, startup_findings, startup_report
 
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     if plot is not None:
         refuse_overwrite(plot, force)
         if not plot.parent.exists():

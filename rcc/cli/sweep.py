@@ -4,16 +4,18 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
-from typing import Optional
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import app, fail_input, load_or_exit, refuse_overwrite
+from rcc.cli import app, fail_input, refuse_overwrite
+from rcc.cli.overrides import load_with_overrides, set_option
 
 
 @app.command()
 def sweep(
     design_file: Path = typer.Argument(..., help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     line: Optional[str] = typer.Option(None, help="Line range START:STOP:COUNT, e.g. "
                                        "85V:265V:5 (RMS for AC input, DC otherwise). "
                                        "Default: min, nominal, max."),
@@ -37,7 +39,7 @@ def sweep(
     from rcc.report import format_points_table
     from rcc.sweep import parse_load_range, parse_range, plot_sweep, sweep as run, to_csv
 
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     refuse_overwrite(csv_file, force)
     refuse_overwrite(plot, force)
     try:

@@ -5,17 +5,19 @@ from the time-domain engine."""
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Optional
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import EXIT_FINDING_FAILED, app, fail_input, load_or_exit, refuse_overwrite
+from rcc.cli import EXIT_FINDING_FAILED, app, fail_input, refuse_overwrite
+from rcc.cli.overrides import load_with_overrides, set_option
 from rcc.cli.options import LINE_HELP, LOAD_HELP, line_option, load_option, time_option
 
 
 @app.command()
 def waveforms(
     design_file: Path = typer.Argument(..., help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on."),
@@ -31,7 +33,7 @@ def waveforms(
     Exit code 0 when the run completes, 1 when the engine stops on an event
     storm or an inconsistent circuit, 2 on bad input.
     """
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     from rcc.cycle import reference_temperature
     from rcc.mains import bus_voltage as no_load_bus
 
