@@ -17,13 +17,14 @@ from __future__ import annotations
 import difflib
 import math
 import tomllib
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
 
-from rcc.schema import SECTIONS, Key, keys_of
+from rcc.schema import SECTIONS, TOLERANCE_SECTION, Key, keys_of
+from rcc.tolerance import Tolerances, read_tolerances
 from rcc.units import DIMENSIONS, UnitError, parse_quantity
 
 __all__ = [
@@ -305,6 +306,7 @@ class Design:
     environment: EnvironmentSpec
     limits: LimitsSpec
     source: str = field(default="<dict>", compare=False)
+    tolerances: Tolerances = field(default=Tolerances(), compare=False)
 
     # ------------------------------------------------------------ derived
     @property
@@ -342,6 +344,8 @@ class Design:
                 if entries.get("coupling") is not None:
                     entries.pop("leakage_inductance", None)
             result[section] = entries
+        if self.tolerances:
+            result[TOLERANCE_SECTION] = self.tolerances.to_dict()
         return result
 
     def with_values(self, values: Mapping[str, Any]) -> "Design":
@@ -547,12 +551,14 @@ class _Validator:
                 key.name: self.read(key, raw) for key in keys_of(section).values()
             }
         self.check_groups(values)
+        tolerances = read_tolerances(self.data.get(TOLERANCE_SECTION), values, self.source,
+                                     self.problems)
         if self.problems:
             raise DesignError(self.problems)
-        return self.build(values)
+        return replace(self.build(values), tolerances=tolerances)
 
     def check_unknown(self) -> None:
-        known_top = set(keys_of("")) | set(SECTIONS)
+        known_top = set(keys_of("")) | set(SECTIONS) | {TOLERANCE_SECTION}
         for name, value in self.data.items():
             if name not in known_top:
                 hint = _closest(name, known_top)
