@@ -19,7 +19,7 @@ import numpy as np
 from rcc.design import Design
 
 __all__ = ["Evaluation", "FindingMargin", "QUANTITIES", "MARGINS", "evaluate",
-           "finding_margin", "rank_key", "UNVERIFIED_FINDINGS"]
+           "finding_margin", "rank_key", "UNVERIFIED_FINDINGS", "quantity_limits"]
 
 #: Headline quantities: name -> (unit, description, which extreme is adverse).
 QUANTITIES = {
@@ -215,3 +215,37 @@ def evaluate(design: Design, keep_report: bool = False) -> Evaluation:
     return Evaluation(report.verdict, findings, margins, quantities,
                       tuple(dict.fromkeys(reasons)),
                       report.to_json() if keep_report else None)
+
+
+def quantity_limits(design: Design) -> dict:
+    """The acceptance limits of the headline quantities, for figures.
+
+    Parameters
+    ----------
+    design : Design
+        The design [-].
+
+    Returns
+    -------
+    dict
+        Quantity name -> list of limits [SI]: the derated switch rating, the
+        allowed flux, IC(max), the lowest specified line, the longest start-up
+        time and the output band (when a target is given).
+    """
+    from rcc.stress import rating_basis
+
+    limits = design.limits
+    _, rating = rating_basis(design.switch)
+    result = {
+        "switch_peak_v": [rating * limits.voltage_derating],
+        "core_peak_flux_t": [design.transformer.saturation_flux_density * limits.flux_margin],
+        "worst_peak_current_a": [design.switch.ic_max],
+        "min_start_line_v": [design.input.line_voltages[0]],
+        "start_time_s": [limits.start_time_max],
+    }
+    target = design.output.voltage_target
+    if target is not None:
+        result["output_v"] = [target * (1 - limits.output_tolerance),
+                              target * (1 + limits.output_tolerance)]
+    return result
+

@@ -38,7 +38,7 @@ import numpy as np
 from scipy.special import ndtri
 
 from rcc.design import Design
-from rcc.margins import QUANTITIES, Evaluation, evaluate
+from rcc.margins import QUANTITIES, Evaluation, evaluate, quantity_limits
 from rcc.tolerance import Tolerance, design_values, hfe_tolerance, sample_uniforms
 
 __all__ = ["wilson_interval", "Proportion", "FindingSpread", "QuantitySpread",
@@ -266,6 +266,8 @@ class SpreadResult:
         The sampled values [SI].
     quantity_samples : dict
         Quantity -> per-sample values, NaN where undefined [unit] (for figures).
+    limits : dict
+        Quantity -> acceptance limits (:func:`rcc.margins.quantity_limits`) [unit].
     """
 
     title: str
@@ -286,6 +288,7 @@ class SpreadResult:
     corners_evaluated: int
     values: np.ndarray = field(repr=False)
     quantity_samples: dict = field(repr=False)
+    limits: dict = field(default_factory=dict, repr=False)
 
     def to_json(self) -> dict:
         return {
@@ -589,7 +592,7 @@ def _summarize(design, samples, seed, workers, parameters, values, mc, worst,
         findings=findings, quantities=tuple(quantities), worst_case=worst,
         sensitivities=sensitivities, corner_method=corner_method,
         corners_evaluated=corners_evaluated, values=values,
-        quantity_samples=quantity_samples)
+        quantity_samples=quantity_samples, limits=quantity_limits(design))
 
 
 # ---------------------------------------------------------------- figure
@@ -609,8 +612,8 @@ def plot_spread(result: SpreadResult, quantities=None, axes=None):
     -------
     ndarray of matplotlib Axes
         Left: histogram with the corner (EVA) extremes as solid lines, the RSS
-        3-sigma bounds dashed and the nominal dotted; right: normalized
-        sensitivities, largest at the top.
+        3-sigma bounds dashed, the nominal dotted and the acceptance limit as a
+        thick black line; right: normalized sensitivities, largest at the top.
     """
     import matplotlib.pyplot as plt
 
@@ -636,8 +639,24 @@ def plot_spread(result: SpreadResult, quantities=None, axes=None):
             if worst.rss is not None:
                 ax.axvline(worst.rss * k, color="C0", lw=1.2, ls="--",
                            label=f"RSS {worst.extreme}")
-            if worst.nominal is not None:
-                ax.axvline(worst.nominal * k, color="k", lw=0.8, ls=":")
+        nominal = next((w.nominal for w in result.worst_case if w.quantity == name), None)
+        if nominal is not None:
+            ax.axvline(nominal * k, color="k", lw=0.8, ls=":", label="nominal")
+        shown = [v * k for w in result.worst_case if w.quantity == name
+                 for v in (w.value, w.rss) if v is not None] + list(finite)
+        low, high = (min(shown), max(shown)) if shown else (0.0, 0.0)
+        reach = 0.5 * (high - low)
+        off_scale = []
+        for limit in result.limits.get(name, ()):
+            if low - reach <= limit * k <= high + reach:
+                ax.axvline(limit * k, color="k", lw=2.5,
+                           label=None if off_scale or any(
+                               line.get_label() == "limit" for line in ax.lines) else "limit")
+            else:
+                off_scale.append(f"{limit * k:.4g} {label[unit]}")
+        if off_scale:
+            ax.text(0.99, 0.03, "limit " + ", ".join(off_scale) + " (off scale)",
+                    transform=ax.transAxes, ha="right", va="bottom", fontsize=7)
         undefined = int(np.sum(~np.isfinite(column)))
         extra = f"; {undefined} samples undefined" if undefined else ""
         ax.set_title(f"{description}{extra}", fontsize=9, loc="left")
@@ -659,5 +678,5 @@ def plot_spread(result: SpreadResult, quantities=None, axes=None):
                  f"(95 % Wilson {100 * result.pass_yield.interval_95[0]:.1f}-"
                  f"{100 * result.pass_yield.interval_95[1]:.1f} %), "
                  f"{result.unverified_samples} unverified", fontsize=10)
-    fig.tight_layout()
+    fig.tight_layout(rect=(0, 0, 1, 1 - 0.5 / fig.get_figheight()))
     return axes

@@ -132,7 +132,7 @@ def format_spread(result) -> str:
         edges = []
         for p in result.parameters:
             if p.key in w.corner:
-                edges.append(f"{p.key.split('.')[-1]} {'high' if w.corner[p.key] == p.high else 'low'}")
+                edges.append(f"{p.key} {'high' if w.corner[p.key] == p.high else 'low'}")
         out.append(f"    {w.quantity} {w.extreme}: " + ", ".join(edges))
     out += ["", "Sensitivities (normalized, (dQ/Q)/(dp/p); the three largest per quantity)", ""]
     for name in dict.fromkeys(s.quantity for s in result.sensitivities):
