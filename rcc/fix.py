@@ -259,8 +259,6 @@ def suggest_fixes(design: Design, workers: int = 1,
         integer = adjustable.series == "integer"
         for ladder in (down, up):
             coarse += [(adjustable.key, ladder[i]) for i in _coarse(ladder, value, integer)]
-    if progress is not None:
-        counter["total"] = 0
     run(coarse)
 
     # refine: between the last coarse step that keeps a finding and the first that

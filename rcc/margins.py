@@ -134,11 +134,23 @@ class Evaluation:
 
 
 def finding_margin(finding) -> float | None:
-    """Signed margin of a finding: ``-|value - limit| / |limit|`` [1].
+    """Signed margin of a finding: ``-|value - limit| / |limit|``.
 
+    Parameters
+    ----------
+    finding : rcc.findings.Finding
+        The finding.
+
+    Returns
+    -------
+    float or None
+        The margin [1]; ``None`` without value and limit.
+
+    Notes
+    -----
     Every finding with a value and a limit reports a value beyond its limit
     (above an upper limit, below a lower one), so the margin is negative and
-    its size says how far beyond; ``None`` without value and limit.
+    its size says how far beyond, whatever the direction of the limit.
     """
     if finding.value is None or finding.limit is None or finding.limit == 0:
         return None
@@ -147,7 +159,18 @@ def finding_margin(finding) -> float | None:
 
 def rank_key(evaluation: Evaluation) -> tuple:
     """Sort key, best first: fewer failing checks, fewer warnings, larger
-    smallest margin."""
+    smallest margin.
+
+    Parameters
+    ----------
+    evaluation : Evaluation
+        A full check, reduced.
+
+    Returns
+    -------
+    tuple
+        Compares smaller for the better design.
+    """
     return (len(evaluation.failing), len(evaluation.warning), -evaluation.smallest_margin)
 
 

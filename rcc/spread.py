@@ -383,7 +383,18 @@ def evaluate_many(design: Design, value_sets: list[dict], workers: int = 1,
 
 
 def parameters_of(design: Design) -> tuple[Tolerance, ...]:
-    """The values a spread varies: the switch gain and every ``[tolerances]`` entry."""
+    """The values a spread varies.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+
+    Returns
+    -------
+    tuple of Tolerance
+        The switch gain (when ``hfe_min < hfe_max``) and every ``[tolerances]`` entry.
+    """
     gain = hfe_tolerance(design)
     return ((gain,) if gain else ()) + design.tolerances.entries
 
@@ -605,12 +616,12 @@ def plot_spread(result: SpreadResult, quantities=None, axes=None):
         From :func:`spread` [-].
     quantities : sequence of str, optional
         Which quantities (default: those with samples) [-].
-    axes : array of matplotlib Axes, shape (n, 2), optional
+    axes : numpy array of matplotlib.axes.Axes, shape (n, 2), optional
         Where to draw [-].
 
     Returns
     -------
-    ndarray of matplotlib Axes
+    numpy array of matplotlib.axes.Axes, shape (n, 2)
         Left: histogram with the corner (EVA) extremes as solid lines, the RSS
         3-sigma bounds dashed, the nominal dotted and the acceptance limit as a
         thick black line; right: normalized sensitivities, largest at the top.
