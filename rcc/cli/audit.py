@@ -43,7 +43,7 @@ def audit(
     Exit code 0 when the audit ran, 2 on bad input.
     """
     from rcc.cli.compare import format_comparison
-    from rcc.cli.progress import Progress
+    from rcc.cli.progress_line import Progress
     from rcc.compare import audit as run, load_candidates
     from rcc.design import DesignError
 

@@ -30,7 +30,7 @@ def fix(
 
     Exit code 0 when the search ran, 2 on bad input.
     """
-    from rcc.cli.progress import Progress
+    from rcc.cli.progress_line import Progress
     from rcc.fix import suggest_fixes
 
     design = load_with_overrides(design_file, settings)

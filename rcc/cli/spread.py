@@ -41,7 +41,7 @@ def spread(
 
     Exit code 0 when the study ran (read the yield), 2 on bad input.
     """
-    from rcc.cli.progress import Progress
+    from rcc.cli.progress_line import Progress
     from rcc.spread import parameters_of, plot_spread
     from rcc.spread import spread as run
 
