@@ -13,6 +13,7 @@ from rcc.cli import app
 from rcc.design import load_design
 from rcc.eseries import nearest_preferred, preferred_values, series_mantissas
 from rcc.fix import suggest_fixes
+from tests.conftest import WORKED_CASES
 
 runner = CliRunner()
 
@@ -43,7 +44,6 @@ def test_preferred_values_span_decades_and_include_bounds():
 
 
 def _assert_each_suggestion_passes_with_set(path, result):
-    assert result.suggestions, "expected at least one suggestion"
     for suggestion in result.suggestions:
         assert suggestion.verified
         arguments = ["check", str(path), "--json"]
@@ -63,6 +63,7 @@ def test_fix_open_startup_resistor(worked_cases):
     # two keys keep the test short; the slow test below searches every value
     result = suggest_fixes(design, workers=2, keys=("startup.resistance",
                                                     "limiter.sense_resistance"))
+    assert result.suggestions
     codes = {s.finding for s in result.suggestions}
     assert {"no-start", "overload"} <= codes
     no_start = next(s for s in result.suggestions if s.finding == "no-start")
@@ -73,10 +74,9 @@ def test_fix_open_startup_resistor(worked_cases):
 
 
 @pytest.mark.skipif(not os.environ.get("RCC_SLOW_TESTS"),
-                    reason="every adjustable value on every case: tens of minutes; "
+                    reason="every adjustable value on every case: minutes per case; "
                            "set RCC_SLOW_TESTS=1")
-def test_fix_every_case_every_suggestion(worked_cases):
-    for path in worked_cases:
-        result = suggest_fixes(load_design(path), workers=2)
-        if result.suggestions:
-            _assert_each_suggestion_passes_with_set(path, result)
+@pytest.mark.parametrize("path", sorted(WORKED_CASES.glob("*.toml")), ids=lambda p: p.stem)
+def test_fix_every_case_every_suggestion(path):
+    result = suggest_fixes(load_design(path), workers=2)
+    _assert_each_suggestion_passes_with_set(path, result)
