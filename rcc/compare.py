@@ -207,14 +207,16 @@ def load_candidates(path, design: Design) -> list[Variant]:
         data = tomllib.loads(path.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as error:
         raise DesignError([f"{path}: not a readable TOML file ({error})"]) from None
+    entries = data.get("candidate")
+    if not isinstance(entries, list) or not entries:
+        from rcc.schema import SECTIONS
+
+        hint = " (this looks like a design file)" if set(data) & set(SECTIONS) else ""
+        raise DesignError([f"{path}: candidate: missing; expected one or more [[candidate]] "
+                           f"tables with name and [candidate.set]{hint}"])
     problems = [f"{path}: {key}: unknown key; expected title, description and "
                 "[[candidate]] tables" for key in data if key not in
                 ("title", "description", "candidate")]
-    entries = data.get("candidate")
-    if not isinstance(entries, list) or not entries:
-        problems.append(f"{path}: candidate: missing; expected one or more [[candidate]] "
-                        "tables with name and [candidate.set]")
-        raise DesignError(problems)
     variants, names = [], set()
     for number, entry in enumerate(entries, 1):
         where = f"{path}: candidate {number}"

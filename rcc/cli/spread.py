@@ -20,7 +20,7 @@ DEFAULT_SAMPLES = 1000
 
 @app.command()
 def spread(
-    design_file: Path = typer.Argument(..., help="TOML design file with a [tolerances] "
+    design_file: Path = typer.Argument(..., help="TOML design file with a tolerances "
                                        "section (without one only hFE spreads)."),
     settings: Optional[List[str]] = set_option(),
     samples: int = typer.Option(DEFAULT_SAMPLES, "--samples", min=1, max=1_000_000,
