@@ -9,6 +9,7 @@ form (a zener clamp: the switch peak is bus + clamp voltage).
 
 from __future__ import annotations
 
+import json
 import math
 
 import numpy as np
@@ -191,3 +192,24 @@ def test_workers_do_not_change_results(clamp_case):
     first, second = one.to_json(), two.to_json()
     first.pop("workers"), second.pop("workers")
     assert first == second
+
+
+def test_spread_command_json_and_figure(standby_case, tmp_path):
+    from typer.testing import CliRunner
+
+    from rcc.cli import app
+
+    figure = tmp_path / "spread.png"
+    result = CliRunner().invoke(app, [
+        "spread", str(standby_case), "--samples", "2", "--seed", "4", "--workers", "1",
+        "--json", "--plot", str(figure), "--set", "switch.hfe_min=30", "--set", "switch.hfe_max=30",
+        "--set", "tolerances={startup = {resistance = '5%'}}"])
+    assert result.exit_code == 0, result.output
+    data = json.loads(result.stdout)
+    assert data["samples"] == 2 and data["seed"] == 4
+    assert set(data["yield"]) >= {"fraction", "interval_95"}
+    assert [p["key"] for p in data["parameters"]] == ["startup.resistance"]
+    assert {"quantity", "value", "unit", "corner"} <= set(data["worst_case"][0])
+    assert data["quantities"]["switch_peak_v"]["unit"] == "V"
+    assert all({"quantity", "parameter", "value"} == set(s) for s in data["sensitivities"])
+    assert figure.stat().st_size > 10_000
