@@ -114,6 +114,16 @@ def format_comparison(result, names=None) -> str:
         grid_rows.append(row)
     out += [format_table(["line", "load"] + [f"[{i}]" for i in range(len(names))],
                          grid_rows), ""]
+    reference = result.variants[0].design.input
+    for i, variant in enumerate(result.variants[1:], 1):
+        own = variant.design.input
+        if (own.is_ac, own.line_voltages) != (reference.is_ac, reference.line_voltages):
+            kind = "RMS" if own.is_ac else "DC"
+            out.append(f"Note: [{i}] is specified for {own.line_voltages[0]:.4g} to "
+                       f"{own.line_voltages[2]:.4g} V {kind}; the grid above runs it at the "
+                       "reference's lines and loads.")
+    if len(out) and out[-1].startswith("Note"):
+        out.append("")
     if result.worse:
         out += ["Worse than the reference:"]
         for name in dict.fromkeys(w.design for w in result.worse):
