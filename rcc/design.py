@@ -368,6 +368,15 @@ class Design:
             If a key is unknown or the result is invalid.
         """
         data = self.to_dict()
+        # values the loader derived (not given in the file) follow their inputs, as
+        # they would in a file with the new values: drop them to derive them again
+        regulation, tr = self.regulation, self.transformer
+        if (regulation.zener_voltage is not None and regulation.zener_tempco
+                == float(default_zener_tempco(regulation.zener_voltage))):
+            data["regulation"].pop("zener_tempco", None)
+        if tr.core_loss_resistance == DEFAULT_RING_QUALITY * math.sqrt(
+                tr.magnetizing_inductance / self.node_capacitance):
+            data["transformer"].pop("core_loss_resistance", None)
         for path, value in values.items():
             section, _, name = path.rpartition(".")
             target = data.setdefault(section, {}) if section else data

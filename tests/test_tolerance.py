@@ -104,3 +104,17 @@ def test_samples_are_reproducible_bit_for_bit():
     first, again = sample_uniforms(100, 4, 7), sample_uniforms(100, 4, 7)
     assert np.array_equal(first, again)
     assert not np.array_equal(first, sample_uniforms(100, 4, 8))
+
+
+def test_variants_derive_defaults_like_a_file(worked_cases):
+    # a value the file leaves to its default (zener tempco from the zener voltage,
+    # core-loss resistance from the ring quality) follows a changed input in
+    # Design.with_values exactly as in a file loaded with --set
+    path = next(p for p in worked_cases if p.name == "fault_hiccup.toml")
+    design = load_design(path)
+    for key, value in (("regulation.zener_voltage", 5.1),
+                       ("transformer.magnetizing_inductance", 3e-3),
+                       ("switch.output_capacitance", 40e-12)):
+        assert design.with_values({key: value}) == load_design(path, overrides={key: value})
+    given = design.with_values({"regulation.zener_tempco": 1e-3})
+    assert given.with_values({"regulation.zener_voltage": 5.1}).regulation.zener_tempco == 1e-3
