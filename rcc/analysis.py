@@ -21,8 +21,10 @@ def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
     design : Design
         The design.
     startup_engine : bool
-        Also run the time-domain engine from power-on and add its peaks to the
-        stresses and findings (:func:`rcc.checks.with_startup_stress`; seconds).
+        Also run the time-domain engine from power-on: at the worst start-up
+        corner into full load (does it reach its operating point?) and at the
+        highest line for the start-up stresses
+        (:func:`rcc.checks.with_startup_stress`); seconds.
 
     Returns
     -------
@@ -35,7 +37,7 @@ def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
         are marked ``scope="if-running"`` (:func:`rcc.findings.ordered_findings`).
     """
     report = check_design(design)
-    startup = startup_report(design)
+    startup = startup_report(design, engine=startup_engine)
     findings = ordered_findings(_one_per_code(
         report.findings + tuple(startup_findings(design, startup)),
         ("weak-drive", "startup-lockup")))

@@ -17,13 +17,14 @@ from __future__ import annotations
 import difflib
 import math
 import tomllib
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
 
-from rcc.schema import PLAUSIBLE, SECTIONS, Key, keys_of
+from rcc.schema import PLAUSIBLE, SECTIONS, TOLERANCE_SECTION, Key, keys_of
+from rcc.tolerance import Tolerances, read_tolerances
 from rcc.units import DIMENSIONS, UnitError, format_si as _si, parse_quantity
 
 __all__ = [
@@ -306,6 +307,7 @@ class Design:
     environment: EnvironmentSpec
     limits: LimitsSpec
     source: str = field(default="<dict>", compare=False)
+    tolerances: Tolerances = field(default=Tolerances(), compare=False)
 
     # ------------------------------------------------------------ derived
     @property
@@ -343,6 +345,8 @@ class Design:
                 if entries.get("coupling") is not None:
                     entries.pop("leakage_inductance", None)
             result[section] = entries
+        if self.tolerances:
+            result[TOLERANCE_SECTION] = self.tolerances.to_dict()
         return result
 
     def with_values(self, values: Mapping[str, Any]) -> "Design":
@@ -365,6 +369,15 @@ class Design:
             If a key is unknown or the result is invalid.
         """
         data = self.to_dict()
+        # values the loader derived (not given in the file) follow their inputs, as
+        # they would in a file with the new values: drop them to derive them again
+        regulation, tr = self.regulation, self.transformer
+        if (regulation.zener_voltage is not None and regulation.zener_tempco
+                == float(default_zener_tempco(regulation.zener_voltage))):
+            data["regulation"].pop("zener_tempco", None)
+        if tr.core_loss_resistance == DEFAULT_RING_QUALITY * math.sqrt(
+                tr.magnetizing_inductance / self.node_capacitance):
+            data["transformer"].pop("core_loss_resistance", None)
         for path, value in values.items():
             section, _, name = path.rpartition(".")
             target = data.setdefault(section, {}) if section else data
@@ -487,10 +500,14 @@ def load_design(path, overrides: Mapping[str, Any] | None = None) -> Design:
                            "too deeply)"]) from None
     if overrides:
         for dotted, value in overrides.items():
-            section, _, key = dotted.rpartition(".")
-            target = data.setdefault(section, {}) if section else data
-            if isinstance(target, dict):
-                target[key] = value
+            # nested tables by the dotted path ("tolerances.startup.resistance")
+            *parents, key = dotted.split(".")
+            target = data
+            for part in parents:
+                if not isinstance(target.get(part), dict):
+                    target[part] = {}
+                target = target[part]
+            target[key] = value
     return design_from_dict(data, source=name)
 
 
@@ -587,12 +604,14 @@ class _Validator:
                 key.name: self.read(key, raw) for key in keys_of(section).values()
             }
         self.check_groups(values)
+        tolerances = read_tolerances(self.data.get(TOLERANCE_SECTION), values, self.source,
+                                     self.problems)
         if self.problems:
             raise DesignError(self.problems)
-        return self.build(values)
+        return replace(self.build(values), tolerances=tolerances)
 
     def check_unknown(self) -> None:
-        known_top = set(keys_of("")) | set(SECTIONS)
+        known_top = set(keys_of("")) | set(SECTIONS) | {TOLERANCE_SECTION}
         for name, value in self.data.items():
             if name not in known_top:
                 hint = _closest(name, known_top)

@@ -10,7 +10,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["Key", "KEYS", "SECTIONS", "TOP_LEVEL", "keys_of", "markdown_reference"]
+__all__ = ["Key", "KEYS", "SECTIONS", "TOP_LEVEL", "keys_of", "markdown_reference",
+           "TOLERANCE_SECTION", "TOLERANCE_FIELDS", "TOLERANCE_EXCLUDED_SECTIONS"]
 
 
 @dataclass(frozen=True)
@@ -297,6 +298,21 @@ KEYS: tuple[Key, ...] = TOP_LEVEL + (
 SECTIONS: tuple[str, ...] = tuple(
     dict.fromkeys(key.section for key in KEYS if key.section)
 )
+
+#: The ``[tolerances]`` section: per design key a tolerance string or a table of
+#: these fields (validated by :mod:`rcc.tolerance`).
+TOLERANCE_SECTION = "tolerances"
+TOLERANCE_FIELDS = {
+    "tolerance": "relative ('10%') or absolute ('0.05 V') half-width about the design value",
+    "min": "lowest value (with max: explicit bounds instead of a tolerance)",
+    "max": "highest value (with min)",
+    "distribution": "'uniform' (default) or 'normal' (the tolerance is 3 sigma, "
+                    "truncated there)",
+    "drift": "ageing drift, relative ('+2%') or absolute, shifting the whole band",
+}
+#: Sections whose values are operating conditions or acceptance limits, not part
+#: values: the check covers their whole ranges, so they take no tolerance.
+TOLERANCE_EXCLUDED_SECTIONS = ("input", "environment", "limits")
 
 _BY_SECTION: dict[str, dict[str, Key]] = {}
 for _key in KEYS:

@@ -108,6 +108,10 @@ from rcc.cli import sweep as _sweep  # noqa: E402,F401
 from rcc.cli import startup as _startup  # noqa: E402,F401
 from rcc.cli import cycle as _cycle  # noqa: E402,F401
 from rcc.cli import waveforms as _waveforms  # noqa: E402,F401
+from rcc.cli import compare as _compare  # noqa: E402,F401
+from rcc.cli import audit as _audit  # noqa: E402,F401
+from rcc.cli import spread as _spread  # noqa: E402,F401
+from rcc.cli import fix as _fix  # noqa: E402,F401
 
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())

@@ -3,16 +3,20 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import List, Optional
 
 import typer
 
+from rcc.cli.overrides import load_with_overrides, set_option
+
 from rcc.cli.progress import QUIET_HELP, Status
-from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit
+from rcc.cli import EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input
 
 
 @app.command(short_help="Operating points, worst-case stresses and findings.")
 def check(
     design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     verify: bool = typer.Option(False, "--verify", help="Also solve every reported point "
                                 "with the periodic-steady-state engine and show the "
@@ -28,7 +32,7 @@ def check(
 
     from rcc.startup import DcPointError
 
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     with Status(quiet) as status:
         status.phase("cycle model, start-up analysis and the engine from power-on")
         try:

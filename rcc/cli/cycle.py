@@ -5,11 +5,13 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Optional
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit,
+from rcc.cli.overrides import load_with_overrides, set_option
+
+from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input,
                      plan_outputs, write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
 from rcc.cli.progress import QUIET_HELP, Status
@@ -20,6 +22,7 @@ from rcc.cli.options import (HFE_HELP, LINE_HELP, LOAD_HELP, TEMPERATURE_HELP, h
 @app.command(short_help="The periodic steady state and its stability (engine).")
 def cycle(
     design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     temperature: Optional[str] = typer.Option(None, "--temperature", help=TEMPERATURE_HELP),
@@ -41,7 +44,7 @@ def cycle(
     from rcc.engine.pss import (PeriodicSteadyStateError, periodic_steady_state,
                                 plot_periodic_steady_state)
 
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     try:
         line_voltage = line_option(design, line)
         load_value = load_option(design, load)

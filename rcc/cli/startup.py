@@ -4,10 +4,13 @@ time and findings; optionally the symbolic derivation and a loop-gain plot."""
 from __future__ import annotations
 
 from pathlib import Path
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit,
+from rcc.cli.overrides import load_with_overrides, set_option
+
+from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input,
                      plan_outputs, write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
 
@@ -79,6 +82,7 @@ def _text(report, findings) -> str:
 @app.command(short_help="Will it start? DC point, poles, start-up voltage and time.")
 def startup(
     design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     derivation: bool = typer.Option(False, "--derivation",
                                     help="Also print the loop gain and the start condition "
@@ -97,7 +101,7 @@ def startup(
     """
     from rcc.startup import DcPointError, plot_loop_gain, startup_findings, startup_report
 
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--latex": (latex, (".tex",))}, force)
     try:
         report = startup_report(design)

@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Optional
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input, load_or_exit,
+from rcc.cli.overrides import load_with_overrides, set_option
+
+from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input,
                      plan_outputs, write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
 from rcc.cli.progress import QUIET_HELP, Status
@@ -16,6 +18,7 @@ from rcc.cli.progress import QUIET_HELP, Status
 @app.command(short_help="The cycle model over line, load and temperature ranges.")
 def sweep(
     design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     line: Optional[str] = typer.Option(None, help="Line range START:STOP:COUNT, e.g. "
                                        "85V:265V:5 (RMS for AC input, DC otherwise). "
                                        "Default: min, nominal, max."),
@@ -48,7 +51,7 @@ def sweep(
     from rcc.schema import PLAUSIBLE
     from rcc.sweep import parse_load_range, parse_range, plot_sweep, sweep as run, to_csv
 
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     try:
         lines = (parse_range(line, "voltage", "--line", bounds=(1.0, PLAUSIBLE["voltage"][1]))
                  if line else np.array(design.input.line_voltages))

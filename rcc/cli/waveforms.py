@@ -5,11 +5,13 @@ from the time-domain engine."""
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Optional
+from typing import List, Optional
 
 import typer
 
-from rcc.cli import (EXIT_FINDING_FAILED, app, fail_input, load_or_exit, plan_outputs,
+from rcc.cli.overrides import load_with_overrides, set_option
+
+from rcc.cli import (EXIT_FINDING_FAILED, app, fail_input, plan_outputs,
                      write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
 from rcc.cli.progress import QUIET_HELP, Status
@@ -24,6 +26,7 @@ LARGE_CSV_BYTES = 20e6
 @app.command(short_help="Simulate from switch-on (engine): waveforms and summary.")
 def waveforms(
     design_file: Path = typer.Argument(..., metavar="DESIGN", help="TOML design file."),
+    settings: Optional[List[str]] = set_option(),
     line: Optional[str] = typer.Option(None, "--line", help=LINE_HELP),
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     temperature: Optional[str] = typer.Option(None, "--temperature", help=TEMPERATURE_HELP),
@@ -54,7 +57,7 @@ def waveforms(
     or the engine stops (event storm, inconsistent circuit, --max-events
     reached), 2 on bad input.
     """
-    design = load_or_exit(design_file)
+    design = load_with_overrides(design_file, settings)
     from rcc.mains import bus_voltage as no_load_bus
 
     try:
