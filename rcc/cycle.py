@@ -1665,7 +1665,8 @@ def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequenc
     balance = np.abs(state["input_power"] - state["output_power"] - losses.total) \
         > 0.01 * np.maximum(state["input_power"], 1e-12)
     if design.input.is_ac:
-        bus_bad = (bus <= 0.0) | (bus > np.sqrt(2.0) * line * (1.0 + 1e-9))
+        # the valley search floors a collapsed bulk capacitor at 1 V: no real bus
+        bus_bad = (bus <= 1.0) | (bus > np.sqrt(2.0) * line * (1.0 + 1e-9))
     else:
         bus_bad = np.abs(bus - line) > 1e-9 * np.abs(line)
     checks = (("on-time", running & ~(on_time > 0.0)),

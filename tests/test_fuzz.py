@@ -301,10 +301,17 @@ def _run(design):
     return startup, records, floored, [str(w.message) for w in caught]
 
 
+#: Generated designs taken through the models (every one is validated): the
+#: cycle model solves its fixed points and patterns to tolerance, seconds per
+#: design, so CI runs an evenly spaced sample of the generated set.
+MODEL_SAMPLE = 24
+
+
 @pytest.fixture(scope="module")
 def runs(generated):
     designs, _ = generated
-    return [(design, *_run(design)) for design in designs]
+    step = max(len(designs) // MODEL_SAMPLE, 1)
+    return [(design, *_run(design)) for design in designs[::step][:MODEL_SAMPLE]]
 
 
 def test_generated_designs_run_clean(generated, runs):
@@ -326,7 +333,7 @@ def test_generated_designs_run_clean(generated, runs):
             assert row["output_v"] >= 0.0, (what, row)
             assert row["bus_v"] <= math.sqrt(2) * row["line_v"] + 1e-9 or \
                 not design.input.is_ac, (what, row)
-    assert no_dc_point <= len(designs) // 20, no_dc_point
+    assert no_dc_point <= max(len(runs) // 20, 1), no_dc_point
 
 
 @pytest.mark.xfail(strict=True, reason="cycle model floors a collapsed bulk valley at 1 V "

@@ -104,7 +104,7 @@ def startup(
     design = load_with_overrides(design_file, settings)
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--latex": (latex, (".tex",))}, force)
     try:
-        report = startup_report(design)
+        report = startup_report(design, engine=True)
     except DcPointError as error:
         raise fail_input(f"{design_file}: {error}") from None
     findings = startup_findings(design, report)

@@ -647,7 +647,7 @@ class StartupReport:
         }
 
 
-def startup_report(design, engine: bool = True) -> StartupReport:
+def startup_report(design, engine: bool = False) -> StartupReport:
     """Run the whole start-up analysis of a design.
 
     Parameters
