@@ -520,11 +520,12 @@ def _squegging(design, corner_sets, findings):
     if unsettled:
         findings.append(Finding(
             "drive-ratchet", "warn",
-            f"At {unsettled} of {total} evaluated operating points the drive capacitor "
-            "charges more during the on-time than the off-time resets: its voltage "
-            "ratchets up until a long drive-timed off-time resets it (squegging, "
-            "irregular cycles). The cycle-model values there describe one cycle of that "
-            "pattern; check with `rcc cycle`/`rcc waveforms`.",
+            f"At {unsettled} of {total} evaluated operating points the cycle states "
+            "(drive and auxiliary capacitors) settle into no steady cycle: a repeating "
+            "pattern of different pulses (for example a full pulse, then held short ones "
+            "while the drive capacitor ratchets and resets), an alternation between two "
+            "cycle regimes, or irregular cycles. The cycle-model values there are averages "
+            "of that pattern, marked unverified; check with `rcc cycle`/`rcc waveforms`.",
             float(unsettled), 0.0, "points",
             "Give the drive capacitor a reset path in the off-time: a base-emitter resistor "
             "of lower value, a diode across the base-emitter junction, or more feedback "
