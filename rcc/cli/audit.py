@@ -19,7 +19,7 @@ from rcc.cli.overrides import load_with_overrides, set_option
 DEFAULT_SAMPLES = 50
 
 
-@app.command()
+@app.command(short_help="Rank repair or redesign candidates: checks, spreads, reasons.")
 def audit(
     design_file: Path = typer.Argument(..., help="TOML design file (the reference)."),
     candidates: Path = typer.Option(..., "--candidates", help="Candidates file "

@@ -12,7 +12,7 @@ from rcc.cli import EXIT_OK, app, fail_input
 from rcc.cli.overrides import load_with_overrides, parse_settings, set_option, split_variant
 
 
-@app.command()
+@app.command(short_help="Designs or variants side by side: margins, findings, stresses.")
 def compare(
     design_files: List[Path] = typer.Argument(..., help="TOML design files; the first "
                                               "is the reference."),

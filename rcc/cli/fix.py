@@ -14,7 +14,7 @@ from rcc.cli import EXIT_OK, app
 from rcc.cli.overrides import load_with_overrides, set_option
 
 
-@app.command()
+@app.command(short_help="Smallest preferred-value changes that clear failing findings.")
 def fix(
     design_file: Path = typer.Argument(..., help="TOML design file."),
     settings: Optional[List[str]] = set_option(),

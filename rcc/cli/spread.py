@@ -18,7 +18,7 @@ from rcc.cli.overrides import load_with_overrides, set_option
 DEFAULT_SAMPLES = 1000
 
 
-@app.command()
+@app.command(short_help="Tolerance spread: yield, worst case, sensitivities.")
 def spread(
     design_file: Path = typer.Argument(..., help="TOML design file with a tolerances "
                                        "section (without one only hFE spreads)."),
