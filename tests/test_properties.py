@@ -73,7 +73,7 @@ def scalar(points: OperatingPoints, name: str):
 
 
 # ------------------------------------------------------------ monotonicity
-@PROPERTY
+@settings(PROPERTY, suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
 @given(point=operating_point(), ratio=st.floats(1.05, 3.0))
 def test_bcm_frequency_falls_as_load_rises(point, ratio):
     name, line, load, temperature = point
