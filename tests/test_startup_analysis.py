@@ -30,7 +30,9 @@ FAULTS = {
 }
 
 JSON_KEYS = {"starts", "growth_rate_per_s", "growth_frequency_hz", "min_start_bus_v",
-             "min_start_line_v", "start_time_s", "holding_element", "dc_point", "poles"}
+             "min_start_line_v", "start_time_s", "holding_element", "dc_point", "poles",
+             "oscillation_begins", "reaches_operating_point", "time_to_regulation_s",
+             "power_on"}
 
 
 @pytest.fixture(scope="module")
