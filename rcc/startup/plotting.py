@@ -147,7 +147,7 @@ def plot_loop_gain(result, ax=None, frequencies=None):
                 f"gain margin {-db:.1f} dB at phase 0: short of Barkhausen")
         magnitude_ax.annotate(text, (f, db), xytext=(6, -12), textcoords="offset points",
                               fontsize=8, color="tab:red")
-    verdict = "starts" if result.starts else f"stalls ({result.holding_element})"
+    verdict = "oscillation begins" if result.starts else f"stalls ({result.holding_element})"
     magnitude_ax.set_title(
         f"Start-up loop gain: {verdict}\nat {result.bus_voltage:.4g} V bus, "
         f"{result.temperature - 273.15:.3g} degC, hFE(25 degC) {result.hfe:.3g} "
