@@ -51,7 +51,7 @@ def test_bode_is_stacked_with_corner_and_marks(standby):
     magnitude, phase = plot_loop_gain(result)
     assert magnitude.get_shared_x_axes().joined(magnitude, phase)
     title = magnitude.get_title()
-    assert "starts" in title and "118.6 V bus" in title and "0 degC" in title \
+    assert "oscillation begins" in title and "118.6 V bus" in title and "0 degC" in title \
         and "hFE(25 degC) 20" in title
     texts = " ".join(t.get_text() for t in magnitude.texts)
     assert "0 dB at" in texts and "Barkhausen met" in texts
