@@ -231,6 +231,12 @@ class OperatingPoints:
         (the power balance sits on a jump between two cycle regimes),
         ``unsettled``, or ``invariant: ...`` (a physical invariant failed;
         such a point must not be reported as a number).
+    energy_per_cycle : ndarray
+        Magnetizing energy transferred per pulse, ``Lm (Ipk^2 - I0^2) / 2``,
+        the mean over the pulses of a pattern; times ``frequency`` it is the
+        power that the output, the rectifier, the regulation path, the
+        flyback core loss, the clamp (above the leakage energy), the turn-off
+        above the bus and the drive reset take [J].
     input_power : ndarray
         Power drawn from the bus [W].
     output_power : ndarray
@@ -265,6 +271,7 @@ class OperatingPoints:
     pulses_per_pattern: np.ndarray
     output_multiplier: np.ndarray
     doubt: np.ndarray
+    energy_per_cycle: np.ndarray
     input_power: np.ndarray
     output_power: np.ndarray
     losses: Losses
@@ -754,9 +761,12 @@ class _Cycle:
         # energy at the plateau voltage (feedback-winding regulation)
         aux_energy = aux_charge * (aux + d.regulation.rectifier_drop) if self.aux_state \
             else np.zeros_like(vr)
-        secondary = np.maximum(
-            transferred - core_off - (clamp_rate - leakage_rate) / frequency - reversal
-            - reset_energy - aux_energy, 0.0)
+        secondary = (transferred - core_off - (clamp_rate - leakage_rate) / frequency
+                     - reversal - reset_energy - aux_energy)
+        # what the losses fed by the magnetizing energy would take beyond it
+        # (an invariant breach, flagged by _doubts)
+        shortfall = np.maximum(-secondary, 0.0)
+        secondary = np.maximum(secondary, 0.0)
         share_out = output_voltage / (output_voltage + d.output.rectifier_drop)
         if self.aux_state:
             regulation_power = aux_energy * frequency
@@ -773,6 +783,7 @@ class _Cycle:
             frequency=frequency, delivered=delivered, on_end=on_end, off_end=off_end,
             mode=mode, vc_next=vc_next, va_next=va_next, residual=residual,
             restarts=restarts, drive_capability=drive_capability,
+            transferred=transferred, shortfall=shortfall,
         )
         if not losses:
             return state
@@ -991,15 +1002,92 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
         load = np.broadcast_to(load_values, line.shape).astype(float)
     gain = current_gain(hfe25, design.switch.hfe_tempco, temp)
 
-    # AC input: the bus is the bulk valley, which depends on the input power
-    input_power_estimate = np.zeros_like(line)
-    result = None
-    for _ in range(2 if design.input.is_ac else 1):
-        bus = bus_voltage(design, line, input_power_estimate)
-        bus = np.maximum(bus, 1.0)
+    if design.input.is_ac:
+        bus, result = _bus_balance(design, line, temp, gain, load)
+    else:
+        bus = np.maximum(line, 1.0)
         result = _solve_output(design, bus, temp, gain, load)
-        input_power_estimate = result["input_power"]
     return _assemble(design, line, bus, temp, gain, load, result)
+
+
+#: Relative tolerance of the bulk valley against the input power it feeds
+_BUS_TOLERANCE = 1e-9
+
+
+def _bus_balance(design: Design, line, temperature, gain, load):
+    """Bulk-capacitor valley consistent with the power the supply draws.
+
+    The valley ``V(P)`` (:func:`rcc.mains.bulk_valley`) falls as the input
+    power ``P`` rises, and ``P`` depends on the bus through the operating
+    point; the bus is the root of ``h(V) = V - V(P(V))``.  ``h`` is
+    non-negative at the rectified peak (zero power); stepping down by
+    ``V <- V(P(V))`` brackets the root, which regula falsi (Illinois; see
+    :func:`_first_crossing`) then refines until ``|h|`` or the bracket is
+    below :data:`_BUS_TOLERANCE` relative.  Only the points not yet converged
+    are solved again.  (In overload the input power falls steeply with the
+    bus, so a fixed number of passes leaves the output far from its
+    balance.)
+    """
+    shape = line.shape
+    size = int(np.prod(shape)) if shape else 1
+    flat = lambda value: np.reshape(value, (size,)).astype(float)  # noqa: E731
+    line, temperature, gain = flat(line), flat(temperature), flat(gain)
+    load = load if isinstance(load, Load) else flat(load)
+
+    def solve(bus, index):
+        part_load = load if isinstance(load, Load) else load[index]
+        part = _solve_output(design, bus, temperature[index], gain[index], part_load)
+        valley = np.maximum(bus_voltage(design, line[index], part["input_power"]), 1.0)
+        return part, bus - valley
+
+    everything = np.arange(size)
+    high = np.maximum(bus_voltage(design, line, 0.0), 1.0)
+    result, h_high = solve(high, everything)
+    bus = high.copy()
+    tolerance = _BUS_TOLERANCE * high
+    done = np.abs(h_high) <= tolerance
+    low, h_low = high - h_high, np.zeros(size)
+    # step down until h changes sign (h is non-positive at the 1 V floor)
+    pending = ~done
+    for _ in range(60):
+        index = np.flatnonzero(pending)
+        if index.size == 0:
+            break
+        part, h_part = solve(low[index], index)
+        result = _put_state(result, part, index, size)
+        bus[index], h_low[index] = low[index], h_part
+        converged = np.abs(h_part) <= tolerance[index]
+        done[index] |= converged
+        below = (h_part < 0.0) & ~converged
+        above = ~below & ~converged
+        high[index[above]], h_high[index[above]] = low[index[above]], h_part[above]
+        low[index[above]] = np.maximum(low[index[above]] - h_part[above], 1.0)
+        pending[index[below | converged]] = False
+    # regula falsi, Illinois modification, on the bracket [low, high]
+    side = np.zeros(size, dtype=int)
+    for _ in range(200):
+        index = np.flatnonzero(~done)
+        if index.size == 0:
+            break
+        lo, hi, f_lo, f_hi = low[index], high[index], h_low[index], h_high[index]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            trial = hi - f_hi * (hi - lo) / (f_hi - f_lo)
+        bad = ~np.isfinite(trial) | (trial <= lo) | (trial >= hi)
+        trial = np.where(bad, 0.5 * (lo + hi), trial)
+        part, h_trial = solve(trial, index)
+        result = _put_state(result, part, index, size)
+        bus[index] = trial
+        upper = h_trial >= 0.0
+        s = side[index]
+        h_low[index] = np.where(~upper, h_trial, np.where(s == -1, 0.5 * f_lo, f_lo))
+        low[index] = np.where(~upper, trial, lo)
+        h_high[index] = np.where(upper, h_trial, np.where(s == 1, 0.5 * f_hi, f_hi))
+        high[index] = np.where(upper, trial, hi)
+        side[index] = np.where(upper, -1, 1)
+        done[index] = (np.abs(h_trial) <= tolerance[index]) \
+            | (high[index] - low[index] <= tolerance[index])
+    return bus.reshape(shape), {key: _unflatten(value, shape, size)
+                                for key, value in result.items()}
 
 
 def operating_points_batch(design: Design, requests):
@@ -1132,10 +1220,16 @@ def _newton_fixed_point(cycle, voltage, x, iterations):
     identity = np.eye(3)
     converged = np.zeros(x.shape[0], dtype=bool)
     active = np.arange(x.shape[0])
+    # the image of x where it is already known (an accepted Newton trial)
+    known = np.zeros(x.shape[0], dtype=bool)
+    known_image = np.empty_like(x)
     for iteration in range(iterations):
-        sub = cycle.subset(active)
         xa, va = x[active], voltage[active]
-        _, image = _map(sub, va, xa)
+        image = known_image[active]
+        fresh = ~known[active]
+        if fresh.any():
+            _, image[fresh] = _map(cycle.subset(active[fresh]), va[fresh], xa[fresh])
+        known[active] = False
         residual = image - xa
         size = np.max(np.abs(residual) / (np.abs(xa) + scale[active]), axis=-1)
         done = size <= _FIXED_POINT_TOLERANCE
@@ -1147,23 +1241,32 @@ def _newton_fixed_point(cycle, voltage, x, iterations):
             keep = ~done
             active, xa, image, residual, size, va = (
                 active[keep], xa[keep], image[keep], residual[keep], size[keep], va[keep])
-            sub = cycle.subset(active)
+            count = active.size
+            if count == 0:
+                break
+            # the three forward differences and the Newton trial are separate
+            # evaluations; the first three share one call (elementwise map)
             step = 1e-7 * (np.abs(xa) + scale[active])
+            shifted = np.repeat(xa[None], 3, axis=0)
+            for column in range(3):
+                shifted[column, :, column] += step[:, column]
+            _, images = _map(cycle.subset(np.tile(active, 3)), np.tile(va, 3),
+                             shifted.reshape(3 * count, 3))
+            images = images.reshape(3, count, 3)
             jacobian = np.empty(xa.shape + (3,))
             for column in range(3):
-                shifted = xa.copy()
-                shifted[:, column] += step[:, column]
-                jacobian[:, :, column] = (_map(sub, va, shifted)[1] - image) \
-                    / step[:, column, None]
+                jacobian[:, :, column] = (images[column] - image) / step[:, column, None]
             system = jacobian - identity
             singular = ~(np.abs(np.linalg.det(system)) > 1e-12)
             system = np.where(singular[:, None, None], -identity, system)
             newton = xa - np.linalg.solve(system, residual[..., None])[..., 0]
-            _, trial_image = _map(sub, va, newton)
+            _, trial_image = _map(cycle.subset(active), va, newton)
             trial_size = np.max(np.abs(trial_image - newton)
                                 / (np.abs(newton) + scale[active]), axis=-1)
             better = np.isfinite(trial_size) & (trial_size < size)
             x[active] = np.where(better[:, None], newton, image)
+            known[active] = better
+            known_image[active] = trial_image
         if active.size == 0:
             break
     return x, converged
@@ -1246,7 +1349,9 @@ def _take_state(state, index, size):
 def _put_state(state, part, index, size):
     out = {}
     for key, value in state.items():
-        if isinstance(value, Losses):
+        if key not in part:
+            out[key] = value
+        elif isinstance(value, Losses):
             merged = {}
             for item in fields(Losses):
                 array = np.array(np.broadcast_to(getattr(value, item.name), (size,)), float)
@@ -1383,7 +1488,8 @@ def _mix_regimes(first, second, share, where):
     for key in ("delivered",):
         mixed[key] = np.where(where, share * first[key] + (1.0 - share) * second[key],
                               second[key])
-    for key in ("t_on", "t_turn_off", "vr", "ireg", "itrip", "start", "drive_capability"):
+    for key in ("t_on", "t_turn_off", "vr", "ireg", "itrip", "start", "drive_capability",
+                "transferred", "shortfall"):
         mixed[key] = np.where(where, pulses * first[key] + (1.0 - pulses) * second[key],
                               second[key])
     mixed["frequency"] = np.where(where, rate, f2)
@@ -1447,7 +1553,10 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     started = np.maximum.accumulate(positive, axis=0)
     barrier_mask = deficit & started
     has_barrier = barrier_mask.any(axis=0)
-    barrier = np.where(has_barrier, np.argmax(barrier_mask, axis=0), fractions.size - 1)
+    # no surplus anywhere (a collapsed output) the supply sits at the bottom;
+    # a surplus up to the top of the range: the regulation path holds there
+    barrier = np.where(has_barrier, np.argmax(barrier_mask, axis=0),
+                       np.where(any_positive, fractions.size - 1, 0))
     # still a surplus at the top of the range: the regulation path holds the
     # limiter on there and the supply bursts at that output
     burst = ~has_barrier & positive[-1] & regulated
@@ -1590,6 +1699,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         pulses_per_pattern=np.where(running, state["pattern"], 0),
         output_multiplier=state["output_multiplier"],
         doubt=doubt,
+        energy_per_cycle=np.where(running, state["transferred"], 0.0),
         startup_lockup=state["lockup"],
         running=running,
         input_power=state["input_power"],
@@ -1650,7 +1760,8 @@ def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequenc
 
     Invariants checked at every running point: positive on-time, off-time,
     frequency and peak current; no negative loss; input power equal to output
-    power plus losses within 1 %; the bus within its physical range (at most
+    power plus losses within 1 %; the losses fed by the magnetizing energy
+    per cycle not above it by more than 1 %; the bus within its physical range (at most
     the rectified line peak for AC input, the input itself for DC).
     """
     doubt = np.full(np.shape(running), "", dtype=object)
@@ -1664,6 +1775,8 @@ def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequenc
         negative_loss |= np.broadcast_to(getattr(losses, item.name), np.shape(running)) < -1e-12
     balance = np.abs(state["input_power"] - state["output_power"] - losses.total) \
         > 0.01 * np.maximum(state["input_power"], 1e-12)
+    # the losses fed by the magnetizing energy must not exceed it
+    energy = state["shortfall"] > 0.01 * np.maximum(np.abs(state["transferred"]), 1e-30)
     if design.input.is_ac:
         # the valley search floors a collapsed bulk capacitor at 1 V: no real bus
         bus_bad = (bus <= 1.0) | (bus > np.sqrt(2.0) * line * (1.0 + 1e-9))
@@ -1675,6 +1788,7 @@ def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequenc
               ("peak current", running & ~(state["peak"] > 0.0)),
               ("negative loss", running & negative_loss),
               ("power balance", running & balance),
+              ("energy per cycle", running & energy),
               ("bus range", bus_bad))
     for name, failed in checks:
         doubt = np.where(failed, "invariant: " + name, doubt)
