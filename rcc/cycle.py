@@ -777,6 +777,9 @@ class _Cycle:
                                         if d.regulation.method == "optocoupler"
                                         else 0.0, 0.0)
             delivered = secondary * share_out * frequency - regulation_power
+        # a cycle after which the switch cannot turn on again delivers once,
+        # not at a rate
+        delivered = np.where(restarts, delivered, 0.0)
         state = dict(
             vr=vr, ireg=ireg, itrip=itrip, peak=peak, t_on=t_on, t_off=t_off,
             start=np.broadcast_to(i0, np.shape(peak)), t_turn_off=t_rise,
@@ -1009,6 +1012,10 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
         result = _solve_output(design, bus, temp, gain, load)
     return _assemble(design, line, bus, temp, gain, load, result)
 
+
+#: Relative distance of the start-up bias ``I_start R_be`` from ``Vbe`` within
+#: which a point is reported on the regime boundary of the drive-timed restart
+_START_BIAS_BOUNDARY = 1e-4
 
 #: Relative tolerance of the bulk valley against the input power it feeds
 _BUS_TOLERANCE = 1e-9
@@ -1550,8 +1557,10 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     # a deficit of less than 0.1 % of the full load power (where both powers
     # vanish near zero output) is no barrier
     deficit = scan_surplus < -1e-3 * _load_power(load, top)
-    started = np.maximum.accumulate(positive, axis=0)
-    barrier_mask = deficit & started
+    # a deficit below the first surplus is a barrier too: from power-on the
+    # output cannot climb through outputs where the cycles (for example ones
+    # after which the switch cannot turn on again) deliver less than the load
+    barrier_mask = deficit
     has_barrier = barrier_mask.any(axis=0)
     # no surplus anywhere (a collapsed output) the supply sits at the bottom;
     # a surplus up to the top of the range: the regulation path holds there
@@ -1672,8 +1681,8 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     mode_names = np.where(running, mode_names, "off")
     period = np.where(frequency > 0, 1.0 / np.maximum(frequency, 1e-300), 0.0)
     off_time = np.where(running, np.maximum(period - t_on, t_off), 0.0)
-    doubt = _doubts(design, line, bus, running, mode_names, state, t_on, off_time,
-                    frequency)
+    doubt = _doubts(design, line, bus, temperature, running, mode_names, state, t_on,
+                    off_time, frequency)
     return OperatingPoints(
         line_voltage=line,
         bus_voltage=bus,
@@ -1755,7 +1764,8 @@ def limit_power_capability(design: Design, line_voltage, temperature, hfe=None):
     return power
 
 
-def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequency):
+def _doubts(design, line, bus, temperature, running, mode, state, on_time, off_time,
+            frequency):
     """Why a point's numbers need the engine (empty: none), and invariants.
 
     Invariants checked at every running point: positive on-time, off-time,
@@ -1768,6 +1778,17 @@ def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequenc
     doubt = np.where(np.isin(mode, ("burst", "irregular")), "pattern", doubt)
     doubt = np.where(mode == "lockup", "lockup", doubt)
     doubt = np.where(state["jump"], "regime-boundary", doubt)
+    # the start-up current through R_be sits at the base threshold: there the
+    # drive-timed wait diverges as tau ln(1/margin), so the low-output cycles
+    # (and whether the supply climbs out of them) change with the last digit
+    # of the line; within 1e-4 of Vbe the point is on a true regime boundary
+    rbe = design.drive.base_emitter_resistance
+    if rbe is not None:
+        vbe = base_emitter_voltage(design.switch.vbe, design.switch.vbe_tempco,
+                                   temperature)
+        startup = np.maximum(bus - vbe, 0.0) / design.startup.resistance
+        knife = np.abs(startup * rbe - vbe) <= _START_BIAS_BOUNDARY * vbe
+        doubt = np.where(knife, "regime-boundary", doubt)
     doubt = np.where(running & ~state["settled"] & (doubt == ""), "unsettled", doubt)
     losses = state["losses"]
     negative_loss = np.zeros(np.shape(running), dtype=bool)
