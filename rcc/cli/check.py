@@ -45,7 +45,7 @@ def check(
             report = full_check(design, startup_engine=True)
         except DcPointError as error:
             raise fail_input(f"{design_file}: {error}") from None
-        status.phase("engine from power-on at the doubtful points")
+        status.phase(f"engine from power-on at the doubtful points ({budget:g} s budget)")
         report = solve_doubtful_points(report, budget)
         data = report.to_json()
         if verify:
