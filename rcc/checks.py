@@ -184,12 +184,12 @@ class CheckReport:
         """The grid's records, with the engine's values where it solved a point.
 
         An engine-solved record has ``source: "engine"``, the engine's bus,
-        output, mean pulse rate and mean peak current, ``mode`` from
-        :data:`ENGINE_MODES`, ``null`` for what the run does not give (on- and
-        off-times, duty, what ended them, input power and losses), ``doubt``
-        ``"engine-unsettled"`` where the run had not settled by its end, ``engine``
-        (the run's summary) and ``cycle_model`` (the cycle model's record, for
-        comparison).  A doubtful record the engine did not solve keeps the
+        output, load current at that output, mean pulse rate and mean peak
+        current, ``mode`` from :data:`ENGINE_MODES`, ``null`` for what the run
+        does not give (on- and off-times, duty, what ended them, input power and
+        losses), ``doubt`` ``"engine-unsettled"`` where the run had not settled
+        by its end, ``engine`` (the run's summary) and ``cycle_model`` (the
+        cycle model's record, for comparison).  A doubtful record the engine did not solve keeps the
         cycle model's values and gets ``engine: {"skipped": why}``.
         """
         records = self.points.records()
@@ -432,6 +432,7 @@ def _engine_record(record: dict, run) -> dict:
     engine = dict(record)
     engine.update({
         "bus_v": float(run.bus_voltage), "output_v": float(run.output_voltage),
+        "load_a": float(run.load.current(run.output_voltage)),
         "frequency_hz": float(run.frequency), "on_time_s": None, "off_time_s": None,
         "duty": None, "peak_current_a": float(run.peak_current),
         "mode": ENGINE_MODES[run.kind], "on_end": None, "off_end": None,

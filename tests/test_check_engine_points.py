@@ -49,6 +49,7 @@ def test_a_doubtful_point_is_solved_by_the_engine(standby_report, one_point):
     assert record["output_v"] == run.output_voltage
     assert record["frequency_hz"] == run.frequency
     assert record["peak_current_a"] == run.peak_current
+    assert record["load_a"] == pytest.approx(model[i]["load_a"])  # a current load
     assert record["mode"] == ENGINE_MODES[run.kind]
     assert record["cycle_model"] == model[i]
     assert record["on_time_s"] is None and record["losses_w"] is None
