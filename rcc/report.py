@@ -258,6 +258,9 @@ def format_start_line(startup: dict) -> list[str]:
         if search["note"]:
             lines.append(f"start into full load from: unknown, the search stopped: "
                          f"{search['note']}")
+        elif search["failing_basis"] == "small-signal":
+            lines.append("start into full load from: no line of the design (oscillation "
+                         "cannot begin at some corner)")
         else:
             lines.append(f"start into full load from: no line of the design (engine from "
                          f"power-on up to {search['failing_line_v']:.4g} {unit})")

@@ -760,6 +760,9 @@ def _start_line_sentence(design, report: StartupReport) -> str:
     if search.line_voltage is None:
         if search.note:
             return f"The search for the lowest start line stopped: {search.note}."
+        if search.failing_basis == "small-signal":
+            return ("It starts into its full load at no line of the design: at some "
+                    "corner the power-on DC point is stable at every line.")
         return (f"It starts into its full load at no line of the design (engine from "
                 f"power-on up to {search.failing_line_voltage:.4g} {unit}).")
     text = (f"From power-on it starts into its full load from {search.line_voltage:.4g} "
