@@ -186,6 +186,9 @@ def format_check_report(data: dict) -> str:
         run = startup.get("power_on")
         if not startup.get("oscillation_begins", startup.get("starts")):
             out.append(f"    does NOT start: held by {startup.get('holding_element')}")
+        elif run is None and startup.get("min_start_search") is not None:
+            out.append("    does NOT start into its load: the power-on DC point is unstable, "
+                       "but at the lowest line the bulk capacitor cannot carry the full load")
         elif run is None:
             out.append("    oscillation begins: the power-on DC point is unstable "
                        "(the engine was not run from power-on)")

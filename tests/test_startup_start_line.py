@@ -167,3 +167,24 @@ def test_min_start_line_is_bracketed_by_the_engine(standby):
     assert data["min_start_line_resolution_v"] == search.resolution
     assert data["min_oscillation_bus_v"] == report.oscillation_bus_voltage
     json.dumps(data, allow_nan=False)
+
+
+def test_a_bulk_capacitor_that_cannot_carry_the_load_at_the_lowest_line(standby,
+                                                                        monkeypatch):
+    """8 uF at 85 V and 7.5 W: the hold-up estimate puts the valley at zero, so
+    there is no bus for the engine at the lowest line; the report says the
+    supply does not start into its load there instead of failing."""
+    from rcc.startup import analysis, startup_findings, startup_report
+
+    small = standby.with_values({"input.bulk_capacitance": "8 uF"})
+    run, calls = _stand_in(110.0)
+    monkeypatch.setattr(start_line, "run_into_load", run)
+    monkeypatch.setattr(analysis, "run_into_load", run)
+    report = startup_report(small, engine=True)
+    assert report.oscillation_begins and report.into_load is None
+    assert report.reaches_operating_point is False and not report.starts
+    assert small.input.line_voltages[0] not in calls
+    assert report.start_line.line_voltage >= 110.0
+    lockup = [f for f in startup_findings(small, report) if f.code == "startup-lockup"]
+    assert len(lockup) == 1 and "bulk capacitor cannot carry" in lockup[0].message
+    json.dumps(report.to_json(), allow_nan=False)

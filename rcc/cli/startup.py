@@ -50,6 +50,9 @@ def _text(report, findings) -> str:
                 f"{run.expected_output:.3g} V{settle}")
             lines.append(f"  verdict      {'starts' if report.starts else 'does not start'}"
                          f" into its load: it {reached}")
+        elif report.start_line is not None:
+            lines.append("  verdict      does not start into its load: at the lowest line the "
+                         "bulk capacitor cannot carry the full load")
         else:
             lines.append("  verdict      starts (small-signal only: the engine was not run)")
     else:

@@ -619,6 +619,9 @@ class StartupReport:
         (:func:`rcc.startup.start_line.reaches_operating_point`); ``None``
         where it was not run or the engine failed [-]."""
         if self.into_load is None:
+            if self.start_line is not None:
+                # the engine was asked for but had no bus at the lowest line
+                return False
             return None if self.result.starts else False
         return reaches_operating_point(self.into_load, self.output_tolerance)
 
@@ -728,8 +731,14 @@ def startup_report(design, engine: bool = False) -> StartupReport:
         drive = drive_cycle(design)
     into_load = search = None
     if engine:
-        if result.starts:
+        from rcc.engine.power_on import power_on_bus_voltage
+
+        if result.starts and power_on_bus_voltage(
+                design, design.input.line_voltages[0], design.output.load_max,
+                design.environment.temperature_min) > 0:
             into_load = run_into_load(design)
+        # else the bulk capacitor cannot carry the full load at the lowest line:
+        # no bus for the engine there (reaches_operating_point is False)
         search = search_start_line(design, threshold, first_run=into_load)
     return StartupReport(design.title, result, threshold, line, start_time, drive,
                          design.input.is_ac, into_load, search,
@@ -841,7 +850,18 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
                 advice=_ADVICE[element]))
         return findings
     run = report.into_load
-    if run is not None and run.kind == "failed":
+    if run is None and report.start_line is not None:
+        line = float(design.input.line_voltages[0])
+        findings.append(Finding(
+            "startup-lockup", "fail",
+            f"The power-on DC point is unstable, but at the lowest line ({line:.4g} V) the "
+            f"bulk capacitor cannot carry the full load ({design.output.load_max.text()}): "
+            f"by the hold-up estimate its valley falls to zero, so the supply cannot reach "
+            f"its operating point there. " + _start_line_sentence(design, report),
+            value=None, limit=None, unit="",
+            advice="Enlarge the bulk capacitor or reduce load_max; raise the lowest line "
+                   "only if the specification allows."))
+    elif run is not None and run.kind == "failed":
         findings.append(Finding(
             "startup-unverified", "warn",
             f"The power-on DC point is unstable, but whether the supply starts into its "
