@@ -198,7 +198,7 @@ def test_check_text_report_carries_the_caution():
 
 
 def test_check_exit_1_on_fail():
-    result = runner.invoke(app, ["check", str(LEGACY)])
+    result = runner.invoke(app, ["check", str(LEGACY), "--engine-budget", "0s"])
     assert result.exit_code == 1
     assert "[FAIL] switch-overvoltage" in result.stdout
 
