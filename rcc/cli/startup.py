@@ -50,17 +50,16 @@ def _text(report, findings) -> str:
                 f"{run.expected_output:.3g} V{settle}")
             lines.append(f"  verdict      {'starts' if report.starts else 'does not start'}"
                          f" into its load: it {reached}")
+        elif report.start_line is not None:
+            lines.append("  verdict      does not start into its load: at the lowest line the "
+                         "bulk capacitor cannot carry the full load")
         else:
             lines.append("  verdict      starts (small-signal only: the engine was not run)")
     else:
         lines.append(f"  verdict      stalls, held by: {r.holding_element}")
-    threshold = report.min_start_bus_voltage
-    text = "does not start at any bus voltage of the design" if threshold is None \
-        else f"{threshold:.4g} V bus"
-    if threshold is not None and report.min_start_line_voltage is not None:
-        text += f" ({report.min_start_line_voltage:.4g} V RMS line)"
-    lines.append(f"  oscillation begins from  {text} (small-signal threshold at the worst "
-                 f"corner; starting into the load is checked at the lowest line)")
+    from rcc.report import format_start_line
+
+    lines += ["  " + line for line in format_start_line(report.to_json())]
     t = report.start_time
     if t is not None:
         lines.append(f"  start time   {_si(t.total, 's')} (bulk {_si(t.bulk_charge_time, 's')}, "
