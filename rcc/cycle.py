@@ -368,23 +368,77 @@ def hold_output_voltage(design: Design, temperature):
     return None
 
 
+def expected_output_voltage(design: Design, temperature) -> float:
+    """Output voltage the supply is meant to hold: the target, else the
+    regulation hold point, else 12 V (an unregulated design without a target:
+    used for load breakpoints only) [V]."""
+    if design.output.voltage_target is not None:
+        return float(design.output.voltage_target)
+    hold = hold_output_voltage(design, temperature)
+    if hold is not None:
+        return float(np.max(hold))
+    return 12.0  # common practice
+
+
+#: A constant-power load takes its power between these fractions of the
+#: expected output voltage; below it is a resistance through the origin, above
+#: a constant current (the time-domain engine's load law, rcc.engine.circuit)
+POWER_LOAD_RANGE = (0.25, 2.0)
+
+
+@dataclass(frozen=True)
+class _LoadLaw:
+    """The load seen by the output balance, values broadcast to the points.
+
+    ``kind`` ``current`` (ideal), ``resistance``, or ``power``: no load takes
+    its rated power at a collapsed output (an electronic load or a downstream
+    converter falls to a resistance there), so a constant-power load takes
+    ``P`` only within :data:`POWER_LOAD_RANGE` of the expected output
+    ``expected`` [V], the law the engine uses (without its secant segments).
+    """
+
+    kind: str
+    value: np.ndarray
+    expected: float
+
+    def take(self, index) -> "_LoadLaw":
+        return _LoadLaw(self.kind, np.reshape(self.value, -1)[index], self.expected)
+
+    def current(self, output_voltage):
+        voltage = np.asarray(output_voltage, dtype=float)
+        if self.kind == "current":
+            return self.value * np.ones_like(voltage)
+        if self.kind == "resistance":
+            return voltage / self.value
+        low, high = (fraction * self.expected for fraction in POWER_LOAD_RANGE)
+        return np.where(voltage < low, self.value * voltage / low**2,
+                        np.where(voltage > high, self.value / high,
+                                 self.value / np.maximum(voltage, 1e-300)))
+
+    def power(self, output_voltage):
+        return np.asarray(output_voltage, dtype=float) * self.current(output_voltage)
+
+    def voltage_for_power(self, power, fallback):
+        """Output voltage below the expected output at which the load takes
+        ``power`` (``fallback`` where none) [V]."""
+        power = np.asarray(power, dtype=float)
+        if self.kind == "current":
+            return np.where(self.value > 0, power / np.maximum(self.value, 1e-300), fallback)
+        if self.kind == "resistance":
+            return np.sqrt(np.maximum(power, 0.0) * self.value)
+        low = POWER_LOAD_RANGE[0] * self.expected
+        return np.where(power < self.value,
+                        low * np.sqrt(np.maximum(power, 0.0) / np.maximum(self.value, 1e-300)),
+                        fallback)
+
+
 def _load_power(load, output_voltage):
-    if isinstance(load, Load):
-        return load.power(output_voltage)
-    return np.asarray(load, dtype=float) * output_voltage
+    return load.power(output_voltage)
 
 
 def _voltage_for_power(load, power, fallback):
     """Output voltage at which ``load`` takes ``power`` [V]."""
-    if isinstance(load, Load):
-        if load.kind == "current":
-            value = np.asarray(load.value, dtype=float)
-            return np.where(value > 0, power / np.maximum(value, 1e-300), fallback)
-        if load.kind == "resistance":
-            return np.sqrt(power * load.value)
-        return fallback
-    current = np.asarray(load, dtype=float)
-    return np.where(current > 0, power / np.maximum(current, 1e-300), fallback)
+    return load.voltage_for_power(power, fallback)
 
 
 def _first_crossing(function, low, high, tolerance=1e-15, iterations=200, jump=None):
@@ -882,7 +936,7 @@ class _Cycle:
         drop, knee, tau_cb = self._reset_constants(winding)
         floor = winding + sw.vebo
         junction = winding + drop
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             # stage 1 reaches down to the knee
             t_knee = np.where(vc > knee, self.tau * np.log(
                 (vc - floor) / np.maximum(knee - floor, 1e-300)), 0.0)
@@ -1001,8 +1055,9 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
         np.asarray(line_voltage, dtype=float), np.asarray(temperature, dtype=float),
         np.asarray(hfe, dtype=float), load_values)
     line, temp, hfe25 = (np.array(a, dtype=float) for a in (line, temp, hfe25))
-    if not isinstance(load, Load):
-        load = np.broadcast_to(load_values, line.shape).astype(float)
+    load = _LoadLaw(load.kind if isinstance(load, Load) else "current",
+                    np.broadcast_to(load_values, line.shape).astype(float),
+                    expected_output_voltage(design, reference_temperature(design)))
     gain = current_gain(hfe25, design.switch.hfe_tempco, temp)
 
     if design.input.is_ac:
@@ -1039,11 +1094,10 @@ def _bus_balance(design: Design, line, temperature, gain, load):
     size = int(np.prod(shape)) if shape else 1
     flat = lambda value: np.reshape(value, (size,)).astype(float)  # noqa: E731
     line, temperature, gain = flat(line), flat(temperature), flat(gain)
-    load = load if isinstance(load, Load) else flat(load)
+    load = load.take(slice(None))
 
     def solve(bus, index):
-        part_load = load if isinstance(load, Load) else load[index]
-        part = _solve_output(design, bus, temperature[index], gain[index], part_load)
+        part = _solve_output(design, bus, temperature[index], gain[index], load.take(index))
         valley = np.maximum(bus_voltage(design, line[index], part["input_power"]), 1.0)
         return part, bus - valley
 
@@ -1664,10 +1718,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     scale = state["scale"]
     frequency = np.where(running, state["frequency"] * scale, 0.0)
     output = np.where(running, state["output"], 0.0)
-    if isinstance(load, Load):
-        load_current = load.current(output)
-    else:
-        load_current = np.where(running, load, 0.0)
+    load_current = np.where(running, load.current(output), 0.0)
     t_on, t_off = state["t_on"], state["t_off"]
     mode_names = np.array(["dcm", "bcm", "ccm"])[state["mode"]]
     # a mix of ring- and drive-timed cycles (frequency scaled below the

@@ -287,6 +287,7 @@ ZENER_KNEE_FOOT_CURRENT = 1e-9
 #: Constant-current load: resistive below this fraction of the expected output voltage
 LOAD_KNEE_FRACTION = 0.2
 #: Constant-power load: breakpoints from 0.25x to 2x the expected voltage
+#: (rcc.cycle.POWER_LOAD_RANGE, the law the cycle model shares)
 POWER_LOAD_SEGMENTS = 16
 #: Floor on the leakage inductance relative to the magnetizing inductance for
 #: a coupling of exactly 1 (no wound transformer comes closer)  # common practice
@@ -800,15 +801,12 @@ Device = _Device
 
 # ------------------------------------------------------------- the builder
 def _expected_output_voltage(design: Design, temperature: float) -> float:
-    """Output voltage the regulation aims at, for load breakpoints only [V]."""
-    from rcc.cycle import hold_output_voltage
+    """Output voltage the regulation aims at, for load breakpoints only [V]
+    (:func:`rcc.cycle.expected_output_voltage`, shared with the cycle model's
+    load law)."""
+    from rcc.cycle import expected_output_voltage
 
-    if design.output.voltage_target is not None:
-        return design.output.voltage_target
-    hold = hold_output_voltage(design, temperature)
-    if hold is not None:
-        return float(hold)
-    return 12.0  # no regulation and no target: breakpoints only  # common practice
+    return expected_output_voltage(design, temperature)
 
 
 def leakage_damping_resistance(design: Design) -> float:
@@ -1269,8 +1267,10 @@ def _load_device(load: Load, expected: float) -> _Device:
         regions = [(current / knee, 0.0), (0.0, current)]
         breaks = [knee]
     else:
+        from rcc.cycle import POWER_LOAD_RANGE
+
         power = load.value
-        breaks = list(expected * np.geomspace(0.25, 2.0, POWER_LOAD_SEGMENTS + 1))
+        breaks = list(expected * np.geomspace(*POWER_LOAD_RANGE, POWER_LOAD_SEGMENTS + 1))
         regions = [(power / breaks[0] ** 2, 0.0)]
         for low, high in zip(breaks[:-1], breaks[1:]):
             slope = (power / high - power / low) / (high - low)
