@@ -13,6 +13,7 @@ import json
 import os
 import re
 import sys
+from pathlib import Path
 
 import pytest
 from typer.testing import CliRunner
@@ -330,8 +331,25 @@ def test_waveforms_max_events_option(standby_case):
 
 
 def test_waveforms_says_which_bus_and_corner_it_ran(standby_case):
+    # AC input: the bulk capacitor through the bridge, by default
     result = invoke("waveforms", standby_case, "--time", "0.2ms", "--temperature", "-20degC",
                     "--hfe", "min")
     assert result.exit_code == 0, result.output
-    assert "(held at the rectified peak: no bulk ripple)" in result.stdout
+    assert "bulk capacitor 22 uF charged through the bridge from 230 V RMS 50 Hz" \
+        in result.stdout
+    assert "run shorter than a line period, 20 ms: no full ripple" in result.stdout
     assert "-20 degC / 20 at 25 degC" in result.stdout
+    result = invoke("waveforms", standby_case, "--time", "0.2ms", "--bus", "peak")
+    assert result.exit_code == 0, result.output
+    assert "held at 323.7 V, the rectified peak of 230 V RMS 50 Hz (no bulk ripple)" \
+        in result.stdout
+
+
+@pytest.mark.parametrize("case, choice, words", [
+    ("standby_12v_universal", "ripple", "expected one of bulk, peak, valley, dc"),
+    ("standby_12v_universal", "dc", "the design has AC input; expected bulk, peak, valley"),
+    ("aux_5v_48v_dc", "bulk", "the design has DC input; expected dc"),
+])
+def test_waveforms_bus_choice_fits_the_input(case, choice, words):
+    path = Path(__file__).resolve().parent.parent / "worked_cases" / f"{case}.toml"
+    assert_refused(invoke("waveforms", path, "--bus", choice), re.escape(words))
