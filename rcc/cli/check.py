@@ -49,8 +49,15 @@ def check(
                 design, design.input.line_voltages,
                 [output.load_min, output.load_nominal, output.load_max],
                 progress=lambda done, total: status.update(done))
+    from rcc.engine.bus import BUS_CHOICES, bus_json, steady_bus_choice
+
+    choice = steady_bus_choice(design)
     if json_output:
-        echo_json(data)
+        echo_json({**data, **bus_json(choice)})
     else:
         typer.echo(format_check_report(data))
+        typer.echo(f"Bus of the operating points: {BUS_CHOICES[choice]}"
+                   + ("; of the start-up stresses from power-on: held at the rectified peak "
+                      "of the highest line (rcc waveforms --bus bulk shows the ripple)."
+                      if design.input.is_ac else "."))
     raise typer.Exit(EXIT_FINDING_FAILED if report.verdict == "fail" else EXIT_OK)

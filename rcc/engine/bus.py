@@ -18,7 +18,8 @@ import numpy as np
 
 from rcc.design import Design, Load
 
-__all__ = ["BUS_CHOICES", "RunBus", "run_bus", "default_bus_choice", "check_bus_choice"]
+__all__ = ["BUS_CHOICES", "RunBus", "run_bus", "default_bus_choice", "check_bus_choice",
+           "steady_bus_choice", "bus_json"]
 
 #: Bus of a run, by name: what it is (the command line's ``--bus`` choices).
 BUS_CHOICES = {
@@ -60,6 +61,17 @@ class RunBus:
 def default_bus_choice(design: Design) -> str:
     """``"bulk"`` for AC input (the physical circuit), ``"dc"`` otherwise."""
     return "bulk" if design.input.is_ac else "dc"
+
+
+def steady_bus_choice(design: Design) -> str:
+    """The bus of the cycle model and the periodic steady state (``rcc check``,
+    ``sweep``, ``cycle``): ``"valley"`` for AC input, ``"dc"`` otherwise."""
+    return "valley" if design.input.is_ac else "dc"
+
+
+def bus_json(choice: str) -> dict:
+    """``{"bus_model": choice, "bus_description": ...}`` for a JSON report."""
+    return {"bus_model": choice, "bus_description": BUS_CHOICES[choice]}
 
 
 def check_bus_choice(design: Design, choice: str | None) -> str:

@@ -284,7 +284,7 @@ def on_time_end(result) -> tuple[float, str]:
         float(wave.primary_current[index]), 1e-12) else "base drive")
 
 
-def plot_periodic_steady_state(result, axes=None, rating=None):
+def plot_periodic_steady_state(result, axes=None, rating=None, bus=None):
     """Stacked plots of one steady-state period.
 
     Parameters
@@ -296,6 +296,8 @@ def plot_periodic_steady_state(result, axes=None, rating=None):
     rating : (float, str), optional
         Allowed collector voltage [V] and its label (e.g. ``"80 % of VCEV"``),
         drawn as a red line on the collector panel.
+    bus : str, optional
+        How the bus was held, for the title (default ``"bus <V> V"``) [-].
 
     Returns
     -------
@@ -338,7 +340,8 @@ def plot_periodic_steady_state(result, axes=None, rating=None):
     axes[-1].set_xlabel("time from turn-on [us]")
     axes[0].set_title(
         f"{cycle_status(result)}\n{result.frequency / 1e3:.4g} kHz, "
-        f"{result.output_voltage:.4g} V out, bus {result.bus_voltage:.4g} V, "
+        f"{result.output_voltage:.4g} V out, "
+        f"{bus or f'bus {result.bus_voltage:.4g} V'}, "
         f"load {result.load.text()} ({result.method})", fontsize=9)
     axes[0].figure.tight_layout()
     return axes
