@@ -34,9 +34,8 @@ def check(
 
     design = load_with_overrides(design_file, settings)
     with Status(quiet) as status:
-        status.phase("cycle model, start-up analysis and the engine from power-on")
         try:
-            report = full_check(design, startup_engine=True)
+            report = full_check(design, startup_engine=True, progress=status)
         except DcPointError as error:
             raise fail_input(f"{design_file}: {error}") from None
         data = report.to_json()

@@ -55,9 +55,8 @@ def cycle(
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES)}, force)
     try:
         with Status(quiet) as status:
-            status.phase("warm-up transient, then Newton's method on the cycle")
             result = periodic_steady_state(design, line_voltage, load_value,
-                                           temperature_value, gain)
+                                           temperature_value, gain, progress=status)
     except PeriodicSteadyStateError as error:
         if json_output:
             echo_json({"error": str(error), "stable": False})

@@ -41,6 +41,7 @@ class Status:
         self.enabled = not quiet and _interactive()
         self._progress = None
         self._task = None
+        self._shown = None
 
     def __enter__(self) -> "Status":
         if self.enabled:
@@ -48,10 +49,14 @@ class Status:
             from rich.progress import (BarColumn, Progress, SpinnerColumn, TextColumn,
                                        TimeElapsedColumn)
 
-            self._progress = Progress(SpinnerColumn(), TextColumn("{task.description}"),
-                                      BarColumn(), TextColumn("{task.percentage:>3.0f} %"),
-                                      TimeElapsedColumn(), transient=True,
-                                      console=Console(stderr=True, force_terminal=True))
+            # a phase of unknown length shows the spinner and the elapsed time
+            # only; a known one a bar and its percentage
+            self._progress = Progress(
+                SpinnerColumn(), TextColumn("{task.description}"),
+                BarColumn(bar_width=24),
+                TextColumn("{task.fields[percent]}"),
+                TimeElapsedColumn(), transient=True,
+                console=Console(stderr=True, force_terminal=True))
             self._progress.__enter__()
         return self
 
@@ -61,12 +66,27 @@ class Status:
             return
         if self._task is not None:
             self._progress.remove_task(self._task)
-        self._task = self._progress.add_task(description, total=total)
+        self._task = self._progress.add_task(description, total=total, percent="")
 
     def update(self, completed: float) -> None:
         """Work done so far in the current phase (same unit as ``total``)."""
         if self._progress is not None and self._task is not None:
-            self._progress.update(self._task, completed=completed)
+            total = self._progress.tasks[-1].total
+            self._progress.update(self._task, completed=completed, percent=(
+                f"{100.0 * completed / total:3.0f} %" if total else ""))
+
+    def __call__(self, description: str, done: float | None = None,
+                 total: float | None = None) -> None:
+        """Progress callback of the library (``progress(description, done,
+        total)``): a new phase when the description or total changes, else
+        an update of the work done."""
+        if self._progress is None:
+            return
+        if self._shown != (description, total):
+            self.phase(description, total)
+            self._shown = (description, total)
+        if done is not None:
+            self.update(done)
 
     def __exit__(self, kind, error, trace) -> bool:
         if self._progress is not None:
