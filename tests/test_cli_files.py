@@ -353,3 +353,20 @@ def test_waveforms_says_which_bus_and_corner_it_ran(standby_case):
 def test_waveforms_bus_choice_fits_the_input(case, choice, words):
     path = Path(__file__).resolve().parent.parent / "worked_cases" / f"{case}.toml"
     assert_refused(invoke("waveforms", path, "--bus", choice), re.escape(words))
+
+
+@pytest.mark.parametrize("case, model", [("standby_12v_universal", "valley"),
+                                         ("aux_5v_48v_dc", "dc")])
+def test_sweep_says_which_bus_its_points_use(case, model):
+    path = Path(__file__).resolve().parent.parent / "worked_cases" / f"{case}.toml"
+    result = invoke("sweep", path, "--load", "100%", "--line", "230V" if model == "valley"
+                    else "48V", "--json")
+    data = json.loads(result.stdout)
+    assert data["bus_model"] == model
+    if model == "valley":
+        assert "bulk-capacitor valley" in data["bus_description"]
+        point = data["operating_points"][0]
+        assert point["bus_v"] < 230 * 2 ** 0.5 - 1.6   # below the rectified peak
+    text = invoke("sweep", path, "--load", "100%", "--line", "230V" if model == "valley"
+                  else "48V").stdout
+    assert f"bus: {data['bus_description']}" in text
