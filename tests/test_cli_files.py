@@ -370,3 +370,14 @@ def test_sweep_says_which_bus_its_points_use(case, model):
     text = invoke("sweep", path, "--load", "100%", "--line", "230V" if model == "valley"
                   else "48V").stdout
     assert f"bus: {data['bus_description']}" in text
+
+
+def test_check_says_which_bus_its_points_use():
+    # a supply that cannot start: the check skips the engine runs (seconds)
+    path = Path(__file__).resolve().parent.parent / "worked_cases" / \
+        "fault_feedback_reversed.toml"
+    data = json.loads(invoke("check", path, "--json").stdout)
+    assert data["bus_model"] == "valley"
+    assert "bulk-capacitor valley" in data["bus_description"]
+    text = invoke("check", path).stdout
+    assert "Bus: the operating points hold it at the bulk-capacitor valley" in text

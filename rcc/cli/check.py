@@ -48,15 +48,17 @@ def check(
                 design, design.input.line_voltages,
                 [output.load_min, output.load_nominal, output.load_max],
                 progress=lambda done, total: status.update(done))
-    from rcc.engine.bus import BUS_CHOICES, bus_json, steady_bus_choice
+    import textwrap
 
-    choice = steady_bus_choice(design)
+    from rcc.engine.bus import bus_json, steady_bus_choice
+
     if json_output:
-        echo_json({**data, **bus_json(choice)})
+        echo_json({**data, **bus_json(steady_bus_choice(design))})
     else:
         typer.echo(format_check_report(data))
-        typer.echo(f"Bus of the operating points: {BUS_CHOICES[choice]}"
-                   + ("; of the start-up stresses from power-on: held at the rectified peak "
-                      "of the highest line (rcc waveforms --bus bulk shows the ripple)."
-                      if design.input.is_ac else "."))
+        typer.echo(textwrap.fill(
+            "Bus: the operating points hold it at the bulk-capacitor valley at their own "
+            "input power (no line ripple), the start-up stresses at the rectified peak of "
+            "the highest line; rcc waveforms shows it with its ripple."
+            if design.input.is_ac else "Bus: the DC input.", width=92))
     raise typer.Exit(EXIT_FINDING_FAILED if report.verdict == "fail" else EXIT_OK)
