@@ -59,18 +59,51 @@ class RunBus:
 
 
 def default_bus_choice(design: Design) -> str:
-    """``"bulk"`` for AC input (the physical circuit), ``"dc"`` otherwise."""
+    """The default bus of a run from power-on.
+
+    Parameters
+    ----------
+    design : Design
+        The design [-].
+
+    Returns
+    -------
+    str
+        ``"bulk"`` for AC input (the physical circuit), ``"dc"`` otherwise [-].
+    """
     return "bulk" if design.input.is_ac else "dc"
 
 
 def steady_bus_choice(design: Design) -> str:
     """The bus of the cycle model and the periodic steady state (``rcc check``,
-    ``sweep``, ``cycle``): ``"valley"`` for AC input, ``"dc"`` otherwise."""
+    ``sweep``, ``cycle``).
+
+    Parameters
+    ----------
+    design : Design
+        The design [-].
+
+    Returns
+    -------
+    str
+        ``"valley"`` for AC input, ``"dc"`` otherwise [-].
+    """
     return "valley" if design.input.is_ac else "dc"
 
 
 def bus_json(choice: str) -> dict:
-    """``{"bus_model": choice, "bus_description": ...}`` for a JSON report."""
+    """The bus entries of a JSON report.
+
+    Parameters
+    ----------
+    choice : str
+        Key of :data:`BUS_CHOICES` [-].
+
+    Returns
+    -------
+    dict
+        ``{"bus_model": choice, "bus_description": ...}`` [-].
+    """
     return {"bus_model": choice, "bus_description": BUS_CHOICES[choice]}
 
 
@@ -80,6 +113,7 @@ def check_bus_choice(design: Design, choice: str | None) -> str:
     Parameters
     ----------
     design : Design
+        The design [-].
     choice : str or None
         Key of :data:`BUS_CHOICES`; None for :func:`default_bus_choice` [-].
 
@@ -113,11 +147,11 @@ def run_bus(design: Design, line_voltage: float, load: Load, temperature: float,
     Parameters
     ----------
     design : Design
-        The design.
+        The design [-].
     line_voltage : float
         RMS line (AC input) or DC input voltage [V].
     load : Load
-        Output load.
+        Output load [-].
     temperature : float
         Device temperature [K] (for ``"valley"``: the cycle model's point).
     hfe : float
@@ -128,6 +162,7 @@ def run_bus(design: Design, line_voltage: float, load: Load, temperature: float,
     Returns
     -------
     RunBus
+        The bus of the run [-].
 
     Raises
     ------

@@ -1227,7 +1227,7 @@ def bulk_rectifier(design: Design, rectified_crest: float):
     ----------
     design : Design
         An AC-input design (``input.bulk_capacitance``, ``line_frequency``,
-        ``bridge_drop``).
+        ``bridge_drop``) [-].
     rectified_crest : float
         Line crest less the bridge drop [V].
 
@@ -1235,12 +1235,12 @@ def bulk_rectifier(design: Design, rectified_crest: float):
     -------
     elements : tuple of Element
         The bulk capacitor from node ``bus`` to ground, the line phase
-        oscillator and the two line sources.
+        oscillator and the two line sources [-].
     devices : tuple of Device
         The two halves of the bridge, ``bridge_positive`` and
-        ``bridge_negative``, into node ``bus``.
+        ``bridge_negative``, into node ``bus`` [-].
     state_names : list of str
-        ``["v_bulk", "v_line_phase", "i_line_phase"]``.
+        ``["v_bulk", "v_line_phase", "i_line_phase"]`` [-].
 
     Notes
     -----
