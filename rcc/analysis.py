@@ -45,7 +45,7 @@ def full_check(design: Design, startup_engine: bool = False, progress=None) -> C
 
     stage("cycle model over line, load, temperature and gain corners")
     report = check_design(design)
-    stage("start-up analysis" + (", then the engine from power-on into the load"
+    stage("start-up analysis" + ("; if it starts, the engine from power-on into the load"
                                   if startup_engine else ""))
     startup = startup_report(design, engine=startup_engine)
     findings = ordered_findings(_one_per_code(

@@ -49,7 +49,7 @@ def test_full_check_reports_its_stages(monkeypatch):
     with pytest.raises(Stop):
         analysis.full_check(None, startup_engine=True, progress=stages.append)
     assert stages == ["cycle model over line, load, temperature and gain corners", "ran",
-                      "start-up analysis, then the engine from power-on into the load"]
+                      "start-up analysis; if it starts, the engine from power-on into the load"]
 
 
 def test_status_is_off_without_a_terminal_and_with_quiet(monkeypatch):

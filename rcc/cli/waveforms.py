@@ -59,7 +59,9 @@ def waveforms(
 
     For AC input the bus is the bulk capacitor charged through the bridge
     from the sine line, with its line-frequency ripple (--bus bulk); --bus
-    peak or valley hold it constant instead.  Exit code 0 when the supply runs, 1 when it does not oscillate or locks up
+    peak or valley hold it constant instead.
+
+    Exit code 0 when the supply runs, 1 when it does not oscillate or locks up
     or the engine stops (event storm, inconsistent circuit, --max-events
     reached), 2 on bad input.
     """
