@@ -312,7 +312,7 @@ def _run(design):
 
 #: Generated designs taken through the cycle model and the whole start-up report
 #: in CI (every design gets the cheaper analyses), a seeded draw [1].
-MODEL_SAMPLE = 8
+MODEL_SAMPLE = 6
 SAMPLE_SEED = 20261202
 
 

@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["WAVEFORM_PANELS", "BUS_PANEL", "CYCLE_PANELS", "cycle_status", "on_time_end", "plot_waveforms", "plot_periodic_steady_state", "zoom_window",
+__all__ = ["WAVEFORM_PANELS", "BUS_PANEL", "CYCLE_PANELS", "cycle_status", "on_time_end",
+           "plot_waveforms", "plot_periodic_steady_state", "zoom_window",
            "write_csv", "csv_columns", "csv_rows", "csv_size"]
 
 #: Stacked panels: (signal name, axis label, display scale, unit).
