@@ -358,6 +358,7 @@ def test_waveforms_bus_choice_fits_the_input(case, choice, words):
 @pytest.mark.parametrize("case, model", [("standby_12v_universal", "valley"),
                                          ("aux_5v_48v_dc", "dc")])
 def test_sweep_says_which_bus_its_points_use(case, model):
+    """In the JSON, the text and the figure's title."""
     path = Path(__file__).resolve().parent.parent / "worked_cases" / f"{case}.toml"
     result = invoke("sweep", path, "--load", "100%", "--line", "230V" if model == "valley"
                     else "48V", "--json")
@@ -369,7 +370,7 @@ def test_sweep_says_which_bus_its_points_use(case, model):
         assert point["bus_v"] < 230 * 2 ** 0.5 - 1.6   # below the rectified peak
     text = invoke("sweep", path, "--load", "100%", "--line", "230V" if model == "valley"
                   else "48V").stdout
-    assert f"bus: {data['bus_description']}" in text
+    assert f"bus: {data['bus_description']}" in " ".join(text.split())
 
 
 def test_check_says_which_bus_its_points_use():
@@ -381,3 +382,15 @@ def test_check_says_which_bus_its_points_use():
     assert "bulk-capacitor valley" in data["bus_description"]
     text = invoke("check", path).stdout
     assert "Bus: the operating points hold it at the bulk-capacitor valley" in text
+
+
+def test_sweep_figure_title_names_the_bus(standby_case):
+    import matplotlib.pyplot as plt
+
+    from rcc.design import Load
+    from rcc.sweep import plot_sweep, sweep
+
+    design = load_design(standby_case)
+    axes = plot_sweep(sweep(design, [230.0], Load("current", [0.3])))
+    assert "bus at the bulk valley" in axes[0].get_title()
+    plt.close(axes[0].figure)
