@@ -73,3 +73,26 @@ def test_every_long_command_takes_quiet(command):
     result = runner.invoke(app, [command, "--help"], env={"COLUMNS": "200"})
     assert result.exit_code == 0
     assert "--quiet" in result.output
+
+
+def test_progress_line_is_the_same_display_without_a_thread(monkeypatch):
+    import threading
+
+    from rcc.cli.progress_line import Progress
+
+    assert not Progress("spread").enabled          # not a terminal
+    monkeypatch.setattr(progress_module, "_interactive", lambda: True)
+    assert not Progress("spread", quiet=True).enabled
+    before = threading.active_count()
+    monkeypatch.setattr(progress_module, "ESTIMATE_AFTER", 0.0)
+    line = Progress("spread (3 parameters)")
+    try:
+        assert line.enabled
+        line(1, 4)
+        line(2, 4)
+        task = line._status._progress.tasks[-1]
+        assert task.description == "spread (3 parameters)" and task.completed == 2
+        assert task.fields["percent"].startswith(" 50 %, about")
+        assert threading.active_count() == before  # nothing redraws in the background
+    finally:
+        line.close()

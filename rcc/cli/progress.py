@@ -9,8 +9,13 @@ display is transient: it disappears when the phase ends.
 from __future__ import annotations
 
 import sys
+import time
 
 __all__ = ["Status", "QUIET_HELP"]
+
+#: Seconds of a phase before its time left is estimated (earlier steps are
+#: often cached or cheaper than the rest) [s].
+ESTIMATE_AFTER = 3.0
 
 QUIET_HELP = "No progress display on stderr (it is also off when output is not a terminal)."
 
@@ -29,6 +34,10 @@ class Status:
     ----------
     quiet : bool
         Show nothing.
+    animated : bool
+        Redraw from a background thread (the spinner turns while the library
+        computes).  False draws only at each update: no thread, for callers
+        that fork worker processes.
 
     Examples
     --------
@@ -37,8 +46,9 @@ class Status:
     ...     status.update(1.0)
     """
 
-    def __init__(self, quiet: bool = False):
+    def __init__(self, quiet: bool = False, animated: bool = True):
         self.enabled = not quiet and _interactive()
+        self.animated = animated
         self._progress = None
         self._task = None
         self._shown = None
@@ -55,7 +65,7 @@ class Status:
                 SpinnerColumn(), TextColumn("{task.description}"),
                 BarColumn(bar_width=24),
                 TextColumn("{task.fields[percent]}"),
-                TimeElapsedColumn(), transient=True,
+                TimeElapsedColumn(), transient=True, auto_refresh=self.animated,
                 console=Console(stderr=True, force_terminal=True))
             self._progress.__enter__()
         return self
@@ -67,13 +77,20 @@ class Status:
         if self._task is not None:
             self._progress.remove_task(self._task)
         self._task = self._progress.add_task(description, total=total, percent="")
+        self._started = time.monotonic()
 
     def update(self, completed: float) -> None:
         """Work done so far in the current phase (same unit as ``total``)."""
         if self._progress is not None and self._task is not None:
             total = self._progress.tasks[-1].total
-            self._progress.update(self._task, completed=completed, percent=(
-                f"{100.0 * completed / total:3.0f} %" if total else ""))
+            text = ""
+            if total:
+                text = f"{100.0 * completed / total:3.0f} %"
+                elapsed = time.monotonic() - self._started
+                if 0 < completed < total and elapsed >= ESTIMATE_AFTER:
+                    text += f", about {elapsed * (total - completed) / completed:.0f} s left"
+            self._progress.update(self._task, completed=completed, percent=text,
+                                  refresh=not self.animated)
 
     def __call__(self, description: str, done: float | None = None,
                  total: float | None = None) -> None:
