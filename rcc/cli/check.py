@@ -40,9 +40,8 @@ def check(
     design = load_with_overrides(design_file, settings)
     budget = _budget_option(engine_budget)
     with Status(quiet) as status:
-        status.phase("cycle model, start-up analysis and the engine from power-on")
         try:
-            report = full_check(design, startup_engine=True)
+            report = full_check(design, startup_engine=True, progress=status)
         except DcPointError as error:
             raise fail_input(f"{design_file}: {error}") from None
         status.phase(f"engine from power-on at the doubtful points ({budget:g} s budget)")
@@ -57,10 +56,19 @@ def check(
                 design, design.input.line_voltages,
                 [output.load_min, output.load_nominal, output.load_max],
                 progress=lambda done, total: status.update(done))
+    import textwrap
+
+    from rcc.engine.bus import bus_json, steady_bus_choice
+
     if json_output:
-        echo_json(data)
+        echo_json({**data, **bus_json(steady_bus_choice(design))})
     else:
         typer.echo(format_check_report(data))
+        typer.echo(textwrap.fill(
+            "Bus: the operating points hold it at the bulk-capacitor valley at their own "
+            "input power (no line ripple), the start-up stresses at the rectified peak of "
+            "the highest line; rcc waveforms shows it with its ripple."
+            if design.input.is_ac else "Bus: the DC input.", width=92))
     raise typer.Exit(EXIT_FINDING_FAILED if report.verdict == "fail" else EXIT_OK)
 
 

@@ -13,6 +13,7 @@ from rcc.cli.overrides import load_with_overrides, set_option
 from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input,
                      plan_outputs, write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
+from rcc.cli.progress import QUIET_HELP, Status
 
 
 def _si(value, unit):
@@ -92,6 +93,7 @@ def startup(
     plot: Path = typer.Option(None, "--plot", help="Write a Bode plot of the loop gain "
                                                    "(e.g. loop.png)."),
     force: bool = typer.Option(False, "--force", help="Overwrite the --plot file."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Will it start? DC point, poles, verdict, minimum start-up voltage,
     start-up time, weak-drive and hiccup checks.
@@ -103,7 +105,10 @@ def startup(
     design = load_with_overrides(design_file, settings)
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--latex": (latex, (".tex",))}, force)
     try:
-        report = startup_report(design, engine=True)
+        with Status(quiet) as status:
+            status.phase("start-up analysis: DC point, poles, start-up threshold; then the "
+                         "engine from power-on into the load")
+            report = startup_report(design, engine=True)
     except DcPointError as error:
         raise fail_input(f"{design_file}: {error}") from None
     findings = startup_findings(design, report)
