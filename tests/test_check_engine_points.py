@@ -27,7 +27,8 @@ def standby_report():
 
 @pytest.fixture(scope="module")
 def one_point(standby_report):
-    # any positive budget starts the first (cheapest) run; after it the budget is spent
+    # any positive budget starts the first (cheapest) run; after it the budget is
+    # spent (a run already in the in-memory cache costs nothing, so one more may start)
     return solve_doubtful_points(standby_report, budget=1e-3)
 
 
@@ -40,7 +41,8 @@ def test_a_doubtful_point_is_solved_by_the_engine(standby_report, one_point):
     records = one_point.to_json()["operating_points"]
     model = standby_report.points.records()
     solved = [i for i, r in enumerate(records) if r["source"] == "engine"]
-    assert len(solved) == 1
+    unsolved = [p for p in one_point.engine_points if not p.solved]
+    assert 1 <= len(solved) and unsolved  # some, not all, within the budget
     i = solved[0]
     record, point = records[i], next(p for p in one_point.engine_points if p.solved)
     run = point.run

@@ -82,7 +82,7 @@ def test_no_start_reports_its_cause_first(reports):
 
 def test_report_prints_the_signed_margin(reports):
     text = format_check_report(reports["legacy_24v_substitute"].to_json())
-    assert "[FAIL] weak-drive (value 0.9654, minimum 1, margin -3.5%)" in text
+    assert "[FAIL] weak-drive (value 0.7274, minimum 1, margin -27.3%)" in text
 
 
 def test_no_output_finding_for_a_supply_that_does_not_oscillate(reports):
