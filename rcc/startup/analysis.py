@@ -23,7 +23,7 @@ from rcc.mains import bus_voltage_range, rectified_peak
 from rcc.startup.dcpoint import CircuitValues, DcPoint, circuit_values, solve_dc_point
 from rcc.startup.poles import (PoleResult, holding_element, network_poles,
                                small_signal_parameters)
-from rcc.startup.symbolic import compiled, evaluate
+from rcc.startup.network import compiled, evaluate
 
 __all__ = [
     "DcSummary",
