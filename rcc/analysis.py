@@ -13,7 +13,7 @@ from rcc.startup import startup_findings, startup_report
 __all__ = ["full_check"]
 
 
-def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
+def full_check(design: Design, startup_engine: bool = False, progress=None) -> CheckReport:
     """Cycle-model checks and, when available, the start-up analysis.
 
     Parameters
@@ -25,6 +25,9 @@ def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
         corner into full load (does it reach its operating point?) and at the
         highest line for the start-up stresses
         (:func:`rcc.checks.with_startup_stress`); seconds.
+    progress : callable, optional
+        Called as ``progress(description)`` before each stage (a progress
+        display) [-].
 
     Returns
     -------
@@ -36,7 +39,14 @@ def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
         start, the cause comes first and the findings about a running supply
         are marked ``scope="if-running"`` (:func:`rcc.findings.ordered_findings`).
     """
+    def stage(description):
+        if progress is not None:
+            progress(description)
+
+    stage("cycle model over line, load, temperature and gain corners")
     report = check_design(design)
+    stage("start-up analysis" + ("; if it starts, the engine from power-on into the load"
+                                  if startup_engine else ""))
     startup = startup_report(design, engine=startup_engine)
     findings = ordered_findings(_one_per_code(
         report.findings + tuple(startup_findings(design, startup)),
@@ -48,6 +58,7 @@ def full_check(design: Design, startup_engine: bool = False) -> CheckReport:
         from rcc.verification import startup_stress
 
         time = startup.start_time.total if startup.start_time is not None else None
+        stage("engine from power-on at the highest line: start-up stresses")
         report = with_startup_stress(report, startup_stress(design, time))
     return report
 

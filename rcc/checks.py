@@ -22,8 +22,9 @@ from rcc.findings import Finding, sorted_findings, verdict
 from rcc.limiter import current_limit
 from rcc.mains import bus_voltage_range
 
-__all__ = ["Stress", "CheckReport", "check_design", "with_startup_stress", "SAFETY_CAUTION",
-           "STORAGE_PERIOD_FRACTION", "DRIVE_MARGIN_WARN"]
+__all__ = ["Stress", "CheckReport", "EnginePoint", "check_design", "with_startup_stress",
+           "solve_doubtful_points", "SAFETY_CAUTION", "STORAGE_PERIOD_FRACTION",
+           "DRIVE_MARGIN_WARN", "ENGINE_BUDGET", "ENGINE_MODES"]
 
 #: Printed with every report.
 SAFETY_CAUTION = (
@@ -88,6 +89,46 @@ class Stress:
                 for name, value in self.__dict__.items()}
 
 
+#: Default wall-clock budget for solving doubtful operating points with the
+#: engine from power-on (:func:`solve_doubtful_points`) [s].
+ENGINE_BUDGET = 20.0
+#: Mode reported for an engine-solved point, by kind of operation
+#: (:data:`rcc.operation.KINDS`): the engine run says whether the switching
+#: repeats, not which conduction mode a regular cycle is in.
+ENGINE_MODES = {"regular": "regular", "burst": "burst", "irregular": "irregular",
+                "lockup": "lockup", "none": "off"}
+
+
+@dataclass(frozen=True)
+class EnginePoint:
+    """A doubtful operating point of the report grid and what the engine said.
+
+    Attributes
+    ----------
+    index : int
+        Position in the report grid, in the order of
+        ``OperatingPoints.records()`` (line-major) [-].
+    doubt : str
+        Why the cycle model's value was doubted (``OperatingPoints.doubt``).
+    run : PowerOnRun or None
+        The engine from power-on at that line and load (25 degC clipped into
+        the range, ``hfe_typ``); ``None`` where it was not solved.
+    skipped : str
+        Why it was not solved (the time budget was spent, the bus collapses,
+        the engine failed), else empty.
+    """
+
+    index: int
+    doubt: str
+    run: object | None
+    skipped: str = ""
+
+    @property
+    def solved(self) -> bool:
+        """The engine gave this point's values [-]."""
+        return self.run is not None and self.run.kind in ENGINE_MODES
+
+
 @dataclass(frozen=True)
 class CheckReport:
     """Result of :func:`check_design`.
@@ -104,6 +145,11 @@ class CheckReport:
         All findings, worst first.
     extra : dict
         JSON-ready sections added by other analyses (e.g. ``"startup"``).
+    engine_points : tuple of EnginePoint
+        The doubtful points of the grid and what the engine from power-on said
+        at each (:func:`solve_doubtful_points`); empty when not run.
+    engine_budget : float or None
+        Wall-clock budget those runs were given; ``None`` when not run [s].
     """
 
     design: Design
@@ -111,6 +157,8 @@ class CheckReport:
     stress: Stress
     findings: tuple[Finding, ...]
     extra: dict
+    engine_points: tuple = ()
+    engine_budget: float | None = None
 
     @property
     def verdict(self) -> str:
@@ -124,11 +172,34 @@ class CheckReport:
             "verdict": self.verdict,
             "caution": SAFETY_CAUTION,
             "findings": [finding.to_json() for finding in self.findings],
-            "operating_points": self.points.records(),
+            "operating_points": self.operating_point_records(),
             "stress": self.stress.to_json(),
         }
+        if self.engine_budget is not None:
+            result["engine_budget_s"] = float(self.engine_budget)
         result.update(self.extra)
         return result
+
+    def operating_point_records(self) -> list[dict]:
+        """The grid's records, with the engine's values where it solved a point.
+
+        An engine-solved record has ``source: "engine"``, the engine's bus,
+        output, load current at that output, mean pulse rate and mean peak
+        current, ``mode`` from :data:`ENGINE_MODES`, ``null`` for what the run
+        does not give (on- and off-times, duty, what ended them, input power and
+        losses), ``doubt`` ``"engine-unsettled"`` where the run had not settled
+        by its end, ``engine`` (the run's summary) and ``cycle_model`` (the
+        cycle model's record, for comparison).  A doubtful record the engine did not solve keeps the
+        cycle model's values and gets ``engine: {"skipped": why}``.
+        """
+        records = self.points.records()
+        for point in self.engine_points:
+            record = records[point.index]
+            if point.solved:
+                records[point.index] = _engine_record(record, point.run)
+            else:
+                record["engine"] = {"skipped": point.skipped}
+        return records
 
 
 def _stack(columns) -> cycle.OperatingPoints:
@@ -270,6 +341,115 @@ def with_startup_stress(report: CheckReport, startup) -> CheckReport:
 
     return replace(report, stress=replace(stress_result, startup=startup.to_json()),
                    findings=ordered_findings(findings))
+
+
+def solve_doubtful_points(report: CheckReport, budget: float = ENGINE_BUDGET,
+                          progress=None) -> CheckReport:
+    """Solve the operating points the cycle model doubts with the engine from
+    power-on, as far as a time budget allows.
+
+    Parameters
+    ----------
+    report : CheckReport
+        From :func:`check_design` (or :func:`rcc.analysis.full_check`).
+    budget : float
+        Wall-clock time after which no further engine run is started; a run
+        started before finishes (at most
+        :data:`rcc.startup.start_line.INTO_LOAD_DURATION` simulated) [s].
+    progress : callable, optional
+        Called as ``progress(done, total)`` after each doubtful point [1].
+
+    Returns
+    -------
+    CheckReport
+        With ``engine_points``: every point whose ``doubt`` is not empty,
+        solved or with the reason it was not.
+
+    Notes
+    -----
+    Each doubtful point of the grid (line x load at 25 degC clipped into the
+    range, ``hfe_typ``) is run with the engine from power-on with discharged
+    capacitors, as a real supply starts, and classified from its settled
+    window (:func:`rcc.engine.power_on.run_from_power_on`,
+    :func:`rcc.operation.classify_operation`): the existing steady-state
+    extraction, not a new one.  Points that break a physical invariant come
+    first (the cycle model's numbers there must not be printed), then the rest
+    by the number of switching cycles the run is planned to take
+    (:func:`rcc.engine.power_on.planned_duration`), cheapest first, so the
+    budget solves as many points as it can.
+    """
+    import time
+
+    from rcc.engine.power_on import (expected_output_voltage, planned_duration,
+                                     power_on_bus_voltage)
+    from rcc.startup.start_line import INTO_LOAD_DURATION, power_on_run
+
+    design = report.design
+    lines = design.input.line_voltages
+    out = design.output
+    loads = (out.load_min, out.load_nominal, out.load_max)
+    temperature = float(cycle.reference_temperature(design))
+    hfe = float(design.switch.hfe_typ)
+    doubts = [str(d) for d in np.ravel(report.points.doubt)]
+    expected = expected_output_voltage(design, temperature)
+    queue, points = [], []
+    for index, doubt in enumerate(doubts):
+        if not doubt:
+            continue
+        line, load = float(lines[index // len(loads)]), loads[index % len(loads)]
+        bus = power_on_bus_voltage(design, line, load, temperature)
+        if not bus > 0:
+            points.append(EnginePoint(index, doubt, None, "the bulk capacitor cannot carry "
+                                      "this load: no bus for the engine"))
+            continue
+        duration, frequency = planned_duration(design, bus, load, expected,
+                                               INTO_LOAD_DURATION)
+        queue.append((not doubt.startswith("invariant"), duration * frequency, index, doubt,
+                      line, load))
+    queue.sort(key=lambda item: item[:3])
+    started = time.perf_counter()
+    total = len(queue)
+    for done, (_, _, index, doubt, line, load) in enumerate(queue, start=1):
+        if time.perf_counter() - started >= budget:
+            points.append(EnginePoint(index, doubt, None,
+                                      f"time budget of {budget:.3g} s spent"))
+        else:
+            run = power_on_run(design, line, load, temperature, hfe, INTO_LOAD_DURATION)
+            skipped = "" if run.kind in ENGINE_MODES else f"the engine failed: {run.message}"
+            points.append(EnginePoint(index, doubt, run, skipped))
+        if progress is not None:
+            progress(done, total)
+    from dataclasses import replace
+
+    return replace(report, engine_points=tuple(sorted(points, key=lambda p: p.index)),
+                   engine_budget=float(budget))
+
+
+def _engine_record(record: dict, run) -> dict:
+    """A grid record with the engine's values (see
+    :meth:`CheckReport.operating_point_records`)."""
+    pulses = {"regular": 1, "burst": int(round(run.pulses_per_burst))}.get(run.kind, 0)
+    engine = dict(record)
+    engine.update({
+        "bus_v": float(run.bus_voltage), "output_v": float(run.output_voltage),
+        "load_a": float(run.load.current(run.output_voltage)),
+        "frequency_hz": float(run.frequency), "on_time_s": None, "off_time_s": None,
+        "duty": None, "peak_current_a": float(run.peak_current),
+        "mode": ENGINE_MODES[run.kind], "on_end": None, "off_end": None,
+        "input_power_w": None, "losses_w": None, "pulses_per_pattern": pulses,
+        "source": "engine", "doubt": "" if run.settled else "engine-unsettled",
+        "engine": {
+            "kind": run.kind, "settled": bool(run.settled),
+            "simulated_s": float(run.duration), "wall_time_s": float(run.wall_time),
+            "burst_period_s": float(run.burst_period),
+            "pulses_per_burst": float(run.pulses_per_burst),
+            "time_to_regulation_s": (None if run.time_to_regulation is None
+                                     else float(run.time_to_regulation)),
+            "hfe": float(run.hfe),
+        },
+        "cycle_model": record,
+    })
+    return engine
 
 
 # ---------------------------------------------------------------- checks

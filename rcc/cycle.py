@@ -231,6 +231,12 @@ class OperatingPoints:
         (the power balance sits on a jump between two cycle regimes),
         ``unsettled``, or ``invariant: ...`` (a physical invariant failed;
         such a point must not be reported as a number).
+    energy_per_cycle : ndarray
+        Magnetizing energy transferred per pulse, ``Lm (Ipk^2 - I0^2) / 2``,
+        the mean over the pulses of a pattern; times ``frequency`` it is the
+        power that the output, the rectifier, the regulation path, the
+        flyback core loss, the clamp (above the leakage energy), the turn-off
+        above the bus and the drive reset take [J].
     input_power : ndarray
         Power drawn from the bus [W].
     output_power : ndarray
@@ -265,6 +271,7 @@ class OperatingPoints:
     pulses_per_pattern: np.ndarray
     output_multiplier: np.ndarray
     doubt: np.ndarray
+    energy_per_cycle: np.ndarray
     input_power: np.ndarray
     output_power: np.ndarray
     losses: Losses
@@ -361,23 +368,77 @@ def hold_output_voltage(design: Design, temperature):
     return None
 
 
+def expected_output_voltage(design: Design, temperature) -> float:
+    """Output voltage the supply is meant to hold: the target, else the
+    regulation hold point, else 12 V (an unregulated design without a target:
+    used for load breakpoints only) [V]."""
+    if design.output.voltage_target is not None:
+        return float(design.output.voltage_target)
+    hold = hold_output_voltage(design, temperature)
+    if hold is not None:
+        return float(np.max(hold))
+    return 12.0  # common practice
+
+
+#: A constant-power load takes its power between these fractions of the
+#: expected output voltage; below it is a resistance through the origin, above
+#: a constant current (the time-domain engine's load law, rcc.engine.circuit)
+POWER_LOAD_RANGE = (0.25, 2.0)
+
+
+@dataclass(frozen=True)
+class _LoadLaw:
+    """The load seen by the output balance, values broadcast to the points.
+
+    ``kind`` ``current`` (ideal), ``resistance``, or ``power``: no load takes
+    its rated power at a collapsed output (an electronic load or a downstream
+    converter falls to a resistance there), so a constant-power load takes
+    ``P`` only within :data:`POWER_LOAD_RANGE` of the expected output
+    ``expected`` [V], the law the engine uses (without its secant segments).
+    """
+
+    kind: str
+    value: np.ndarray
+    expected: float
+
+    def take(self, index) -> "_LoadLaw":
+        return _LoadLaw(self.kind, np.reshape(self.value, -1)[index], self.expected)
+
+    def current(self, output_voltage):
+        voltage = np.asarray(output_voltage, dtype=float)
+        if self.kind == "current":
+            return self.value * np.ones_like(voltage)
+        if self.kind == "resistance":
+            return voltage / self.value
+        low, high = (fraction * self.expected for fraction in POWER_LOAD_RANGE)
+        return np.where(voltage < low, self.value * voltage / low**2,
+                        np.where(voltage > high, self.value / high,
+                                 self.value / np.maximum(voltage, 1e-300)))
+
+    def power(self, output_voltage):
+        return np.asarray(output_voltage, dtype=float) * self.current(output_voltage)
+
+    def voltage_for_power(self, power, fallback):
+        """Output voltage below the expected output at which the load takes
+        ``power`` (``fallback`` where none) [V]."""
+        power = np.asarray(power, dtype=float)
+        if self.kind == "current":
+            return np.where(self.value > 0, power / np.maximum(self.value, 1e-300), fallback)
+        if self.kind == "resistance":
+            return np.sqrt(np.maximum(power, 0.0) * self.value)
+        low = POWER_LOAD_RANGE[0] * self.expected
+        return np.where(power < self.value,
+                        low * np.sqrt(np.maximum(power, 0.0) / np.maximum(self.value, 1e-300)),
+                        fallback)
+
+
 def _load_power(load, output_voltage):
-    if isinstance(load, Load):
-        return load.power(output_voltage)
-    return np.asarray(load, dtype=float) * output_voltage
+    return load.power(output_voltage)
 
 
 def _voltage_for_power(load, power, fallback):
     """Output voltage at which ``load`` takes ``power`` [V]."""
-    if isinstance(load, Load):
-        if load.kind == "current":
-            value = np.asarray(load.value, dtype=float)
-            return np.where(value > 0, power / np.maximum(value, 1e-300), fallback)
-        if load.kind == "resistance":
-            return np.sqrt(power * load.value)
-        return fallback
-    current = np.asarray(load, dtype=float)
-    return np.where(current > 0, power / np.maximum(current, 1e-300), fallback)
+    return load.voltage_for_power(power, fallback)
 
 
 def _first_crossing(function, low, high, tolerance=1e-15, iterations=200, jump=None):
@@ -754,9 +815,12 @@ class _Cycle:
         # energy at the plateau voltage (feedback-winding regulation)
         aux_energy = aux_charge * (aux + d.regulation.rectifier_drop) if self.aux_state \
             else np.zeros_like(vr)
-        secondary = np.maximum(
-            transferred - core_off - (clamp_rate - leakage_rate) / frequency - reversal
-            - reset_energy - aux_energy, 0.0)
+        secondary = (transferred - core_off - (clamp_rate - leakage_rate) / frequency
+                     - reversal - reset_energy - aux_energy)
+        # what the losses fed by the magnetizing energy would take beyond it
+        # (an invariant breach, flagged by _doubts)
+        shortfall = np.maximum(-secondary, 0.0)
+        secondary = np.maximum(secondary, 0.0)
         share_out = output_voltage / (output_voltage + d.output.rectifier_drop)
         if self.aux_state:
             regulation_power = aux_energy * frequency
@@ -767,12 +831,16 @@ class _Cycle:
                                         if d.regulation.method == "optocoupler"
                                         else 0.0, 0.0)
             delivered = secondary * share_out * frequency - regulation_power
+        # a cycle after which the switch cannot turn on again delivers once,
+        # not at a rate
+        delivered = np.where(restarts, delivered, 0.0)
         state = dict(
             vr=vr, ireg=ireg, itrip=itrip, peak=peak, t_on=t_on, t_off=t_off,
             start=np.broadcast_to(i0, np.shape(peak)), t_turn_off=t_rise,
             frequency=frequency, delivered=delivered, on_end=on_end, off_end=off_end,
             mode=mode, vc_next=vc_next, va_next=va_next, residual=residual,
             restarts=restarts, drive_capability=drive_capability,
+            transferred=transferred, shortfall=shortfall,
         )
         if not losses:
             return state
@@ -868,7 +936,7 @@ class _Cycle:
         drop, knee, tau_cb = self._reset_constants(winding)
         floor = winding + sw.vebo
         junction = winding + drop
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             # stage 1 reaches down to the knee
             t_knee = np.where(vc > knee, self.tau * np.log(
                 (vc - floor) / np.maximum(knee - floor, 1e-300)), 0.0)
@@ -987,19 +1055,100 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
         np.asarray(line_voltage, dtype=float), np.asarray(temperature, dtype=float),
         np.asarray(hfe, dtype=float), load_values)
     line, temp, hfe25 = (np.array(a, dtype=float) for a in (line, temp, hfe25))
-    if not isinstance(load, Load):
-        load = np.broadcast_to(load_values, line.shape).astype(float)
+    load = _LoadLaw(load.kind if isinstance(load, Load) else "current",
+                    np.broadcast_to(load_values, line.shape).astype(float),
+                    expected_output_voltage(design, reference_temperature(design)))
     gain = current_gain(hfe25, design.switch.hfe_tempco, temp)
 
-    # AC input: the bus is the bulk valley, which depends on the input power
-    input_power_estimate = np.zeros_like(line)
-    result = None
-    for _ in range(2 if design.input.is_ac else 1):
-        bus = bus_voltage(design, line, input_power_estimate)
-        bus = np.maximum(bus, 1.0)
+    if design.input.is_ac:
+        bus, result = _bus_balance(design, line, temp, gain, load)
+    else:
+        bus = np.maximum(line, 1.0)
         result = _solve_output(design, bus, temp, gain, load)
-        input_power_estimate = result["input_power"]
     return _assemble(design, line, bus, temp, gain, load, result)
+
+
+#: Relative distance of the start-up bias ``I_start R_be`` from ``Vbe`` within
+#: which a point is reported on the regime boundary of the drive-timed restart
+_START_BIAS_BOUNDARY = 1e-4
+
+#: Relative tolerance of the bulk valley against the input power it feeds
+_BUS_TOLERANCE = 1e-9
+
+
+def _bus_balance(design: Design, line, temperature, gain, load):
+    """Bulk-capacitor valley consistent with the power the supply draws.
+
+    The valley ``V(P)`` (:func:`rcc.mains.bulk_valley`) falls as the input
+    power ``P`` rises, and ``P`` depends on the bus through the operating
+    point; the bus is the root of ``h(V) = V - V(P(V))``.  ``h`` is
+    non-negative at the rectified peak (zero power); stepping down by
+    ``V <- V(P(V))`` brackets the root, which regula falsi (Illinois; see
+    :func:`_first_crossing`) then refines until ``|h|`` or the bracket is
+    below :data:`_BUS_TOLERANCE` relative.  Only the points not yet converged
+    are solved again.  (In overload the input power falls steeply with the
+    bus, so a fixed number of passes leaves the output far from its
+    balance.)
+    """
+    shape = line.shape
+    size = int(np.prod(shape)) if shape else 1
+    flat = lambda value: np.reshape(value, (size,)).astype(float)  # noqa: E731
+    line, temperature, gain = flat(line), flat(temperature), flat(gain)
+    load = load.take(slice(None))
+
+    def solve(bus, index):
+        part = _solve_output(design, bus, temperature[index], gain[index], load.take(index))
+        valley = np.maximum(bus_voltage(design, line[index], part["input_power"]), 1.0)
+        return part, bus - valley
+
+    everything = np.arange(size)
+    high = np.maximum(bus_voltage(design, line, 0.0), 1.0)
+    result, h_high = solve(high, everything)
+    bus = high.copy()
+    tolerance = _BUS_TOLERANCE * high
+    done = np.abs(h_high) <= tolerance
+    low, h_low = high - h_high, np.zeros(size)
+    # step down until h changes sign (h is non-positive at the 1 V floor)
+    pending = ~done
+    for _ in range(60):
+        index = np.flatnonzero(pending)
+        if index.size == 0:
+            break
+        part, h_part = solve(low[index], index)
+        result = _put_state(result, part, index, size)
+        bus[index], h_low[index] = low[index], h_part
+        converged = np.abs(h_part) <= tolerance[index]
+        done[index] |= converged
+        below = (h_part < 0.0) & ~converged
+        above = ~below & ~converged
+        high[index[above]], h_high[index[above]] = low[index[above]], h_part[above]
+        low[index[above]] = np.maximum(low[index[above]] - h_part[above], 1.0)
+        pending[index[below | converged]] = False
+    # regula falsi, Illinois modification, on the bracket [low, high]
+    side = np.zeros(size, dtype=int)
+    for _ in range(200):
+        index = np.flatnonzero(~done)
+        if index.size == 0:
+            break
+        lo, hi, f_lo, f_hi = low[index], high[index], h_low[index], h_high[index]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            trial = hi - f_hi * (hi - lo) / (f_hi - f_lo)
+        bad = ~np.isfinite(trial) | (trial <= lo) | (trial >= hi)
+        trial = np.where(bad, 0.5 * (lo + hi), trial)
+        part, h_trial = solve(trial, index)
+        result = _put_state(result, part, index, size)
+        bus[index] = trial
+        upper = h_trial >= 0.0
+        s = side[index]
+        h_low[index] = np.where(~upper, h_trial, np.where(s == -1, 0.5 * f_lo, f_lo))
+        low[index] = np.where(~upper, trial, lo)
+        h_high[index] = np.where(upper, h_trial, np.where(s == 1, 0.5 * f_hi, f_hi))
+        high[index] = np.where(upper, trial, hi)
+        side[index] = np.where(upper, -1, 1)
+        done[index] = (np.abs(h_trial) <= tolerance[index]) \
+            | (high[index] - low[index] <= tolerance[index])
+    return bus.reshape(shape), {key: _unflatten(value, shape, size)
+                                for key, value in result.items()}
 
 
 def operating_points_batch(design: Design, requests):
@@ -1132,10 +1281,16 @@ def _newton_fixed_point(cycle, voltage, x, iterations):
     identity = np.eye(3)
     converged = np.zeros(x.shape[0], dtype=bool)
     active = np.arange(x.shape[0])
+    # the image of x where it is already known (an accepted Newton trial)
+    known = np.zeros(x.shape[0], dtype=bool)
+    known_image = np.empty_like(x)
     for iteration in range(iterations):
-        sub = cycle.subset(active)
         xa, va = x[active], voltage[active]
-        _, image = _map(sub, va, xa)
+        image = known_image[active]
+        fresh = ~known[active]
+        if fresh.any():
+            _, image[fresh] = _map(cycle.subset(active[fresh]), va[fresh], xa[fresh])
+        known[active] = False
         residual = image - xa
         size = np.max(np.abs(residual) / (np.abs(xa) + scale[active]), axis=-1)
         done = size <= _FIXED_POINT_TOLERANCE
@@ -1147,23 +1302,32 @@ def _newton_fixed_point(cycle, voltage, x, iterations):
             keep = ~done
             active, xa, image, residual, size, va = (
                 active[keep], xa[keep], image[keep], residual[keep], size[keep], va[keep])
-            sub = cycle.subset(active)
+            count = active.size
+            if count == 0:
+                break
+            # the three forward differences and the Newton trial are separate
+            # evaluations; the first three share one call (elementwise map)
             step = 1e-7 * (np.abs(xa) + scale[active])
+            shifted = np.repeat(xa[None], 3, axis=0)
+            for column in range(3):
+                shifted[column, :, column] += step[:, column]
+            _, images = _map(cycle.subset(np.tile(active, 3)), np.tile(va, 3),
+                             shifted.reshape(3 * count, 3))
+            images = images.reshape(3, count, 3)
             jacobian = np.empty(xa.shape + (3,))
             for column in range(3):
-                shifted = xa.copy()
-                shifted[:, column] += step[:, column]
-                jacobian[:, :, column] = (_map(sub, va, shifted)[1] - image) \
-                    / step[:, column, None]
+                jacobian[:, :, column] = (images[column] - image) / step[:, column, None]
             system = jacobian - identity
             singular = ~(np.abs(np.linalg.det(system)) > 1e-12)
             system = np.where(singular[:, None, None], -identity, system)
             newton = xa - np.linalg.solve(system, residual[..., None])[..., 0]
-            _, trial_image = _map(sub, va, newton)
+            _, trial_image = _map(cycle.subset(active), va, newton)
             trial_size = np.max(np.abs(trial_image - newton)
                                 / (np.abs(newton) + scale[active]), axis=-1)
             better = np.isfinite(trial_size) & (trial_size < size)
             x[active] = np.where(better[:, None], newton, image)
+            known[active] = better
+            known_image[active] = trial_image
         if active.size == 0:
             break
     return x, converged
@@ -1246,7 +1410,9 @@ def _take_state(state, index, size):
 def _put_state(state, part, index, size):
     out = {}
     for key, value in state.items():
-        if isinstance(value, Losses):
+        if key not in part:
+            out[key] = value
+        elif isinstance(value, Losses):
             merged = {}
             for item in fields(Losses):
                 array = np.array(np.broadcast_to(getattr(value, item.name), (size,)), float)
@@ -1383,7 +1549,8 @@ def _mix_regimes(first, second, share, where):
     for key in ("delivered",):
         mixed[key] = np.where(where, share * first[key] + (1.0 - share) * second[key],
                               second[key])
-    for key in ("t_on", "t_turn_off", "vr", "ireg", "itrip", "start", "drive_capability"):
+    for key in ("t_on", "t_turn_off", "vr", "ireg", "itrip", "start", "drive_capability",
+                "transferred", "shortfall"):
         mixed[key] = np.where(where, pulses * first[key] + (1.0 - pulses) * second[key],
                               second[key])
     mixed["frequency"] = np.where(where, rate, f2)
@@ -1444,10 +1611,15 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     # a deficit of less than 0.1 % of the full load power (where both powers
     # vanish near zero output) is no barrier
     deficit = scan_surplus < -1e-3 * _load_power(load, top)
-    started = np.maximum.accumulate(positive, axis=0)
-    barrier_mask = deficit & started
+    # a deficit below the first surplus is a barrier too: from power-on the
+    # output cannot climb through outputs where the cycles (for example ones
+    # after which the switch cannot turn on again) deliver less than the load
+    barrier_mask = deficit
     has_barrier = barrier_mask.any(axis=0)
-    barrier = np.where(has_barrier, np.argmax(barrier_mask, axis=0), fractions.size - 1)
+    # no surplus anywhere (a collapsed output) the supply sits at the bottom;
+    # a surplus up to the top of the range: the regulation path holds there
+    barrier = np.where(has_barrier, np.argmax(barrier_mask, axis=0),
+                       np.where(any_positive, fractions.size - 1, 0))
     # still a surplus at the top of the range: the regulation path holds the
     # limiter on there and the supply bursts at that output
     burst = ~has_barrier & positive[-1] & regulated
@@ -1546,10 +1718,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     scale = state["scale"]
     frequency = np.where(running, state["frequency"] * scale, 0.0)
     output = np.where(running, state["output"], 0.0)
-    if isinstance(load, Load):
-        load_current = load.current(output)
-    else:
-        load_current = np.where(running, load, 0.0)
+    load_current = np.where(running, load.current(output), 0.0)
     t_on, t_off = state["t_on"], state["t_off"]
     mode_names = np.array(["dcm", "bcm", "ccm"])[state["mode"]]
     # a mix of ring- and drive-timed cycles (frequency scaled below the
@@ -1563,8 +1732,8 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     mode_names = np.where(running, mode_names, "off")
     period = np.where(frequency > 0, 1.0 / np.maximum(frequency, 1e-300), 0.0)
     off_time = np.where(running, np.maximum(period - t_on, t_off), 0.0)
-    doubt = _doubts(design, line, bus, running, mode_names, state, t_on, off_time,
-                    frequency)
+    doubt = _doubts(design, line, bus, temperature, running, mode_names, state, t_on,
+                    off_time, frequency)
     return OperatingPoints(
         line_voltage=line,
         bus_voltage=bus,
@@ -1590,6 +1759,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         pulses_per_pattern=np.where(running, state["pattern"], 0),
         output_multiplier=state["output_multiplier"],
         doubt=doubt,
+        energy_per_cycle=np.where(running, state["transferred"], 0.0),
         startup_lockup=state["lockup"],
         running=running,
         input_power=state["input_power"],
@@ -1645,18 +1815,31 @@ def limit_power_capability(design: Design, line_voltage, temperature, hfe=None):
     return power
 
 
-def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequency):
+def _doubts(design, line, bus, temperature, running, mode, state, on_time, off_time,
+            frequency):
     """Why a point's numbers need the engine (empty: none), and invariants.
 
     Invariants checked at every running point: positive on-time, off-time,
     frequency and peak current; no negative loss; input power equal to output
-    power plus losses within 1 %; the bus within its physical range (at most
+    power plus losses within 1 %; the losses fed by the magnetizing energy
+    per cycle not above it by more than 1 %; the bus within its physical range (at most
     the rectified line peak for AC input, the input itself for DC).
     """
     doubt = np.full(np.shape(running), "", dtype=object)
     doubt = np.where(np.isin(mode, ("burst", "irregular")), "pattern", doubt)
     doubt = np.where(mode == "lockup", "lockup", doubt)
     doubt = np.where(state["jump"], "regime-boundary", doubt)
+    # the start-up current through R_be sits at the base threshold: there the
+    # drive-timed wait diverges as tau ln(1/margin), so the low-output cycles
+    # (and whether the supply climbs out of them) change with the last digit
+    # of the line; within 1e-4 of Vbe the point is on a true regime boundary
+    rbe = design.drive.base_emitter_resistance
+    if rbe is not None:
+        vbe = base_emitter_voltage(design.switch.vbe, design.switch.vbe_tempco,
+                                   temperature)
+        startup = np.maximum(bus - vbe, 0.0) / design.startup.resistance
+        knife = np.abs(startup * rbe - vbe) <= _START_BIAS_BOUNDARY * vbe
+        doubt = np.where(knife, "regime-boundary", doubt)
     doubt = np.where(running & ~state["settled"] & (doubt == ""), "unsettled", doubt)
     losses = state["losses"]
     negative_loss = np.zeros(np.shape(running), dtype=bool)
@@ -1664,6 +1847,8 @@ def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequenc
         negative_loss |= np.broadcast_to(getattr(losses, item.name), np.shape(running)) < -1e-12
     balance = np.abs(state["input_power"] - state["output_power"] - losses.total) \
         > 0.01 * np.maximum(state["input_power"], 1e-12)
+    # the losses fed by the magnetizing energy must not exceed it
+    energy = state["shortfall"] > 0.01 * np.maximum(np.abs(state["transferred"]), 1e-30)
     if design.input.is_ac:
         # the valley search floors a collapsed bulk capacitor at 1 V: no real bus
         bus_bad = (bus <= 1.0) | (bus > np.sqrt(2.0) * line * (1.0 + 1e-9))
@@ -1675,6 +1860,7 @@ def _doubts(design, line, bus, running, mode, state, on_time, off_time, frequenc
               ("peak current", running & ~(state["peak"] > 0.0)),
               ("negative loss", running & negative_loss),
               ("power balance", running & balance),
+              ("energy per cycle", running & energy),
               ("bus range", bus_bad))
     for name, failed in checks:
         doubt = np.where(failed, "invariant: " + name, doubt)

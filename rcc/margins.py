@@ -23,8 +23,8 @@ __all__ = ["Evaluation", "FindingMargin", "QUANTITIES", "MARGINS", "evaluate",
 
 #: Headline quantities: name -> (unit, description, which extreme is adverse).
 QUANTITIES = {
-    "min_start_line_v": ("V", "lowest line (DC: bus) voltage it starts from, worst corner",
-                         "max"),
+    "min_start_line_v": ("V", "lowest line (DC: bus) voltage at which oscillation begins, "
+                         "worst corner (small-signal bound of the start line)", "max"),
     "start_time_s": ("s", "start-up time at the lowest line", "max"),
     "frequency_min_load_hz": ("Hz", "frequency at nominal line, lightest load", "max"),
     "frequency_max_load_hz": ("Hz", "frequency at nominal line, heaviest load", "min"),
@@ -193,8 +193,10 @@ def evaluate(design: Design, keep_report: bool = False) -> Evaluation:
     report = full_check(design)
     points, stress, startup = report.points, report.stress, report.extra["startup"]
     nominal_line = 1
-    start_line = startup.get("min_start_line_v") if design.input.is_ac \
-        else startup.get("min_start_bus_v")
+    # the studies run the fast analyses only: the small-signal threshold of
+    # oscillation, a lower bound of the line the supply starts into its load from
+    start_line = startup.get("min_oscillation_line_v") if design.input.is_ac \
+        else startup.get("min_oscillation_bus_v")
     quantities = {
         "min_start_line_v": start_line,
         "start_time_s": startup.get("start_time_s"),

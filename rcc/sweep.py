@@ -349,7 +349,8 @@ def plot_sweep(result: SweepResult, ax=None, verification=None):
         temperatures = f"at {result.temperature[0] - 273.15:.0f} degC"
     engine = ("\nstars: engine periodic steady state (open star: not converged, the last "
               "cycle of a transient)" if verification else "")
-    ax[0].set_title(f"{result.design.title} ({temperatures})\nmarkers: square drive, "
+    bus = "bus at the bulk valley" if result.design.input.is_ac else "DC bus"
+    ax[0].set_title(f"{result.design.title} ({temperatures}; {bus})\nmarkers: square drive, "
                     "triangle limit, circle regulation, x burst; open = drive-timed off"
                     + engine, fontsize=9)
     ax[-1].set_xlabel(f"load [{unit}]")

@@ -193,14 +193,23 @@ def _full_check_sharing_its_parts(design, startup_engine: bool = False):
     saved = rcc.analysis.check_design
     rcc.analysis.check_design = shared_check_design
     try:
-        return _original("rcc.analysis", "full_check")(design, startup_engine=startup_engine)
+        return _original("rcc.analysis", "full_check")(design, startup_engine=startup_engine,
+                                                       progress=_PROGRESS.get("now"))
     finally:
         rcc.analysis.check_design = saved
 
 
-def shared_full_check(design, startup_engine: bool = False):
-    """:func:`rcc.analysis.full_check`, computed once per design and process."""
-    return _shared_call(_full_check_sharing_its_parts, design, startup_engine=startup_engine)
+_PROGRESS: dict = {}
+
+
+def shared_full_check(design, startup_engine: bool = False, progress=None):
+    """:func:`rcc.analysis.full_check`, computed once per design and process
+    (``progress`` is called only when it is computed)."""
+    _PROGRESS["now"] = progress
+    try:
+        return _shared_call(_full_check_sharing_its_parts, design, startup_engine=startup_engine)
+    finally:
+        _PROGRESS.pop("now", None)
 
 
 @pytest.fixture

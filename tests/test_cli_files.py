@@ -13,6 +13,7 @@ import json
 import os
 import re
 import sys
+from pathlib import Path
 
 import pytest
 from typer.testing import CliRunner
@@ -330,8 +331,66 @@ def test_waveforms_max_events_option(standby_case):
 
 
 def test_waveforms_says_which_bus_and_corner_it_ran(standby_case):
+    # AC input: the bulk capacitor through the bridge, by default
     result = invoke("waveforms", standby_case, "--time", "0.2ms", "--temperature", "-20degC",
                     "--hfe", "min")
     assert result.exit_code == 0, result.output
-    assert "(held at the rectified peak: no bulk ripple)" in result.stdout
+    assert "bulk capacitor 22 uF charged through the bridge from 230 V RMS 50 Hz" \
+        in result.stdout
+    assert "run shorter than a line period, 20 ms: no full ripple" in result.stdout
     assert "-20 degC / 20 at 25 degC" in result.stdout
+    result = invoke("waveforms", standby_case, "--time", "0.2ms", "--bus", "peak")
+    assert result.exit_code == 0, result.output
+    assert "held at 323.7 V, the rectified peak of 230 V RMS 50 Hz (no bulk ripple)" \
+        in result.stdout
+
+
+@pytest.mark.parametrize("case, choice, words", [
+    ("standby_12v_universal", "ripple", "expected one of bulk, peak, valley, dc"),
+    ("standby_12v_universal", "dc", "the design has AC input; expected bulk, peak, valley"),
+    ("aux_5v_48v_dc", "bulk", "the design has DC input; expected dc"),
+])
+def test_waveforms_bus_choice_fits_the_input(case, choice, words):
+    path = Path(__file__).resolve().parent.parent / "worked_cases" / f"{case}.toml"
+    assert_refused(invoke("waveforms", path, "--bus", choice), re.escape(words))
+
+
+@pytest.mark.parametrize("case, model", [("standby_12v_universal", "valley"),
+                                         ("aux_5v_48v_dc", "dc")])
+def test_sweep_says_which_bus_its_points_use(case, model):
+    """In the JSON, the text and the figure's title."""
+    path = Path(__file__).resolve().parent.parent / "worked_cases" / f"{case}.toml"
+    result = invoke("sweep", path, "--load", "100%", "--line", "230V" if model == "valley"
+                    else "48V", "--json")
+    data = json.loads(result.stdout)
+    assert data["bus_model"] == model
+    if model == "valley":
+        assert "bulk-capacitor valley" in data["bus_description"]
+        point = data["operating_points"][0]
+        assert point["bus_v"] < 230 * 2 ** 0.5 - 1.6   # below the rectified peak
+    text = invoke("sweep", path, "--load", "100%", "--line", "230V" if model == "valley"
+                  else "48V").stdout
+    assert f"bus: {data['bus_description']}" in " ".join(text.split())
+
+
+def test_check_says_which_bus_its_points_use():
+    # a supply that cannot start: the check skips the engine runs (seconds)
+    path = Path(__file__).resolve().parent.parent / "worked_cases" / \
+        "fault_feedback_reversed.toml"
+    data = json.loads(invoke("check", path, "--json").stdout)
+    assert data["bus_model"] == "valley"
+    assert "bulk-capacitor valley" in data["bus_description"]
+    text = invoke("check", path).stdout
+    assert "Bus: the operating points hold it at the bulk-capacitor valley" in text
+
+
+def test_sweep_figure_title_names_the_bus(standby_case):
+    import matplotlib.pyplot as plt
+
+    from rcc.design import Load
+    from rcc.sweep import plot_sweep, sweep
+
+    design = load_design(standby_case)
+    axes = plot_sweep(sweep(design, [230.0], Load("current", [0.3])))
+    assert "bus at the bulk valley" in axes[0].get_title()
+    plt.close(axes[0].figure)

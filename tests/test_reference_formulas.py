@@ -707,10 +707,6 @@ def test_cycle_current_limit_with_temperature_drift(name):
         assert np.all(hot[both] < cold[both])
 
 
-@pytest.mark.xfail(strict=True, reason="not investigated in this session: with the rewritten "
-                   "cycle model (finite-gain limiter, patterns, regime mixing) the output "
-                   "beyond the current limit's capability does not fall below the regulated "
-                   "minimum on this grid; open in issue 8")
 def test_cycle_overload_output_falls():
     """When the demand exceeds what the current limit allows, the output falls
     below its regulated value (issue 2, overload)."""
@@ -726,6 +722,13 @@ def test_cycle_overload_output_falls():
         overloaded = (points.on_end == "limit") & points.running
         if overloaded.any() and regulated.size:
             assert np.all(points.output_voltage[overloaded] < regulated.min())
+            # past the limit the energy per cycle is pinned by the trip
+            # current, so a heavier load only pulls the output lower: over
+            # neighbouring steady current-limited points the output falls
+            # (common practice)
+            steady = overloaded & (points.pulses_per_pattern == 1)
+            neighbours = steady[:-1] & steady[1:]
+            assert np.all(np.diff(points.output_voltage)[neighbours] < 0.0)
             seen += 1
     assert seen >= 1
 

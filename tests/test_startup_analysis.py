@@ -32,7 +32,8 @@ FAULTS = {
 JSON_KEYS = {"starts", "growth_rate_per_s", "growth_frequency_hz", "min_start_bus_v",
              "min_start_line_v", "start_time_s", "holding_element", "dc_point", "poles",
              "oscillation_begins", "reaches_operating_point", "time_to_regulation_s",
-             "power_on"}
+             "power_on", "ac_input", "min_start_basis", "min_start_line_resolution_v",
+             "min_start_search", "min_oscillation_bus_v", "min_oscillation_line_v"}
 
 
 @pytest.fixture(scope="module")
@@ -208,8 +209,12 @@ def test_every_worked_case_gets_a_verdict(path):
         assert data["holding_element"] in {"startup-resistor", "drive-coupling", "limiter",
                                            "feedback-phase"}
         assert data["start_time_s"] is None
+    # without the engine only the small-signal bound is known, and it says so
+    assert data["min_start_basis"] == "small-signal-bound"
+    assert data["min_start_line_v"] is None and data["min_start_bus_v"] is None
+    assert data["min_start_search"] is None
     if not design.input.is_ac:
-        assert data["min_start_line_v"] is None
+        assert data["min_oscillation_line_v"] is None
     for finding in startup_findings(design, report):
         assert isinstance(finding, Finding) and finding.message and finding.advice
 

@@ -39,7 +39,9 @@ def test_json_keys():
     assert set(data["startup"]) == {
         "starts", "growth_rate_per_s", "growth_frequency_hz", "min_start_bus_v",
         "min_start_line_v", "start_time_s", "holding_element", "dc_point", "poles",
-        "oscillation_begins", "reaches_operating_point", "time_to_regulation_s", "power_on"}
+        "oscillation_begins", "reaches_operating_point", "time_to_regulation_s", "power_on",
+        "ac_input", "min_start_basis", "min_start_line_resolution_v", "min_start_search",
+        "min_oscillation_bus_v", "min_oscillation_line_v"}
     assert data["startup"]["starts"] is False
     assert data["startup"]["dc_point"]["limiter_active"] is True
     assert [f["code"] for f in data["findings"]] == ["dc-stall"]

@@ -12,6 +12,8 @@ from typing import List, Optional
 
 import typer
 
+from rcc.cli.progress import QUIET_HELP
+
 from rcc.cli import EXIT_OK, app, fail_input, refuse_overwrite
 from rcc.cli.overrides import load_with_overrides, set_option
 
@@ -34,7 +36,7 @@ def audit(
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
     csv_file: Optional[Path] = typer.Option(None, "--csv", help="Write the ranking as CSV."),
     force: bool = typer.Option(False, "--force", help="Overwrite an existing CSV file."),
-    quiet: bool = typer.Option(False, "--quiet", help="No progress line."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Each candidate gets the full check and its tolerance spread; the ranking
     puts candidates that fail below those that pass, then orders by warnings,

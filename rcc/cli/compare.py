@@ -10,6 +10,7 @@ import typer
 
 from rcc.cli import EXIT_OK, app, fail_input
 from rcc.cli.overrides import load_with_overrides, parse_settings, set_option, split_variant
+from rcc.cli.progress import QUIET_HELP, Status
 
 
 @app.command(short_help="Designs or variants side by side: margins, findings, stresses.")
@@ -25,6 +26,7 @@ def compare(
                                               "file: its candidates become variants of "
                                               "the first design."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Verdicts, finding margins, start-up, stresses and operating points side by
     side; per row the best design and every design worse than the first.
@@ -48,7 +50,15 @@ def compare(
     if len(variants) < 2:
         raise fail_input("compare: expected two or more designs, or one design with "
                          "--set-each or --candidates")
-    result = run(variants)
+    from rcc.margins import evaluate
+
+    evaluations = []
+    with Status(quiet) as status:
+        for number, variant in enumerate(variants):
+            status(f"full check of {variant.name} ({number + 1} of {len(variants)})",
+                   number, len(variants))
+            evaluations.append(evaluate(variant.design, keep_report=True))
+    result = run(variants, evaluations)
     if json_output:
         typer.echo(json.dumps(result.to_json(), indent=2, allow_nan=False))
     else:

@@ -55,17 +55,18 @@ def cycle(
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES)}, force)
     try:
         with Status(quiet) as status:
-            status.phase("warm-up transient, then Newton's method on the cycle")
             result = periodic_steady_state(design, line_voltage, load_value,
-                                           temperature_value, gain)
+                                           temperature_value, gain, progress=status)
     except PeriodicSteadyStateError as error:
         if json_output:
             echo_json({"error": str(error), "stable": False})
         else:
             typer.echo(f"{design.title}\nno periodic steady state: {error}")
         raise typer.Exit(EXIT_FINDING_FAILED) from None
+    from rcc.engine.bus import bus_json, steady_bus_choice
+
     if json_output:
-        echo_json(result.to_json())
+        echo_json({**result.to_json(), **bus_json(steady_bus_choice(design))})
     else:
         typer.echo(format_cycle(design.title, result, verbose=verbose,
                                 is_ac=design.input.is_ac))
@@ -78,7 +79,9 @@ def cycle(
             basis, volts = rating_basis(design.switch)
             derating = design.limits.voltage_derating
             axes = plot_periodic_steady_state(result, rating=(
-                volts * derating, f"{derating:.0%} of {basis.upper()} {volts:.0f} V"))
+                volts * derating, f"{derating:.0%} of {basis.upper()} {volts:.0f} V"),
+                bus=(f"bus held at {result.bus_voltage:.4g} V (bulk valley)"
+                     if design.input.is_ac else None))
             axes[0].figure.savefig(files.path(plot), dpi=120)
             plt.close(axes[0].figure)
 

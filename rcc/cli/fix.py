@@ -10,6 +10,8 @@ from typing import List, Optional
 
 import typer
 
+from rcc.cli.progress import QUIET_HELP
+
 from rcc.cli import EXIT_OK, app
 from rcc.cli.overrides import load_with_overrides, set_option
 
@@ -21,7 +23,7 @@ def fix(
     workers: int = typer.Option(0, "--workers", min=0, help="Worker processes (0: one "
                                 "per CPU)."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
-    quiet: bool = typer.Option(False, "--quiet", help="No progress line."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """For each failing or warning finding, the smallest change of each adjustable
     value (start-up, drive and base-emitter resistors, drive capacitor, sense

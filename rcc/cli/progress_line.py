@@ -1,42 +1,36 @@
-"""A progress line on stderr for long runs: shown only when stdout is a terminal
-and the run has taken more than :data:`DELAY` seconds; never with ``--quiet``."""
+"""Progress of runs with a known number of steps (``audit``, ``spread``,
+``fix``): the same display as every other command (:class:`rcc.cli.progress.Status`:
+on stderr, only when stdout and stderr are terminals, never with ``--quiet``),
+behind the ``progress(done, total)`` callback those library functions take."""
 
 from __future__ import annotations
 
-import sys
-import time
+from rcc.cli.progress import Status
 
-__all__ = ["Progress", "DELAY"]
-
-#: Seconds before the progress line appears.
-DELAY = 1.5
+__all__ = ["Progress"]
 
 
 class Progress:
-    """Callable ``progress(done, total)`` that draws ``label [####    ] done/total eta``."""
+    """Callable ``progress(done, total)``: a bar with ``label``, the percentage
+    and the time left; :meth:`close` removes it.
 
-    def __init__(self, label: str, quiet: bool = False, stream=None):
+    Parameters
+    ----------
+    label : str
+        What is running, e.g. ``"spread (5 parameters)"`` [-].
+    quiet : bool
+        Show nothing [-].
+    """
+
+    def __init__(self, label: str, quiet: bool = False):
         self.label = label
-        self.stream = stream or sys.stderr
-        self.enabled = not quiet and sys.stdout.isatty()
-        self.start = time.monotonic()
-        self.shown = False
+        # no redraw thread: spread forks its worker processes while this runs
+        self._status = Status(quiet, animated=False).__enter__()
+        self.enabled = self._status.enabled
 
     def __call__(self, done: int, total: int) -> None:
-        if not self.enabled:
-            return
-        elapsed = time.monotonic() - self.start
-        if elapsed < DELAY and done < total:
-            return
-        width = 30
-        filled = int(width * done / max(total, 1))
-        remaining = elapsed / max(done, 1) * (total - done)
-        self.stream.write(f"\r{self.label} [{'#' * filled}{' ' * (width - filled)}] "
-                          f"{done}/{total}, {elapsed:.0f} s, about {remaining:.0f} s left ")
-        self.stream.flush()
-        self.shown = True
+        self._status(self.label, done, total)
 
     def close(self) -> None:
-        if self.shown:
-            self.stream.write("\n")
-            self.stream.flush()
+        """Remove the display (call once, in a ``finally``)."""
+        self._status.__exit__(None, None, None)

@@ -10,6 +10,8 @@ from typing import List, Optional
 
 import typer
 
+from rcc.cli.progress import QUIET_HELP
+
 from rcc.cli import EXIT_OK, app, fail_input, refuse_overwrite
 from rcc.cli.overrides import load_with_overrides, set_option
 
@@ -33,7 +35,7 @@ def spread(
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write histograms and "
                                         "sensitivities (PNG)."),
     force: bool = typer.Option(False, "--force", help="Overwrite an existing plot file."),
-    quiet: bool = typer.Option(False, "--quiet", help="No progress line."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Tolerance spread: yield with its 95 % Wilson interval, fail fraction per
     finding, percentiles, worst case by corners and RSS beside the worst sample,

@@ -13,6 +13,7 @@ from rcc.cli.overrides import load_with_overrides, set_option
 from rcc.cli import (EXIT_FINDING_FAILED, EXIT_OK, app, echo_json, fail_input,
                      plan_outputs, write_outputs)
 from rcc.cli.outputs import FIGURE_SUFFIXES
+from rcc.cli.progress import QUIET_HELP, Status
 
 
 def _si(value, unit):
@@ -50,17 +51,16 @@ def _text(report, findings) -> str:
                 f"{run.expected_output:.3g} V{settle}")
             lines.append(f"  verdict      {'starts' if report.starts else 'does not start'}"
                          f" into its load: it {reached}")
+        elif report.start_line is not None:
+            lines.append("  verdict      does not start into its load: at the lowest line the "
+                         "bulk capacitor cannot carry the full load")
         else:
             lines.append("  verdict      starts (small-signal only: the engine was not run)")
     else:
         lines.append(f"  verdict      stalls, held by: {r.holding_element}")
-    threshold = report.min_start_bus_voltage
-    text = "does not start at any bus voltage of the design" if threshold is None \
-        else f"{threshold:.4g} V bus"
-    if threshold is not None and report.min_start_line_voltage is not None:
-        text += f" ({report.min_start_line_voltage:.4g} V RMS line)"
-    lines.append(f"  oscillation begins from  {text} (small-signal threshold at the worst "
-                 f"corner; starting into the load is checked at the lowest line)")
+    from rcc.report import format_start_line
+
+    lines += ["  " + line for line in format_start_line(report.to_json())]
     t = report.start_time
     if t is not None:
         lines.append(f"  start time   {_si(t.total, 's')} (bulk {_si(t.bulk_charge_time, 's')}, "
@@ -93,6 +93,7 @@ def startup(
     plot: Path = typer.Option(None, "--plot", help="Write a Bode plot of the loop gain "
                                                    "(e.g. loop.png)."),
     force: bool = typer.Option(False, "--force", help="Overwrite the --plot file."),
+    quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Will it start? DC point, poles, verdict, minimum start-up voltage,
     start-up time, weak-drive and hiccup checks.
@@ -104,7 +105,10 @@ def startup(
     design = load_with_overrides(design_file, settings)
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--latex": (latex, (".tex",))}, force)
     try:
-        report = startup_report(design, engine=True)
+        with Status(quiet) as status:
+            status.phase("start-up analysis: DC point, poles, start-up threshold; then the "
+                         "engine from power-on into the load")
+            report = startup_report(design, engine=True)
     except DcPointError as error:
         raise fail_input(f"{design_file}: {error}") from None
     findings = startup_findings(design, report)

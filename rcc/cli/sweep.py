@@ -80,14 +80,20 @@ def sweep(
                 design, lines, split_loads(loads), temperatures,
                 progress=lambda done, total: status.update(done))
     not_running = _not_running(result)
+    import textwrap
+
+    from rcc.engine.bus import BUS_CHOICES, bus_json, steady_bus_choice
+
+    choice = steady_bus_choice(design)
     if json_output:
         data["not_running"] = not_running
-        echo_json(data)
+        echo_json({**data, **bus_json(choice)})
     else:
         from rcc.report import format_verification
 
         typer.echo(design.title)
         typer.echo(format_points_table(result.points.records()))
+        typer.echo(textwrap.fill(f"bus: {BUS_CHOICES[choice]}", width=92))
         for note in not_running:
             typer.echo(f"does not run: {note}")
         if verify:

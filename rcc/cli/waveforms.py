@@ -1,6 +1,6 @@
-"""`rcc waveforms DESIGN [--line V] [--load X] [--time 20ms] [--from-dc-point]
-[--plot FILE.png] [--csv FILE] [--force]`: start-up and steady-state waveforms
-from the time-domain engine."""
+"""`rcc waveforms DESIGN [--line V] [--load X] [--time 20ms] [--bus bulk|peak|valley]
+[--from-dc-point] [--plot FILE.png] [--csv FILE] [--force]`: start-up and
+steady-state waveforms from the time-domain engine."""
 
 from __future__ import annotations
 
@@ -21,6 +21,10 @@ from rcc.cli.options import (HFE_HELP, LINE_HELP, LOAD_HELP, TEMPERATURE_HELP, h
 
 #: A CSV larger than this is announced on stderr before it is written [B].
 LARGE_CSV_BYTES = 20e6
+BUS_HELP = ("Bus of the run: bulk (the bulk capacitor charged through the bridge, "
+            "with line ripple), peak (held at the rectified peak) or valley (held at the "
+            "bulk valley, as check and cycle). Default: bulk for AC input, the DC "
+            "input otherwise.")
 
 
 @app.command(short_help="Simulate from switch-on (engine): waveforms and summary.")
@@ -31,6 +35,7 @@ def waveforms(
     load: Optional[str] = typer.Option(None, "--load", help=LOAD_HELP),
     temperature: Optional[str] = typer.Option(None, "--temperature", help=TEMPERATURE_HELP),
     hfe: Optional[str] = typer.Option(None, "--hfe", help=HFE_HELP),
+    bus: Optional[str] = typer.Option(None, "--bus", help=BUS_HELP),
     time: str = typer.Option("20ms", "--time", help="Simulated time from switch-on, "
                              "with its unit (up to 10s)."),
     from_dc_point: bool = typer.Option(False, "--from-dc-point", help="Start from the DC "
@@ -52,13 +57,16 @@ def waveforms(
     """Simulate the supply from switch-on: collector voltage, primary, base and
     limiter currents, feedback winding and output voltage.
 
-    The bus is held at its no-load value (the rectified peak for AC input).
+    For AC input the bus is the bulk capacitor charged through the bridge
+    from the sine line, with its line-frequency ripple (--bus bulk); --bus
+    peak or valley hold it constant instead.
+
     Exit code 0 when the supply runs, 1 when it does not oscillate or locks up
     or the engine stops (event storm, inconsistent circuit, --max-events
     reached), 2 on bad input.
     """
     design = load_with_overrides(design_file, settings)
-    from rcc.mains import bus_voltage as no_load_bus
+    from rcc.engine.bus import check_bus_choice, run_bus
 
     try:
         line_voltage = line_option(design, line)
@@ -68,17 +76,20 @@ def waveforms(
         gain = hfe_option(design, hfe)
         csv_window = _window_option(window, duration)
         csv_signals = _signals_option(signals)
+        check_bus_choice(design, bus)
     except ValueError as error:
         raise fail_input(str(error)) from None
     plan_outputs({"--plot": (plot, FIGURE_SUFFIXES), "--csv": (csv, None)}, force)
-    # the bus is held at its no-load value: the rectified peak for AC input
-    bus_voltage = float(no_load_bus(design, line_voltage))
     from rcc.engine import EngineError, build_circuit, dc_initial_state, simulate
 
-    circuit = build_circuit(design, bus_voltage, load_value, temperature_value, gain)
     try:
-        x0 = dc_initial_state(circuit, from_dc_point=from_dc_point)
         with Status(quiet) as status:
+            if bus == "valley":
+                status.phase("cycle model: the bulk valley at its input power")
+            run = run_bus(design, line_voltage, load_value, temperature_value, gain, bus)
+            circuit = build_circuit(design, run.voltage, load_value, temperature_value, gain,
+                                    bus_model=run.bus_model)
+            x0 = dc_initial_state(circuit, from_dc_point=from_dc_point)
             status.phase(f"simulating {duration * 1e3:g} ms", total=duration)
             trace = simulate(circuit, x0, duration, max_step=duration / 20000.0,
                              max_events=max_events,
@@ -89,8 +100,8 @@ def waveforms(
         typer.echo(f"{design.title}\nengine stopped: {reason}")
         raise typer.Exit(EXIT_FINDING_FAILED) from None
     operation = operation_of(trace, design.output.voltage_target)
-    typer.echo(format_summary(design.title, line_voltage, bus_voltage, load_value,
-                              temperature_value, gain, trace, design.input.is_ac, operation))
+    typer.echo(format_summary(design.title, run, load_value, temperature_value, gain, trace,
+                              operation))
     writers = []
     if csv is not None:
         from rcc.engine.plotting import csv_size, write_csv
@@ -108,12 +119,11 @@ def waveforms(
         def write_plot(files):
             import matplotlib.pyplot as plt
 
-            from rcc.engine.plotting import plot_waveforms
+            from rcc.engine.plotting import BUS_PANEL, WAVEFORM_PANELS, plot_waveforms
 
-            bus_text = (f"bus held at {bus_voltage:.4g} V (rectified peak of {line_voltage:.4g} V "
-                        "RMS)" if design.input.is_ac else f"bus {bus_voltage:.4g} V DC")
-            axes = plot_waveforms(trace, title=f"{design.title}\n{bus_text}, load "
-                                              f"{load_value.text()}")
+            panels = WAVEFORM_PANELS + ((BUS_PANEL,) if run.bus_model == "bulk" else ())
+            axes = plot_waveforms(trace, title=f"{design.title}\nbus: {run.description}, load "
+                                              f"{load_value.text()}", panels=panels)
             axes[0, 0].figure.savefig(files.path(plot), dpi=110)
             plt.close(axes[0, 0].figure)
 
@@ -229,18 +239,18 @@ def _operation_text(operation: dict) -> str:
     return f"oscillating, last cycles at {frequency}"
 
 
-def format_summary(title, line_voltage, bus_voltage, load, temperature, hfe, trace,
-                   is_ac=True, operation=None) -> str:
-    """Plain-text summary of a run."""
+def format_summary(title, run, load, temperature, hfe, trace, operation=None) -> str:
+    """Plain-text summary of a run on the bus ``run``
+    (:class:`rcc.engine.bus.RunBus`)."""
     import numpy as np
 
     turn_ons = trace.turn_on_times()
     out = trace.signals["output_voltage"]
     operation = operation or operation_of(trace)
-    rows = [
-        ("line / bus", f"{line_voltage:.4g} V / {bus_voltage:.4g} V "
-                       + ("(held at the rectified peak: no bulk ripple)" if is_ac
-                          else "(DC input)")),
+    rows = [("bus", run.description)]
+    if run.bus_model == "bulk":
+        rows.append(("bus over the run", _bulk_text(trace, run)))
+    rows += [
         ("load", load.text()),
         ("temperature / hFE", f"{temperature - 273.15:.3g} degC / {hfe:.3g} at 25 degC"),
         ("simulated", f"{trace.final_time * 1e3:.4g} ms, {len(trace.event_times)} switching "
@@ -252,3 +262,20 @@ def format_summary(title, line_voltage, bus_voltage, load, temperature, hfe, tra
     ]
     width = max(len(name) for name, _ in rows)
     return "\n".join([title] + [f"  {name:<{width}}  {value}" for name, value in rows])
+
+
+def _bulk_text(trace, run) -> str:
+    """Bus range of a run on the bulk capacitor, over its last line period
+    (the ripple) when the run is that long."""
+    import numpy as np
+
+    bus, times = trace.signals["bus_voltage"], trace.times
+    period = 1.0 / run.line_frequency
+    text = f"{np.min(bus):.4g} V to {np.max(bus):.4g} V"
+    if trace.final_time - times[0] >= period:
+        last = bus[times >= trace.final_time - period]
+        text += (f"; over the last line period {np.min(last):.4g} V to {np.max(last):.4g} V "
+                 f"({np.ptp(last):.3g} V p-p ripple)")
+    else:
+        text += f" (run shorter than a line period, {period * 1e3:.3g} ms: no full ripple)"
+    return text

@@ -22,6 +22,10 @@ State vector order (see :attr:`Circuit.state_names`)::
     5  v_output_capacitor   output capacitor voltage (behind its ESR) [V]
     6  v_aux                regulation filter capacitor (feedback-winding method only) [V]
     6/7 v_clamp             RCD clamp capacitor, clamp node minus bus (RCD clamp only) [V]
+    then, with ``bus_model="bulk"`` only:
+        v_bulk              bulk capacitor, bus to ground [V]
+        v_line_phase        line phase oscillator: the line is crest x this [1 V]
+        i_line_phase        its quadrature state [A]
 
 Device models
 -------------
@@ -230,6 +234,8 @@ __all__ = [
     "chord_error_bound",
     "state_kind",
     "leakage_damping_resistance",
+    "bulk_rectifier",
+    "BUS_MODELS",
 ]
 
 #: Conductance from every node to ground [S]  # common practice (gmin)
@@ -287,10 +293,22 @@ ZENER_KNEE_FOOT_CURRENT = 1e-9
 #: Constant-current load: resistive below this fraction of the expected output voltage
 LOAD_KNEE_FRACTION = 0.2
 #: Constant-power load: breakpoints from 0.25x to 2x the expected voltage
+#: (rcc.cycle.POWER_LOAD_RANGE, the law the cycle model shares)
 POWER_LOAD_SEGMENTS = 16
 #: Floor on the leakage inductance relative to the magnetizing inductance for
 #: a coupling of exactly 1 (no wound transformer comes closer)  # common practice
 MIN_LEAKAGE_FRACTION = 1e-4
+
+#: How the bus is modelled (:func:`build_circuit`'s ``bus_model``).
+BUS_MODELS = {
+    "dc": "an ideal DC source: no line ripple",
+    "bulk": "the bulk capacitor charged through the bridge from the sine line: "
+            "line-frequency ripple",
+}
+#: Resistance in series with the conducting bridge: line impedance, bridge
+#: diodes' slope and the bulk capacitor's ESR together [ohm]  # common practice
+#: (an ohm or two for small supplies without an inrush resistor)
+LINE_SOURCE_RESISTANCE = 2.0
 
 #: Guard crossing tolerances: well above the rounding noise of the nodal
 #: solution (conductances span about 13 decades), small enough that the
@@ -313,6 +331,8 @@ SIGNAL_NAMES = (
     "output_rectifier_current",
     "clamp_current",
     "bus_current",
+    "bus_voltage",
+    "line_current",
 )
 
 #: States of the switch device, in index order.
@@ -800,15 +820,12 @@ Device = _Device
 
 # ------------------------------------------------------------- the builder
 def _expected_output_voltage(design: Design, temperature: float) -> float:
-    """Output voltage the regulation aims at, for load breakpoints only [V]."""
-    from rcc.cycle import hold_output_voltage
+    """Output voltage the regulation aims at, for load breakpoints only [V]
+    (:func:`rcc.cycle.expected_output_voltage`, shared with the cycle model's
+    load law)."""
+    from rcc.cycle import expected_output_voltage
 
-    if design.output.voltage_target is not None:
-        return design.output.voltage_target
-    hold = hold_output_voltage(design, temperature)
-    if hold is not None:
-        return float(hold)
-    return 12.0  # no regulation and no target: breakpoints only  # common practice
+    return expected_output_voltage(design, temperature)
 
 
 def leakage_damping_resistance(design: Design) -> float:
@@ -844,7 +861,7 @@ def leakage_damping_resistance(design: Design) -> float:
 
 
 def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: float,
-                  hfe: float | None = None) -> Circuit:
+                  hfe: float | None = None, bus_model: str = "dc") -> Circuit:
     """Build the piecewise-linear circuit of a design at one operating condition.
 
     Parameters
@@ -852,7 +869,9 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     design : Design
         The validated design.
     bus_voltage : float
-        DC bus voltage [V].
+        DC bus voltage [V]; with ``bus_model="bulk"`` the rectified crest
+        ``sqrt(2) V_rms - input.bridge_drop``, where the bulk capacitor starts
+        (:func:`rcc.mains.rectified_peak`).
     load : Load
         Output load (current, resistance or power).
     temperature : float
@@ -860,10 +879,21 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     hfe : float, optional
         Switch current gain at 25 degC [1]; default ``switch.hfe_typ``.  The
         temperature law of :func:`rcc.devices.current_gain` is applied.
+    bus_model : {"dc", "bulk"}
+        ``"dc"``: the bus is an ideal DC source.  ``"bulk"`` (AC input only):
+        the bus is the bulk capacitor ``input.bulk_capacitance``, charged
+        from the line ``V_pk cos(2 pi f_line t)`` through a full-wave bridge
+        (:data:`BUS_MODELS`).
 
     Returns
     -------
     Circuit
+
+    Raises
+    ------
+    ValueError
+        On a non-positive bus voltage, an unknown load kind or bus model, or
+        ``"bulk"`` for DC input.
 
     Notes
     -----
@@ -872,12 +902,34 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     design file (junction resistances, limiter saturation voltage) are module
     constants, marked as common practice.
 
+    The bulk model is the capacitor-input full-wave rectifier: the bridge
+    conducts only near the line crest, while the rectified line exceeds the
+    capacitor voltage by the bridge drop, and recharges the capacitor; between
+    crests the capacitor alone feeds the converter and discharges (Mohan,
+    Undeland & Robbins [2]_, the chapter on diode rectifiers with a
+    capacitor on the DC side  # from memory: ch. 5).  The two conducting
+    bridge diodes are one diode of drop ``input.bridge_drop`` per half-wave,
+    in series with :data:`LINE_SOURCE_RESISTANCE`.  The line is a pure sine
+    from an undamped linear oscillator (two states, exact under the
+    engine's matrix exponentials); the run starts at the line crest with the
+    bulk capacitor charged to it, as after the first half-cycles at power-on
+    (inrush is not modelled).  The line sources' power is the input power,
+    the bridge's loss is booked under ``bridge_positive`` / ``bridge_negative``.
+
     References
     ----------
     .. [1] C.-W. Ho, A. E. Ruehli, P. A. Brennan, "The modified nodal
        approach to network analysis", IEEE Trans. Circuits and Systems 22(6),
        504-509, 1975.
+    .. [2] N. Mohan, T. M. Undeland, W. P. Robbins, *Power Electronics:
+       Converters, Applications, and Design*, 3rd ed., Wiley, 2003.
     """
+    if bus_model not in BUS_MODELS:
+        raise ValueError(f"bus_model = {bus_model!r}: expected one of "
+                         f"{', '.join(BUS_MODELS)}")
+    if bus_model == "bulk" and not design.input.is_ac:
+        raise ValueError("bus_model = 'bulk': expected a design with AC input "
+                         "(a DC input has no bridge and bulk capacitor)")
     if not (bus_voltage > 0 and math.isfinite(bus_voltage)):
         raise ValueError(f"bus_voltage = {bus_voltage!r}: expected a positive voltage [V]")
     if load.kind not in ("current", "resistance", "power"):
@@ -904,9 +956,15 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         states.append("v_aux")
     if has_rcd:
         states.append("v_clamp")
+    bulk = bus_model == "bulk"
 
     E = _Element
-    els = [E("V", "bus", "bus", "0", bus_voltage)]
+    if bulk:
+        bulk_elements, bridge, bulk_states = bulk_rectifier(design, bus_voltage)
+        states += bulk_states
+        els = list(bulk_elements)
+    else:
+        els = [E("V", "bus", "bus", "0", bus_voltage)]
     primary_top = "bus"
     if tr.primary_resistance > 0:
         els.append(E("R", "primary_resistance", "bus", "p1", tr.primary_resistance))
@@ -1100,6 +1158,8 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         devs.append(_junction("clamp_diode", "c", "k", junctions["clamp_diode"]))
     if load.kind in ("current", "power"):
         devs.append(_load_device(load, expected))
+    if bulk:
+        devs += bridge
 
     signals = {
         "collector_voltage": lambda on: (("v", "c", 1.0),),
@@ -1115,7 +1175,12 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         "base_voltage": lambda on: (("v", "b", 1.0),),
         "output_rectifier_current": lambda on: (("i", "output_rectifier", 1.0),),
         "clamp_current": lambda on: (("i", "clamp_zener", 1.0), ("i", "clamp_diode", 1.0)),
-        "bus_current": lambda on: (("i", "bus", -1.0),),
+        "bus_current": lambda on: (
+            (("i", "bridge_positive", 1.0), ("i", "bridge_negative", 1.0), ("i", "bulk", -1.0))
+            if bulk else (("i", "bus", -1.0),)),
+        "bus_voltage": lambda on: (("v", "bus", 1.0),),
+        "line_current": lambda on: (("i", "bridge_positive", 1.0),
+                                    ("i", "bridge_negative", -1.0)),
     }
 
     parameters = {
@@ -1131,10 +1196,77 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
         "output_ratio": tr.output_turns / np_turns,
         "junctions": junctions,
         "leakage_damping_resistance": leakage_damping_resistance(design),
+        "bus_model": bus_model,
     }
+    if bulk:
+        parameters.update({
+            "line_crest": bus_voltage + design.input.bridge_drop,
+            "line_frequency": design.input.line_frequency,
+            "bulk_capacitance": design.input.bulk_capacitance,
+            # power-on: at the line crest, the bulk capacitor charged to it
+            "initial_state": {"v_bulk": bus_voltage, "v_line_phase": 1.0},
+            # not solved for at a DC point: the line and the bulk capacitor
+            "held_states": ("v_bulk", "v_line_phase", "i_line_phase"),
+        })
     return _make_circuit(els, devs, states, signals, parameters, design=design,
                          bus_voltage=float(bus_voltage), load=load,
                          temperature=float(temperature), hfe=gain)
+
+
+#: Capacitance of the line phase oscillator [F] (its inductance follows from
+#: the line frequency; only the product matters).
+LINE_PHASE_CAPACITANCE = 1.0
+
+
+def bulk_rectifier(design: Design, rectified_crest: float):
+    """Line, full-wave bridge and bulk capacitor of ``bus_model="bulk"``.
+
+    Parameters
+    ----------
+    design : Design
+        An AC-input design (``input.bulk_capacitance``, ``line_frequency``,
+        ``bridge_drop``) [-].
+    rectified_crest : float
+        Line crest less the bridge drop [V].
+
+    Returns
+    -------
+    elements : tuple of Element
+        The bulk capacitor from node ``bus`` to ground, the line phase
+        oscillator and the two line sources [-].
+    devices : tuple of Device
+        The two halves of the bridge, ``bridge_positive`` and
+        ``bridge_negative``, into node ``bus`` [-].
+    state_names : list of str
+        ``["v_bulk", "v_line_phase", "i_line_phase"]`` [-].
+
+    Notes
+    -----
+    The line phase is an isolated LC oscillator of unit amplitude at the
+    line frequency (``C = 1 F``, ``L = 1 / (omega^2 C)``, start at
+    ``v = 1``: ``cos(omega t)``); two voltage sources follow it, ``+V_pk``
+    and ``-V_pk`` times its voltage, each feeding the bus through one diode
+    of drop ``input.bridge_drop`` (the two conducting diodes of the bridge
+    together) and :data:`LINE_SOURCE_RESISTANCE`.
+    """
+    crest = rectified_crest + design.input.bridge_drop
+    omega = 2.0 * math.pi * design.input.line_frequency
+    E = _Element
+    elements = (
+        E("C", "bulk", "bus", "0", design.input.bulk_capacitance, state="v_bulk"),
+        E("C", "line_phase", "lt", "0", LINE_PHASE_CAPACITANCE, state="v_line_phase"),
+        E("L", "line_phase_inductor", "lt", "0", 1.0 / (omega ** 2 * LINE_PHASE_CAPACITANCE),
+          state="i_line_phase"),
+        E("V", "line_positive", "lp", "0", 0.0, state="v_line_phase", gain=crest),
+        E("V", "line_negative", "ln", "0", 0.0, state="v_line_phase", gain=-crest),
+    )
+    bridge = tuple(_diode(name, node, "bus", design.input.bridge_drop, LINE_SOURCE_RESISTANCE)
+                   for name, node in (("bridge_positive", "lp"), ("bridge_negative", "ln")))
+    return elements, bridge, ["v_bulk", "v_line_phase", "i_line_phase"]
+
+
+#: Elements whose delivered power is the circuit's input power.
+INPUT_SOURCES = ("bus", "line_positive", "line_negative")
 
 
 def build_network(elements, devices_, state_names, signals=None, parameters=None) -> Circuit:
@@ -1269,8 +1401,10 @@ def _load_device(load: Load, expected: float) -> _Device:
         regions = [(current / knee, 0.0), (0.0, current)]
         breaks = [knee]
     else:
+        from rcc.cycle import POWER_LOAD_RANGE
+
         power = load.value
-        breaks = list(expected * np.geomspace(0.25, 2.0, POWER_LOAD_SEGMENTS + 1))
+        breaks = list(expected * np.geomspace(*POWER_LOAD_RANGE, POWER_LOAD_SEGMENTS + 1))
         regions = [(power / breaks[0] ** 2, 0.0)]
         for low, high in zip(breaks[:-1], breaks[1:]):
             slope = (power / high - power / low) / (high - low)
@@ -1475,7 +1609,7 @@ def _power_forms(elements, owner, linear, n):
         else:  # pragma: no cover
             raise AssertionError(el.kind)
         absorbed = product(voltage, current)
-        if el.name == "bus":
+        if el.name in INPUT_SOURCES:
             forms["input"] -= absorbed
         elif el.name.startswith("load"):
             forms["output"] += absorbed

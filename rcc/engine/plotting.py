@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["WAVEFORM_PANELS", "CYCLE_PANELS", "cycle_status", "on_time_end", "plot_waveforms", "plot_periodic_steady_state", "zoom_window",
+__all__ = ["WAVEFORM_PANELS", "BUS_PANEL", "CYCLE_PANELS", "cycle_status", "on_time_end",
+           "plot_waveforms", "plot_periodic_steady_state", "zoom_window",
            "write_csv", "csv_columns", "csv_rows", "csv_size"]
 
 #: Stacked panels: (signal name, axis label, display scale, unit).
@@ -22,6 +23,8 @@ WAVEFORM_PANELS = (
     ("feedback_voltage", "feedback winding", 1.0, "V"),
     ("output_voltage", "output", 1.0, "V"),
 )
+#: The panel added when the bus is the bulk capacitor (line ripple).
+BUS_PANEL = ("bus_voltage", "bus", 1.0, "V")
 
 
 def zoom_window(trace, cycles: int = 3) -> tuple[float, float]:
@@ -48,7 +51,8 @@ def zoom_window(trace, cycles: int = 3) -> tuple[float, float]:
     return float(trace.final_time - 0.05 * span), float(trace.final_time)
 
 
-def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
+def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None,
+                   panels=WAVEFORM_PANELS):
     """Stacked waveforms: whole run on the left, the last cycles on the right.
 
     Parameters
@@ -59,12 +63,15 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
         Figure title.
     cycles : int
         Switching cycles in the zoom [1].
-    axes : matplotlib Axes grid, shape (6, 2), optional
+    axes : matplotlib Axes grid, shape (len(panels), 2), optional
         Axes to draw in; a new figure when omitted [-].
+    panels : sequence of (signal, label, scale, unit)
+        The stacked signals, default :data:`WAVEFORM_PANELS` (add
+        :data:`BUS_PANEL` for a run on the bulk capacitor) [-].
 
     Returns
     -------
-    matplotlib Axes grid, shape (6, 2)
+    matplotlib Axes grid, shape (len(panels), 2)
         The axes drawn in (signals in V and mA, time in ms and us; the zoom
         from the start of its window) [-].
     """
@@ -74,7 +81,8 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
     import matplotlib.pyplot as plt
 
     if axes is None:
-        fig, axes = plt.subplots(len(WAVEFORM_PANELS), 2, figsize=(13, 12), sharex="col",
+        fig, axes = plt.subplots(len(panels), 2, figsize=(13, 2.0 * len(panels)),
+                                 sharex="col",
                                  gridspec_kw={"width_ratios": [1.4, 1.0]})
     else:
         fig = axes[0, 0].figure
@@ -82,7 +90,7 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None):
     zoom = (trace.times >= start) & (trace.times <= end)
     scale_t, unit_t = _time_scale(trace.final_time - trace.times[0])
     zscale_t, zunit_t = _time_scale(end - start)
-    for row, (name, label, scale, unit) in enumerate(WAVEFORM_PANELS):
+    for row, (name, label, scale, unit) in enumerate(panels):
         values = trace.signals[name] * scale
         axes[row, 0].plot(trace.times * scale_t, values, lw=0.6, color="C0")
         axes[row, 1].plot((trace.times[zoom] - start) * zscale_t, values[zoom], lw=0.9,
@@ -277,7 +285,7 @@ def on_time_end(result) -> tuple[float, str]:
         float(wave.primary_current[index]), 1e-12) else "base drive")
 
 
-def plot_periodic_steady_state(result, axes=None, rating=None):
+def plot_periodic_steady_state(result, axes=None, rating=None, bus=None):
     """Stacked plots of one steady-state period.
 
     Parameters
@@ -289,6 +297,8 @@ def plot_periodic_steady_state(result, axes=None, rating=None):
     rating : (float, str), optional
         Allowed collector voltage [V] and its label (e.g. ``"80 % of VCEV"``),
         drawn as a red line on the collector panel.
+    bus : str, optional
+        How the bus was held, for the title (default ``"bus <V> V"``) [-].
 
     Returns
     -------
@@ -331,7 +341,8 @@ def plot_periodic_steady_state(result, axes=None, rating=None):
     axes[-1].set_xlabel("time from turn-on [us]")
     axes[0].set_title(
         f"{cycle_status(result)}\n{result.frequency / 1e3:.4g} kHz, "
-        f"{result.output_voltage:.4g} V out, bus {result.bus_voltage:.4g} V, "
+        f"{result.output_voltage:.4g} V out, "
+        f"{bus or f'bus {result.bus_voltage:.4g} V'}, "
         f"load {result.load.text()} ({result.method})", fontsize=9)
     axes[0].figure.tight_layout()
     return axes

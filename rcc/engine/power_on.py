@@ -45,6 +45,7 @@ from rcc.engine.simulate import power_on_state, simulate, turn_on_indices
 from rcc.operation import SETTLING_BAND, Operation, classify_operation, settling_time
 
 __all__ = ["PowerOnRun", "run_from_power_on", "expected_output_voltage", "planned_duration",
+           "power_on_bus_voltage",
            "MIN_DURATION", "MIN_CYCLES", "SETTLE_TIME_CONSTANTS", "MAX_DURATION",
            "WINDOW_FRACTION", "SETTLED_DRIFT", "SETTLED_RATE", "ASSUMED_EFFICIENCY"]
 
@@ -259,6 +260,36 @@ def planned_duration(design: Design, bus_voltage: float, load: Load, expected_ou
     return float(min(max_duration, start_delay + settle)), frequency
 
 
+def power_on_bus_voltage(design: Design, line_voltage: float, load: Load,
+                         temperature: float) -> float:
+    """Bus the engine from power-on holds by default at a line voltage.
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    line_voltage : float
+        RMS line voltage (AC input) or DC input voltage [V].
+    load : Load
+        The load (one value).
+    temperature : float
+        Device temperature [K] (sets the expected output).
+
+    Returns
+    -------
+    float
+        The DC input, or for AC input the bulk-capacitor valley
+        (:func:`rcc.mains.bus_voltage`) at the load power at the expected
+        output over :data:`ASSUMED_EFFICIENCY`; 0 where the bulk capacitor
+        cannot carry that power [V].
+    """
+    from rcc.mains import bus_voltage as mains_bus
+
+    expected = expected_output_voltage(design, temperature)
+    power = float(load.power(expected if expected > 0 else 1.0)) / ASSUMED_EFFICIENCY
+    return float(mains_bus(design, float(line_voltage), power))
+
+
 def run_from_power_on(design: Design, line_voltage: float, load, *, temperature=None,
                       hfe=None, duration=None, bus_voltage=None,
                       max_duration: float = MAX_DURATION) -> PowerOnRun:
@@ -301,7 +332,6 @@ def run_from_power_on(design: Design, line_voltage: float, load, *, temperature=
     """
     from rcc.cycle import reference_temperature
     from rcc.engine.pss import parse_load
-    from rcc.mains import bus_voltage as mains_bus
 
     started = _clock.perf_counter()
     line = float(line_voltage)
@@ -312,8 +342,7 @@ def run_from_power_on(design: Design, line_voltage: float, load, *, temperature=
     hfe_value = design.switch.hfe_typ if hfe is None else float(hfe)
     expected = expected_output_voltage(design, temperature)
     if bus_voltage is None:
-        power = float(load.power(expected if expected > 0 else 1.0)) / ASSUMED_EFFICIENCY
-        bus_voltage = float(mains_bus(design, line, power))
+        bus_voltage = power_on_bus_voltage(design, line, load, temperature)
     bus = float(bus_voltage)
     if not (math.isfinite(bus) and bus > 0):
         raise ValueError(f"bus_voltage = {bus_voltage!r}: expected a positive voltage [V]")

@@ -324,7 +324,8 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
                           *, bus_voltage=None, warmup_cycles: int = WARMUP_CYCLES,
                           max_iterations: int = 12, fallback_cycles: int = 5000,
                           tolerance: float = CIRCUIT_TOLERANCE,
-                          initial_state=None, initial_topology=None) -> PeriodicSteadyState:
+                          initial_state=None, initial_topology=None,
+                          progress=None) -> PeriodicSteadyState:
     """Periodic steady state of a design's free-running oscillation.
 
     Parameters
@@ -359,6 +360,10 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
         Start Newton from this state at a turn-on (and the topology code
         just after it) instead of a warm-up transient; for continuation
         over neighbouring operating points.
+    progress : callable, optional
+        Called as ``progress(description, done, total)`` at each phase
+        (cycle model, warm-up, every Newton iteration, the fall-back
+        transient, the final cycle) for a progress display [-].
 
     Returns
     -------
@@ -399,7 +404,8 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
             design, line_voltage, load, temperature, hfe, bus_voltage=bus_voltage,
             warmup_cycles=warmup_cycles, max_iterations=max_iterations,
             fallback_cycles=fallback_cycles, tolerance=tolerance,
-            initial_state=initial_state, initial_topology=initial_topology)
+            initial_state=initial_state, initial_topology=initial_topology,
+            progress=progress or (lambda description, done=None, total=None: None))
     except (CycleError, EngineError) as error:
         # numerical trouble inside the engine is a clear error, never a traceback
         raise PeriodicSteadyStateError(
@@ -408,7 +414,7 @@ def periodic_steady_state(design, line_voltage=None, load=None, temperature=None
 
 def _periodic_steady_state(design, line_voltage, load, temperature, hfe, *, bus_voltage,
                            warmup_cycles, max_iterations, fallback_cycles, tolerance,
-                           initial_state, initial_topology) -> PeriodicSteadyState:
+                           initial_state, initial_topology, progress) -> PeriodicSteadyState:
     from rcc.cycle import reference_temperature
 
     line = _default_line(design, line_voltage)
@@ -416,6 +422,7 @@ def _periodic_steady_state(design, line_voltage, load, temperature, hfe, *, bus_
     if temperature is None:
         temperature = reference_temperature(design)
     hfe_value = design.switch.hfe_typ if hfe is None else float(hfe)
+    progress("cycle model: bus and warm-start values")
     point = _model_point(design, line, load, temperature, hfe_value)
     if bus_voltage is None:
         # the bus the cycle model computed this point at (the bulk valley for
@@ -424,6 +431,7 @@ def _periodic_steady_state(design, line_voltage, load, temperature, hfe, *, bus_
     circuit = build_circuit(design, float(bus_voltage), load, float(temperature), hfe_value)
     try:
         if initial_state is None:
+            progress(f"engine: warm-up, {warmup_cycles} switching cycles from power-on")
             x, topology = _warm_up(design, circuit, point, warmup_cycles, bus_voltage, load)
         else:
             x, topology = np.asarray(initial_state, dtype=float), int(initial_topology)
@@ -439,7 +447,8 @@ def _periodic_steady_state(design, line_voltage, load, temperature, hfe, *, bus_
                                     max_iterations=max_iterations,
                                     fallback_cycles=fallback_cycles,
                                     picard_threshold=PICARD_THRESHOLD,
-                                    transient=cycle_map.transient)
+                                    transient=cycle_map.transient, progress=progress)
+    progress("the cycle at the solution: multipliers, losses")
     flags = _solve_flags(circuit, cycle_map, orbit)
     # the cycle at the solution, with its full event list, for the figures
     try:

@@ -194,7 +194,7 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
                         multiplier_margin: float = 0.05,
                         picard_threshold: float = 0.0, transient=None,
                         transient_chunk: int = 100,
-                        retry_newton: bool = True) -> PeriodicOrbit:
+                        retry_newton: bool = True, progress=None) -> PeriodicOrbit:
     """Fixed point of the Poincaré map by Newton's method, transient fall-back.
 
     Parameters
@@ -235,6 +235,9 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
     retry_newton : bool, default True
         With ``transient``: try Newton again after chunks 1, 4, 16, ...,
         from the state the transient reached.
+    progress : callable, optional
+        Called as ``progress(description, done, total)`` at every Newton
+        iteration and fall-back chunk (a progress display) [-].
 
     Returns
     -------
@@ -269,12 +272,18 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
             f"no switching cycle from the starting state: {error}") from None
     start, start_cycle = x.copy(), cycle
 
+    def report(description, done, total):
+        if progress is not None:
+            progress(description, done, total)
+
     def newton(x, cycle, limit):
         history, iterations = [], 0
         for _ in range(limit + 1):
             residual_vector = cycle.end_state - x
             residual = _scaled(residual_vector, scale)
             history.append(residual)
+            report(f"Newton on the cycle: iteration {iterations}, residual {residual:.0e} "
+                   f"(target {tolerance:.0e})", iterations, limit)
             if residual < tolerance:
                 return True, x, cycle, iterations, history
             if iterations == limit:
@@ -319,6 +328,8 @@ def find_periodic_orbit(advance_cycle: Callable[[np.ndarray], CycleData], initia
         x, cycle = start, start_cycle
         chunks = 0
         while transient_cycles < fallback_cycles:
+            report("no Newton convergence: following the transient",
+                   transient_cycles, fallback_cycles)
             x = cycle.end_state
             try:
                 if transient is not None:

@@ -828,9 +828,15 @@ def power_on_state(circuit: Circuit) -> np.ndarray:
     Returns
     -------
     ndarray, shape (n,)
-        Zero state (the bus is switched on at t = 0) [state units].
+        Zero state (the bus is switched on at t = 0), except the states the
+        circuit starts elsewhere (``parameters["initial_state"]``: with the
+        bulk-capacitor bus, the line at its crest and the bulk capacitor
+        charged to it) [state units].
     """
-    return np.zeros(circuit.n_states)
+    x = np.zeros(circuit.n_states)
+    for name, value in circuit.parameters.get("initial_state", {}).items():
+        x[circuit.state_index(name)] = value
+    return x
 
 
 def dc_initial_state(circuit: Circuit, from_dc_point: bool = False):
@@ -855,16 +861,24 @@ def dc_initial_state(circuit: Circuit, from_dc_point: bool = False):
     EngineError
         If no consistent DC point is found in 50 iterations.
     """
+    x = power_on_state(circuit)
     if not from_dc_point:
-        return power_on_state(circuit)
-    code = settle_topology(circuit, np.zeros(circuit.n_states), 0)
-    x = np.zeros(circuit.n_states)
+        return x
+    # states held at their power-on values (the line and the bulk capacitor):
+    # the equilibrium of the others with these as inputs
+    held = np.zeros(circuit.n_states, dtype=bool)
+    for name in circuit.parameters.get("held_states", ()):
+        held[circuit.state_index(name)] = True
+    free = ~held
+    code = settle_topology(circuit, x, 0)
     for _ in range(50):
         topology = circuit.topology(code)
+        a = topology.A[np.ix_(free, free)]
+        rhs = -(topology.b[free] + topology.A[np.ix_(free, held)] @ x[held])
         try:
-            x = np.linalg.solve(topology.A, -topology.b)
+            x[free] = np.linalg.solve(a, rhs)
         except np.linalg.LinAlgError:
-            x, *_ = np.linalg.lstsq(topology.A, -topology.b, rcond=None)
+            x[free] = np.linalg.lstsq(a, rhs, rcond=None)[0]
         values = topology.guard_gradients @ x + topology.guard_offsets
         violated = values < -topology.guard_tolerances
         if not violated.any():

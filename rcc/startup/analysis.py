@@ -24,6 +24,9 @@ from rcc.startup.dcpoint import CircuitValues, DcPoint, circuit_values, solve_dc
 from rcc.startup.poles import (PoleResult, holding_element, network_poles,
                                small_signal_parameters)
 from rcc.startup.network import compiled, evaluate
+from rcc.startup.start_line import (REGULATED_KINDS, StartLineSearch,
+                                    reaches_operating_point, run_into_load,
+                                    search_start_line)
 
 __all__ = [
     "DcSummary",
@@ -565,11 +568,14 @@ class StartupReport:
         Design title.
     result : StartupResult
         Verdict at the lowest bus voltage, worst corner.
-    min_start_bus_voltage : float or None
-        Start-up threshold at the worst corner [V]; ``None`` if it does not
-        start even at the highest bus.
-    min_start_line_voltage : float or None
-        The same as RMS line voltage (AC input), else ``None`` [V].
+    oscillation_bus_voltage : float or None
+        Small-signal threshold of oscillation: the lowest bus at which the
+        power-on DC point is unstable at every corner; below it the supply
+        cannot even begin to oscillate.  ``None`` if some corner does not
+        oscillate even at the highest bus [V].
+    oscillation_line_voltage : float or None
+        The same as RMS line voltage at the rectified peak (AC input), else
+        ``None`` [V].
     start_time : StartTime or None
         At the lowest line, worst corner; ``None`` if it does not start.
     drive : DriveCycle or None
@@ -577,16 +583,28 @@ class StartupReport:
         if it does not start or the output voltage target is missing.
     is_ac : bool
         AC (mains) input.
+    into_load : PowerOnRun or None
+        The engine from power-on at the lowest line, coldest, ``hfe_min``,
+        full load; ``None`` where the engine was not run.
+    start_line : StartLineSearch or None
+        The lowest line at which the supply starts into its full load, by the
+        engine (:func:`rcc.startup.start_line.search_start_line`); ``None``
+        where the engine was not run.
+    output_tolerance : float
+        ``limits.output_tolerance``: the output shortfall allowed for
+        "reaches its operating point" [1].
     """
 
     title: str
     result: StartupResult
-    min_start_bus_voltage: float | None
-    min_start_line_voltage: float | None
+    oscillation_bus_voltage: float | None
+    oscillation_line_voltage: float | None
     start_time: StartTime | None
     drive: DriveCycle | None
     is_ac: bool
     into_load: object | None = None
+    start_line: StartLineSearch | None = None
+    output_tolerance: float = 0.05
 
     @property
     def oscillation_begins(self) -> bool:
@@ -595,12 +613,17 @@ class StartupReport:
 
     @property
     def reaches_operating_point(self) -> bool | None:
-        """From power-on at the worst corner and full load the engine reaches a
-        regulated operating point (regular switching or bursts near the
-        expected output); ``None`` where it was not run [-]."""
+        """From power-on at the worst corner and full load the engine reaches
+        its operating point: it switches (regular, bursts, irregular) with the
+        output within ``output_tolerance`` below the expected output
+        (:func:`rcc.startup.start_line.reaches_operating_point`); ``None``
+        where it was not run or the engine failed [-]."""
         if self.into_load is None:
+            if self.start_line is not None:
+                # the engine was asked for but had no bus at the lowest line
+                return False
             return None if self.result.starts else False
-        return self.into_load.kind in ("regular", "burst", "irregular")
+        return reaches_operating_point(self.into_load, self.output_tolerance)
 
     @property
     def starts(self) -> bool:
@@ -608,10 +631,35 @@ class StartupReport:
         reaches = self.reaches_operating_point
         return self.oscillation_begins and reaches is not False
 
+    @property
+    def min_start_basis(self) -> str:
+        """``"engine"`` where the lowest start line was searched with the
+        engine from power-on, else ``"small-signal-bound"``: only the
+        threshold of oscillation is known, a lower bound of the start line."""
+        return "engine" if self.start_line is not None else "small-signal-bound"
+
+    @property
+    def min_start_bus_voltage(self) -> float | None:
+        """Bus of the lowest line at which the supply starts into its full
+        load (engine search); ``None`` where it was not searched or no line of
+        the design starts [V]."""
+        return None if self.start_line is None else self.start_line.bus_voltage
+
+    @property
+    def min_start_line_voltage(self) -> float | None:
+        """Lowest RMS line at which the supply starts into its full load
+        (engine search, AC input); ``None`` for DC input (see
+        :attr:`min_start_bus_voltage`), where not searched, or where no line
+        of the design starts [V]."""
+        if self.start_line is None or not self.is_ac:
+            return None
+        return self.start_line.line_voltage
+
     def to_json(self) -> dict:
         """The ``startup`` object of the JSON report (no NaN or infinity)."""
         r = self.result
         run = self.into_load
+        search = self.start_line
         return {
             "starts": self.starts,
             "oscillation_begins": self.oscillation_begins,
@@ -632,8 +680,15 @@ class StartupReport:
             },
             "growth_rate_per_s": _number(r.growth_rate),
             "growth_frequency_hz": _number(r.growth_frequency),
+            "ac_input": self.is_ac,
+            "min_start_basis": self.min_start_basis,
             "min_start_bus_v": _number(self.min_start_bus_voltage),
             "min_start_line_v": _number(self.min_start_line_voltage),
+            "min_start_line_resolution_v": None if search is None
+            else _number(search.resolution),
+            "min_start_search": None if search is None else search.to_json(),
+            "min_oscillation_bus_v": _number(self.oscillation_bus_voltage),
+            "min_oscillation_line_v": _number(self.oscillation_line_voltage),
             "start_time_s": None if self.start_time is None else _number(self.start_time.total),
             "holding_element": r.holding_element,
             "dc_point": {
@@ -655,7 +710,10 @@ def startup_report(design, engine: bool = False) -> StartupReport:
     design : rcc.design.Design
     engine : bool
         Also run the time-domain engine from power-on at the worst corner and
-        full load (start-up into the load; seconds of CPU) [-].
+        full load: at the lowest line (does it start into its load?) and at a
+        few more lines for the lowest line at which it does
+        (:func:`rcc.startup.start_line.search_start_line`); seconds of CPU
+        per run [-].
 
     Returns
     -------
@@ -671,30 +729,20 @@ def startup_report(design, engine: bool = False) -> StartupReport:
         start_time = None if any(t is None for t in times) else max(
             times, key=lambda t: t.total)
         drive = drive_cycle(design)
-    into_load = _into_load(design) if (result.starts and engine) else None
+    into_load = search = None
+    if engine:
+        from rcc.engine.power_on import power_on_bus_voltage
+
+        if result.starts and power_on_bus_voltage(
+                design, design.input.line_voltages[0], design.output.load_max,
+                design.environment.temperature_min) > 0:
+            into_load = run_into_load(design)
+        # else the bulk capacitor cannot carry the full load at the lowest line:
+        # no bus for the engine there (reaches_operating_point is False)
+        search = search_start_line(design, threshold, first_run=into_load)
     return StartupReport(design.title, result, threshold, line, start_time, drive,
-                         design.input.is_ac, into_load)
-
-
-#: Longest engine run from power-on for the start-up-into-load verdict [s].
-INTO_LOAD_DURATION = 0.06
-
-
-def _into_load(design):
-    """The engine from power-on at the worst start-up corner, full load.
-
-    Lowest line, coldest temperature, ``hfe_min``, the heaviest load: the
-    supply must not only begin to oscillate there but reach its operating
-    point (:func:`rcc.engine.power_on.run_from_power_on`, at most
-    :data:`INTO_LOAD_DURATION`).
-    """
-    from rcc.engine.power_on import run_from_power_on
-
-    return run_from_power_on(design, float(design.input.line_voltages[0]),
-                             design.output.load_max,
-                             temperature=design.environment.temperature_min,
-                             hfe=design.switch.hfe_min,
-                             max_duration=INTO_LOAD_DURATION)
+                         design.input.is_ac, into_load, search,
+                         design.limits.output_tolerance)
 
 
 _ADVICE = {
@@ -710,6 +758,28 @@ _ADVICE = {
     "feedback-phase": "Swap the two connections of the feedback winding so that it is "
                       "regenerative.",
 }
+
+
+def _start_line_sentence(design, report: StartupReport) -> str:
+    """What the engine's start-line search found, in one sentence."""
+    search = report.start_line
+    if search is None:
+        return ""
+    unit = "V RMS line" if design.input.is_ac else "V input"
+    if search.line_voltage is None:
+        if search.note:
+            return f"The search for the lowest start line stopped: {search.note}."
+        if search.failing_basis == "small-signal":
+            return ("It starts into its full load at no line of the design: at some "
+                    "corner the power-on DC point is stable at every line.")
+        return (f"It starts into its full load at no line of the design (engine from "
+                f"power-on up to {search.failing_line_voltage:.4g} {unit}).")
+    text = (f"From power-on it starts into its full load from {search.line_voltage:.4g} "
+            f"{unit}")
+    if search.resolution is not None:
+        text += (f" (engine bisection: not at {search.failing_line_voltage:.4g} "
+                 f"{unit}, resolution {search.resolution:.3g} V)")
+    return text + "."
 
 
 def startup_findings(design, report: StartupReport) -> list[Finding]:
@@ -753,10 +823,19 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
                 advice=_ADVICE["limiter"]))
         else:
             bound = "upper"  # the lowest bus that starts must not exceed the lowest bus
-            if report.min_start_bus_voltage is not None:
-                value, limit, unit = report.min_start_bus_voltage, r.bus_voltage, "V"
-                extra = (f" It starts only above {report.min_start_bus_voltage:.4g} V "
-                         f"bus.")
+            search = report.start_line
+            if search is not None and search.line_voltage is not None:
+                # the engine's start line against the design's lowest line
+                value, limit, unit = (search.line_voltage,
+                                      float(design.input.line_voltages[0]), "V")
+                extra = " " + _start_line_sentence(design, report)
+            elif report.oscillation_bus_voltage is not None:
+                value, limit, unit = report.oscillation_bus_voltage, r.bus_voltage, "V"
+                extra = (f" Oscillation can begin only above "
+                         f"{report.oscillation_bus_voltage:.4g} V bus (small-signal "
+                         f"threshold).")
+                if search is not None:
+                    extra += " " + _start_line_sentence(design, report)
             else:
                 value, limit, unit, bound = r.growth_rate, 0.0, "1/s", "lower"
                 extra = " It does not start at any bus voltage of the design."
@@ -771,15 +850,44 @@ def startup_findings(design, report: StartupReport) -> list[Finding]:
                 advice=_ADVICE[element]))
         return findings
     run = report.into_load
-    if run is not None and not report.reaches_operating_point:
+    if run is None and report.start_line is not None:
+        line = float(design.input.line_voltages[0])
+        findings.append(Finding(
+            "startup-lockup", "fail",
+            f"The power-on DC point is unstable, but at the lowest line ({line:.4g} V) the "
+            f"bulk capacitor cannot carry the full load ({design.output.load_max.text()}): "
+            f"by the hold-up estimate its valley falls to zero, so the supply cannot reach "
+            f"its operating point there. " + _start_line_sentence(design, report),
+            value=None, limit=None, unit="",
+            advice="Enlarge the bulk capacitor or reduce load_max; raise the lowest line "
+                   "only if the specification allows."))
+    elif run is not None and run.kind == "failed":
+        findings.append(Finding(
+            "startup-unverified", "warn",
+            f"The power-on DC point is unstable, but whether the supply starts into its "
+            f"full load is not known: the time-domain engine from power-on at "
+            f"{run.line_voltage:.4g} V line stopped ({run.message}).",
+            value=None, limit=None, unit="",
+            advice="Check the start-up into the load with `rcc waveforms --line "
+                   f"{run.line_voltage:.4g}V --load 100% --temperature "
+                   f"{run.temperature - 273.15:.3g}degC --hfe min`."))
+    elif run is not None and report.reaches_operating_point is False:
+        if run.kind in REGULATED_KINDS:
+            how = (f"it switches ('{run.kind}') but its output stays at "
+                   f"{run.output_voltage:.3g} V, below {1 - report.output_tolerance:.0%} of "
+                   f"the expected {run.expected_output:.3g} V, at the end of the "
+                   f"{run.duration * 1e3:.3g} ms run (still rising, or the current limit "
+                   f"caps the power at this corner)")
+        else:
+            how = (f"'{run.kind}', output {run.output_voltage:.3g} V of the expected "
+                   f"{run.expected_output:.3g} V")
         findings.append(Finding(
             "startup-lockup", "fail",
             f"The power-on DC point is unstable, but from power-on at "
             f"{run.line_voltage:.4g} V line ({run.bus_voltage:.4g} V bus), "
             f"{run.temperature - 273.15:.3g} degC, hFE(25 degC) {run.hfe:.3g} and full load "
             f"({run.load.text()}) the time-domain engine does not reach the operating "
-            f"point: '{run.kind}', output {run.output_voltage:.3g} V of the expected "
-            f"{run.expected_output:.3g} V.",
+            f"point: {how}. " + _start_line_sentence(design, report),
             value=run.output_voltage, limit=run.expected_output, unit="V", bound="lower",
             advice="Let the flyback plateau reset the drive capacitor at a low output: "
                    "a smaller drive capacitor, a lower start-up resistor or a "
