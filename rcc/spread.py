@@ -35,7 +35,6 @@ from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
-from scipy.special import ndtri
 
 from rcc.design import Design
 from rcc.margins import QUANTITIES, Evaluation, evaluate, quantity_limits
@@ -89,6 +88,8 @@ def wilson_interval(successes, trials, confidence: float = 0.95):
     """
     successes = np.asarray(successes, dtype=float)
     trials = np.asarray(trials, dtype=float)
+    from scipy.special import ndtri
+
     z = float(ndtri(0.5 + 0.5 * confidence))
     p = successes / trials
     denominator = 1.0 + z * z / trials

@@ -29,7 +29,6 @@ from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
-from scipy.special import ndtr, ndtri
 
 from rcc.schema import (SECTIONS, TOLERANCE_EXCLUDED_SECTIONS, TOLERANCE_FIELDS,
                         TOLERANCE_SECTION, keys_of)
@@ -116,6 +115,8 @@ class Tolerance:
         uniform = np.asarray(uniform, dtype=float)
         if self.distribution == "uniform":
             return self.low + uniform * (self.high - self.low)
+        from scipy.special import ndtr, ndtri
+
         edge = float(ndtr(-TRUNCATION_SIGMA))
         z = ndtri(edge + uniform * (1.0 - 2.0 * edge))
         unit_offset = z / TRUNCATION_SIGMA          # in [-1, 1]

@@ -9,6 +9,14 @@ vocabulary of the file.
 
 Temperatures are kept in kelvin inside the package and shown in degrees
 Celsius; everything else is kept in SI base units.
+
+The units design files use nearly always (an SI prefix on V, A, ohm, F, H, s,
+Hz, T or W; mm^2, degC, K, mV/K, %/K) are read from a small table instead:
+importing pint and building its registry costs about half a second per
+process, more than a whole check spends on everything but the models.  The
+table gives the same value pint gives, to the last bit
+(``tests/test_units.py`` checks every entry against pint); any other unit, and
+every error message, still goes through pint.
 """
 
 from __future__ import annotations
@@ -17,8 +25,6 @@ import math
 import re
 from dataclasses import dataclass
 from functools import lru_cache
-
-from scipy.constants import zero_Celsius
 
 __all__ = [
     "DIMENSIONS",
@@ -84,6 +90,44 @@ def _registry():
 
     registry = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
     return registry
+
+
+#: SI prefixes the table accepts (``u`` for micro after normalisation).
+_TABLE_PREFIXES = {"P": 1e15, "T": 1e12, "G": 1e9, "M": 1e6, "k": 1e3, "": 1.0,
+                   "m": 1e-3, "u": 1e-6, "n": 1e-9, "p": 1e-12, "f": 1e-15}
+
+
+@lru_cache(maxsize=1)
+def unit_table() -> dict[str, tuple[str, float, float]]:
+    """Units read without pint: ``{unit text: (dimension, factor, offset)}``.
+
+    Returns
+    -------
+    dict
+        The value in SI base units is ``number * factor + offset``
+        [SI base units]; the dimension is a key of :data:`DIMENSIONS`.
+        Every entry converts exactly as pint does (tested).
+    """
+    from scipy.constants import zero_Celsius
+
+    table = {}
+    for symbol, dimension in (("V", "voltage"), ("A", "current"), ("ohm", "resistance"),
+                              ("F", "capacitance"), ("H", "inductance"), ("s", "time"),
+                              ("Hz", "frequency"), ("T", "flux density"), ("W", "power")):
+        for prefix, factor in _TABLE_PREFIXES.items():
+            table[prefix + symbol] = (dimension, factor, 0.0)
+    for prefix in ("", "m", "u"):
+        table[prefix + "V/K"] = ("voltage per kelvin", _TABLE_PREFIXES[prefix], 0.0)
+    table.update({
+        "m^2": ("area", 1.0, 0.0),
+        "mm^2": ("area", 1e-6, 0.0),
+        "K": ("temperature", 1.0, 0.0),
+        "degC": ("temperature", 1.0, zero_Celsius),
+        "1/K": ("fraction per kelvin", 1.0, 0.0),
+        "%/K": ("fraction per kelvin", 1e-2, 0.0),
+        "%": ("dimensionless", 1e-2, 0.0),
+    })
+    return table
 
 
 def _normalise_unit_text(text: str) -> str:
@@ -153,6 +197,13 @@ def parse_quantity(value, dimension: str) -> float:
             + f" (cannot read the number in {value!r})")
     if not unit_text:
         return number
+    known = unit_table().get(unit_text)
+    if known is not None and known[0] == expected.name:
+        _, factor, offset = known
+        result = number * factor + offset if offset else number * factor
+        if not math.isfinite(result):
+            raise UnitError(f"expected a finite {what}, got {value!r}")
+        return result
     registry = _registry()
     try:
         quantity = registry.Quantity(number, unit_text)
@@ -211,6 +262,8 @@ def celsius_to_kelvin(temperature_celsius):
     float or ndarray
         Temperature [K] (``scipy.constants.zero_Celsius`` offset).
     """
+    from scipy.constants import zero_Celsius
+
     return temperature_celsius + zero_Celsius
 
 
@@ -227,6 +280,8 @@ def kelvin_to_celsius(temperature_kelvin):
     float or ndarray
         Temperature [degC] (``scipy.constants.zero_Celsius`` offset).
     """
+    from scipy.constants import zero_Celsius
+
     return temperature_kelvin - zero_Celsius
 
 
@@ -294,7 +349,7 @@ def format_quantity(value: float, dimension: str, digits: int = 3) -> str:
         units with an SI prefix (:func:`format_si`); dimensionless numbers plain.
     """
     if dimension == "temperature":
-        return f"{value - zero_Celsius:.{digits}g} degC"
+        return f"{kelvin_to_celsius(value):.{digits}g} degC"
     if dimension == "area":  # a prefix would apply to the metre, not the square metre
         return f"{value * 1e6:.{digits}g} mm^2"
     if dimension == "fraction per kelvin":

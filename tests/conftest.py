@@ -8,6 +8,7 @@ break exactly one thing and check the one line reported about it.
 from __future__ import annotations
 
 import copy
+import functools
 import tomllib
 from pathlib import Path
 
@@ -115,7 +116,8 @@ def write_design(tmp_path):
     return write
 
 
-def regulating_designs() -> dict:
+@functools.lru_cache(maxsize=1)
+def _regulating_designs() -> dict:
     """Worked cases whose steady state is a regulated supply: at the lowest
     line and nominal load the cycle model runs (boundary conduction or a dead time
     after demagnetization, no lock-up or burst) and the regulation path ends
@@ -135,3 +137,119 @@ def regulating_designs() -> dict:
             selected[path.stem] = design
     assert "standby_12v_universal" in selected
     return selected
+
+
+def regulating_designs() -> dict:
+    """Worked cases whose steady state is a regulated supply (computed once per
+    process; see :func:`_regulating_designs`), as a new dict."""
+    return dict(_regulating_designs())
+
+
+# ------------------------------------------------------- shared results
+# Several tests assert on the same expensive result: the full check of a worked
+# case (the cycle model on 63 points and the start-up analysis, up to a minute of
+# CPU on the fault cases) is asserted on by tests/test_checks.py (the check
+# command), tests/test_findings.py and tests/test_worked_cases.py.  Each is
+# computed once per test process and shared; every caller gets its own deep copy,
+# so no test can change what another sees.  The functions are pure (same design
+# in, same report out), so a shared result is the result each test would compute.
+# Tests that check determinism or worker independence (tests/test_spread.py) do
+# not use this.  Under pytest-xdist the files that share results run on one
+# worker (``SHARED_GROUPS`` below), so they still compute each result once.
+
+_SHARED: dict = {}
+_ORIGINALS: dict = {}
+
+
+def _original(module_name: str, name: str):
+    """The library function before any test replaced it."""
+    import importlib
+
+    key = (module_name, name)
+    if key not in _ORIGINALS:
+        _ORIGINALS[key] = getattr(importlib.import_module(module_name), name)
+    return _ORIGINALS[key]
+
+
+def _shared_call(function, *args, **keywords):
+    key = (function.__module__, function.__qualname__, args, tuple(sorted(keywords.items())))
+    try:
+        if key not in _SHARED:
+            _SHARED[key] = function(*args, **keywords)
+    except TypeError:  # an unhashable argument: nothing to share
+        return function(*args, **keywords)
+    return copy.deepcopy(_SHARED[key])
+
+
+def shared_check_design(design):
+    """:func:`rcc.checks.check_design`, computed once per design and process."""
+    return _shared_call(_original("rcc.checks", "check_design"), design)
+
+
+def _full_check_sharing_its_parts(design, startup_engine: bool = False):
+    # the full check with its cycle-model part shared with shared_check_design
+    import rcc.analysis
+
+    saved = rcc.analysis.check_design
+    rcc.analysis.check_design = shared_check_design
+    try:
+        return _original("rcc.analysis", "full_check")(design, startup_engine=startup_engine,
+                                                       progress=_PROGRESS.get("now"))
+    finally:
+        rcc.analysis.check_design = saved
+
+
+_PROGRESS: dict = {}
+
+
+def shared_full_check(design, startup_engine: bool = False, progress=None):
+    """:func:`rcc.analysis.full_check`, computed once per design and process
+    (``progress`` is called only when it is computed)."""
+    _PROGRESS["now"] = progress
+    try:
+        return _shared_call(_full_check_sharing_its_parts, design, startup_engine=startup_engine)
+    finally:
+        _PROGRESS.pop("now", None)
+
+
+@pytest.fixture
+def shared_results(monkeypatch):
+    """Let the commands a test runs (``rcc check``) use the shared full check."""
+    import rcc.analysis
+    import rcc.checks
+
+    _original("rcc.checks", "check_design")
+    _original("rcc.analysis", "full_check")
+    monkeypatch.setattr(rcc.checks, "check_design", shared_check_design)
+    monkeypatch.setattr(rcc.analysis, "check_design", shared_check_design)
+    monkeypatch.setattr(rcc.analysis, "full_check", shared_full_check)
+
+
+#: Test files that share results run on the same pytest-xdist worker.
+SHARED_GROUPS = {"test_checks": "worked-case checks", "test_findings": "worked-case checks",
+                 "test_worked_cases": "worked-case checks"}
+
+
+def _uses_a_shared_fixture(item) -> bool:
+    """Whether the test uses a fixture of the test suite (not of a plugin) that
+    is computed once for several tests (module, class, package or session scope)."""
+    info = getattr(item, "_fixtureinfo", None)
+    definitions = info.name2fixturedefs.values() if info is not None else ()
+    return any(d.scope != "function" and d.baseid for defs in definitions for d in defs)
+
+
+@pytest.hookimpl(tryfirst=True)
+def pytest_collection_modifyitems(config, items):
+    """How ``--dist loadgroup`` (with ``-n``) shares the tests out: the files of
+    :data:`SHARED_GROUPS` on one worker; a test that uses a fixture computed once
+    for its file (module scope) with the rest of its file, so the fixture is
+    computed once; every other test on its own, so a long file of independent
+    tests (the hypothesis properties) spreads over the workers."""
+    for item in items:
+        if item.get_closest_marker("xdist_group") is not None:
+            continue
+        stem = item.path.stem
+        if stem in SHARED_GROUPS:
+            item.add_marker(pytest.mark.xdist_group(SHARED_GROUPS[stem]))
+        elif _uses_a_shared_fixture(item):
+            item.add_marker(pytest.mark.xdist_group(stem))

@@ -19,6 +19,8 @@ from rcc import load_design
 from rcc.checks import STORAGE_PERIOD_FRACTION, check_design
 from rcc.cli import app
 
+from conftest import shared_check_design
+
 ROOT = Path(__file__).resolve().parent.parent
 STANDBY = ROOT / "worked_cases" / "standby_12v_universal.toml"
 AUX = ROOT / "worked_cases" / "aux_5v_48v_dc.toml"
@@ -35,7 +37,7 @@ def standby():
 
 @pytest.fixture(scope="module")
 def standby_report(standby):
-    return check_design(standby)
+    return shared_check_design(standby)  # conftest: shared with the check command
 
 
 def codes(report):
@@ -61,7 +63,7 @@ def test_vceo_exceeded_within_vcev_is_reported(standby_report):
 
 def test_switch_overvoltage_fires_on_the_substitute(standby):
     substitute = load_design(LEGACY)
-    report = check_design(substitute)
+    report = shared_check_design(substitute)  # conftest: shared with the check command
     finding = codes(report)["switch-overvoltage"]
     assert finding.severity == "fail"
     assert report.stress.rating_basis == "vceo"
@@ -175,7 +177,7 @@ def test_report_json_has_the_documented_keys(standby_report):
 
 # --------------------------------------------------------------- CLI
 @pytest.mark.parametrize("path", WORKED, ids=lambda p: p.stem)
-def test_check_runs_on_every_worked_case(path):
+def test_check_runs_on_every_worked_case(path, shared_results):
     # no engine runs at the doubtful points here (tests/test_check_engine_points.py)
     result = runner.invoke(app, ["check", str(path), "--json", "--engine-budget", "0s"])
     assert result.exit_code in (0, 1), result.output
@@ -185,7 +187,7 @@ def test_check_runs_on_every_worked_case(path):
     json.dumps(data, allow_nan=False)
 
 
-def test_check_text_report_carries_the_caution():
+def test_check_text_report_carries_the_caution(shared_results):
     result = runner.invoke(app, ["check", str(STANDBY)])
     text = " ".join(result.stdout.split())
     assert "lethal voltages" in text and "not a safety evaluation" in text
@@ -197,7 +199,7 @@ def test_check_text_report_carries_the_caution():
     assert "[FAIL] core-saturation" in result.stdout and "from power-on" in text
 
 
-def test_check_exit_1_on_fail():
+def test_check_exit_1_on_fail(shared_results):
     result = runner.invoke(app, ["check", str(LEGACY), "--engine-budget", "0s"])
     assert result.exit_code == 1
     assert "[FAIL] switch-overvoltage" in result.stdout

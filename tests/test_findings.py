@@ -6,10 +6,11 @@ from __future__ import annotations
 
 import pytest
 
-from rcc.analysis import full_check
 from rcc.design import load_design
 from rcc.findings import NOT_STARTING, Finding, ordered_findings
 from rcc.report import format_check_report
+
+from conftest import shared_full_check
 
 
 def test_margin_sign_follows_the_bound():
@@ -43,7 +44,7 @@ def test_cause_first_and_the_rest_marked():
 def reports(request):
     from conftest import WORKED_CASES
 
-    return {path.stem: full_check(load_design(path))
+    return {path.stem: shared_full_check(load_design(path))
             for path in sorted(WORKED_CASES.glob("*.toml"))}
 
 
@@ -128,7 +129,7 @@ def test_engine_startup_stress_on_the_standby_case():
 
     design = load_design(WORKED_CASES / "standby_12v_universal.toml")
     peaks = startup_stress(design, 0.7e-3)
-    steady = full_check(design).stress
+    steady = shared_full_check(design).stress
     assert peaks.primary_peak_a > steady.worst_peak_current_a
     assert peaks.core_peak_flux_t > steady.core_peak_flux_t
     assert 0 < peaks.magnetizing_peak_a <= peaks.primary_peak_a * 1.05

@@ -184,3 +184,49 @@ def test_prefix_scaling_property(number, prefix, unit, space):
     text = f"{number!r}{space}{prefix}{unit}"
     assert parse_quantity(text, UNITS[unit]) == pytest.approx(
         number * PREFIXES[prefix], rel=1e-12, abs=1e-300)
+
+
+# ------------------------------------------ the unit table against pint
+def _through_pint(number: float, unit_text: str, dimension: str) -> float:
+    from rcc.units import _registry
+
+    registry = _registry()
+    return float(registry.Quantity(number, unit_text).to(
+        registry.Unit(DIMENSIONS[dimension].pint_unit)).magnitude)
+
+
+#: Numbers as design files write them, and a spread of magnitudes and signs.
+TABLE_NUMBERS = ([0.0, -0.0, 1.0, -1.0, 0.1, 0.3, 0.6, 4.7, 19.3, 22.0, 47.0, 85.0, 150.0,
+                  230.0, 265.0, 470.0, 680.0, 1e-3, 2.5e2, 1e6, -10.0, -40.0, 1 / 3]
+                 + [float(f"{x:.{d}g}") for d in (2, 3, 6, 17)
+                    for x in np.random.default_rng(11).uniform(-1e3, 1e3, 60)])
+
+
+@pytest.mark.parametrize("unit_text", sorted(__import__("rcc.units").units.unit_table()))
+def test_unit_table_gives_what_pint_gives(unit_text):
+    # the table read without pint must be exactly pint's conversion, to the last
+    # bit, and in the same dimension; pint is the reference (its definitions file)
+    from rcc.units import unit_table
+
+    dimension, _, _ = unit_table()[unit_text]
+    for number in TABLE_NUMBERS:
+        expected = _through_pint(number, unit_text, dimension)
+        got = parse_quantity(f"{number!r} {unit_text}", dimension)
+        assert got == expected and math.copysign(1, got) == math.copysign(1, expected), (
+            number, unit_text, got, expected)
+
+
+def test_units_outside_the_table_still_go_through_pint():
+    # pint reads what the table does not hold; the table never widens or narrows
+    # what a design file may say
+    from rcc.units import unit_table
+
+    for text, dimension, expected in [("2 kV", "voltage", 2e3), ("3 cm^2", "area", 3e-4),
+                                      ("77 degF", "temperature", 298.15),
+                                      ("1 ms", "time", 1e-3), ("1 GHz", "frequency", 1e9)]:
+        unit = text.split(" ", 1)[1]
+        value = parse_quantity(text, dimension)
+        assert value == _through_pint(float(text.split()[0]), unit, dimension)
+        if expected is not None:
+            assert value == pytest.approx(expected, rel=1e-12)
+    assert "cm^2" not in unit_table() and "degF" not in unit_table()

@@ -10,8 +10,9 @@ from pathlib import Path
 
 import pytest
 
-from rcc.analysis import full_check
 from rcc.design import load_design
+
+from conftest import shared_full_check
 
 ROOT = Path(__file__).resolve().parent.parent
 CASES = ROOT / "worked_cases"
@@ -39,7 +40,7 @@ def test_fault_case_comments_match_their_files(path):
     for section, key in differing:
         assert section in ("drive", "transformer", "limiter", "startup"), (section, key)
     held = re.search(r"Expected verdict: stalls, held by (?:the )?([a-z -]+?)\.", comment)
-    report = full_check(load_design(path))
+    report = shared_full_check(load_design(path))
     startup = report.extra["startup"]
     if held:
         assert not startup["starts"]
@@ -53,6 +54,6 @@ def test_readme_says_what_the_legacy_case_fails_on():
     line = next(line for line in readme.splitlines()
                 if line.startswith("- `worked_cases/legacy_24v_substitute.toml`"))
     named = set(re.findall(r"`([a-z-]+)`", line.split("fails it on")[1]))
-    report = full_check(load_design(CASES / "legacy_24v_substitute.toml"))
+    report = shared_full_check(load_design(CASES / "legacy_24v_substitute.toml"))
     failing = {f.code for f in report.findings if f.severity == "fail"}
     assert named == failing, (named, failing)

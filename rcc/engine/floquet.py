@@ -59,7 +59,6 @@ from typing import Callable
 
 import numpy as np
 from scipy.linalg import expm, null_space
-from scipy.optimize import brentq
 
 __all__ = [
     "CycleSegment",
@@ -545,6 +544,8 @@ class PiecewiseAffineSystem:
 
         Returns ``(time, guard)`` or ``(None, None)``.
         """
+        from scipy.optimize import brentq  # scipy.optimize is slow to import
+
         phi, gamma = self._step(mode)
         guards = self.modes[mode].guards
         x = np.asarray(state, dtype=float)

@@ -23,10 +23,10 @@ from rcc.mains import bus_voltage_range, rectified_peak
 from rcc.startup.dcpoint import CircuitValues, DcPoint, circuit_values, solve_dc_point
 from rcc.startup.poles import (PoleResult, holding_element, network_poles,
                                small_signal_parameters)
+from rcc.startup.network import compiled, evaluate
 from rcc.startup.start_line import (REGULATED_KINDS, StartLineSearch,
                                     reaches_operating_point, run_into_load,
                                     search_start_line)
-from rcc.startup.symbolic import compiled, evaluate
 
 __all__ = [
     "DcSummary",

@@ -14,7 +14,7 @@ import numpy as np
 
 from rcc.devices import thermal_voltage
 from rcc.startup.dcpoint import CircuitValues, DcPoint
-from rcc.startup.symbolic import PARAMETERS, compiled, evaluate
+from rcc.startup.network import PARAMETERS, compiled, evaluate
 
 __all__ = [
     "SmallSignal",

@@ -33,8 +33,12 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import lru_cache
 
-import numpy as np
 import sympy as sp
+
+# The numeric side (no sympy) lives in rcc.startup.network; re-exported here.
+from rcc.startup.network import (GENERATED_MODULE, PARAMETER_MEANINGS,  # noqa: F401
+                                 PARAMETERS, CompiledNetwork, _FUNCTIONS, compiled,
+                                 evaluate)
 
 __all__ = [
     "SYMBOLS",
@@ -50,32 +54,10 @@ __all__ = [
 s = sp.Symbol("s")
 
 #: Symbols of the small-signal network, in the argument order of the
-#: compiled functions, with their meaning and unit.
+#: compiled functions (:data:`PARAMETERS`), with their meaning and unit.
 SYMBOLS: dict[str, tuple[sp.Symbol, str]] = {
-    name: (sp.Symbol(name, real=True), text)
-    for name, text in (
-        ("L_m", "magnetizing inductance [H]"),
-        ("G_core", "core-loss conductance across the magnetizing inductance, 1/R_core [S]"),
-        ("L_lk", "primary leakage inductance [H]"),
-        ("R_p", "primary winding resistance, in series with the leakage [ohm]"),
-        ("C_w", "winding self-capacitance, collector node to ground [F]"),
-        ("C_mu", "switch collector-base capacitance (switch output capacitance) [F]"),
-        ("C_pi", "switch base-emitter capacitance, g_m/(2 pi f_T) - C_mu [F]"),
-        ("g_m", "switch transconductance dI_C/dV_BE at the DC point, about I_C/V_T [S]"),
-        ("g_pi", "switch input conductance dI_B/dV_BE, about g_m/h_FE [S]"),
-        ("G_e", "emitter conductance to ground: 1/R_s plus the limiter base branch [S]"),
-        ("G_st", "start-up conductance, 1/R_start (bus is AC ground) [S]"),
-        ("G_be", "base-emitter resistor conductance, 0 if absent [S]"),
-        ("G_d", "drive resistor conductance, 1/R_d [S]"),
-        ("C_d", "drive capacitor [F]"),
-        ("k", "signed feedback turns ratio sigma*N_f/N_p, sigma = +1 regenerative [1]"),
-        ("g_x", "limiter transfer conductance: current taken from the base per volt "
-                "at the emitter, g_m2*G_lb/(G_lb + g_pi2) [S]"),
-    )
+    name: (sp.Symbol(name, real=True), text) for name, text in PARAMETER_MEANINGS
 }
-
-#: Argument order of the compiled functions.
-PARAMETERS: tuple[str, ...] = tuple(SYMBOLS)
 
 #: Unknowns of the nodal equations, in column order.
 UNKNOWNS = ("v_m", "v_c", "v_b", "v_e", "v_d", "i_lk", "i_m")
@@ -235,37 +217,6 @@ def routh_first_column(degree: int):
     return a, [row[0] for row in rows]
 
 
-@dataclass(frozen=True)
-class CompiledNetwork:
-    """Numpy functions compiled from :func:`derive` (all broadcast).
-
-    Attributes
-    ----------
-    degree : int
-        Degree of the characteristic polynomial.
-    polynomial : callable
-        ``polynomial(*parameters) -> list`` of coefficients, highest first.
-    open_loop, loop_numerator : callable
-        The same for ``P_0`` and ``-g_m P_1``.
-    routh : callable
-        ``routh(a_n, ..., a_0) -> list`` of first-column entries.
-    """
-
-    degree: int
-    polynomial: object
-    open_loop: object
-    loop_numerator: object
-    routh: object
-
-
-#: Module holding the compiled functions, generated at build time by
-#: ``python -m rcc.startup.symbolic`` (a test checks that it matches a fresh
-#: derivation).
-GENERATED_MODULE = "rcc.startup._generated"
-
-_FUNCTIONS = ("polynomial", "open_loop", "loop_numerator", "routh")
-
-
 def _lambdified():
     derivation = derive()
     args = [SYMBOLS[name][0] for name in PARAMETERS]
@@ -314,54 +265,6 @@ def generate_module(path=None) -> str:
     target = Path(path) if path else Path(__file__).with_name("_generated.py")
     target.write_text(text, encoding="utf-8")
     return text
-
-
-@lru_cache(maxsize=1)
-def compiled(fresh: bool = False) -> "CompiledNetwork":
-    """The compiled numpy functions (memoized on first use).
-
-    Parameters
-    ----------
-    fresh : bool
-        Derive and lambdify now instead of loading the module generated at
-        build time (several seconds).
-
-    Returns
-    -------
-    CompiledNetwork
-    """
-    if not fresh:
-        try:
-            import importlib
-
-            module = importlib.import_module(GENERATED_MODULE)
-            return CompiledNetwork(module.DEGREE, *(getattr(module, f) for f in _FUNCTIONS))
-        except ImportError:  # pragma: no cover - only before the first build
-            pass
-    degree, table = _lambdified()
-    return CompiledNetwork(degree, *(sp.lambdify(args, exprs, "numpy", cse=True)
-                                     for args, exprs in (table[f] for f in _FUNCTIONS)))
-
-
-def evaluate(function, parameters: dict) -> np.ndarray:
-    """Call a compiled coefficient function on a dict of arrays.
-
-    Parameters
-    ----------
-    function : callable
-        One of the :class:`CompiledNetwork` functions.
-    parameters : dict
-        ``{name: array}`` for every name of :data:`PARAMETERS` [SI].
-
-    Returns
-    -------
-    ndarray, shape (n, degree + 1)
-        Coefficients, highest power first.
-    """
-    shape = np.broadcast_shapes(*(np.shape(parameters[n]) for n in PARAMETERS))
-    values = function(*(parameters[n] for n in PARAMETERS))
-    return np.stack([np.broadcast_to(np.asarray(v, dtype=float), shape) for v in values],
-                    axis=-1)
 
 
 def derivation_text(latex: bool = False) -> str:

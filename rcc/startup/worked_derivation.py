@@ -84,7 +84,7 @@ def worked_derivation(design, result) -> WorkedDerivation:
     """
     from rcc.startup.dcpoint import circuit_values, solve_dc_point
     from rcc.startup.poles import small_signal_parameters
-    from rcc.startup.symbolic import PARAMETERS, compiled, evaluate
+    from rcc.startup.network import PARAMETERS, compiled, evaluate
 
     circuit = circuit_values(design, result.bus_voltage, np.array([result.temperature]),
                              np.array([result.hfe]))
