@@ -1147,6 +1147,8 @@ def _bus_balance(design: Design, line, temperature, gain, load):
         side[index] = np.where(upper, -1, 1)
         done[index] = (np.abs(h_trial) <= tolerance[index]) \
             | (high[index] - low[index] <= tolerance[index])
+    # a bus not converged within the iteration caps: the point is unsettled
+    result["settled"] = result["settled"] & done
     return bus.reshape(shape), {key: _unflatten(value, shape, size)
                                 for key, value in result.items()}
 
