@@ -1746,7 +1746,9 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         frequency=frequency,
         on_time=np.where(running, t_on, 0.0),
         off_time=off_time,
-        duty=np.where(running & (period > 0), t_on / np.maximum(period, 1e-300), 0.0),
+        # (clipped: t_on/period rounds to 1 + 2e-16 where the off-time vanishes)
+        duty=np.where(running & (period > 0),
+                      np.minimum(t_on / np.maximum(period, 1e-300), 1.0), 0.0),
         peak_current=np.where(running, state["peak"], 0.0),
         start_current=np.where(running, state["start"], 0.0),
         turn_off_time=np.where(running, state["t_turn_off"], 0.0),
