@@ -43,6 +43,7 @@ from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_ga
 from rcc.stress import clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_voltage
 from rcc.limiter import (auxiliary_voltage, regulation_current, trip_current)
 from rcc.mains import bus_voltage
+from rcc.operation import LOCKUP_FRACTION
 from rcc.flyback import reflected_voltage
 
 __all__ = [
@@ -68,8 +69,9 @@ __all__ = [
 #: limiter on even at zero current; frequency, powers and times are averages
 #: and the peak current is that of the strongest pulse.  ``irregular``: the
 #: cycle states never repeat (averages over 24 cycles).  ``lockup``: from
-#: power-on the output stops far below its regulation level (values are those
-#: of the low state it sits in).  ``off``: the switch cannot turn on again
+#: power-on the output stops below ``rcc.operation.LOCKUP_FRACTION`` of its
+#: regulation level (a start-up barrier, or a load no cycle can carry; values
+#: are those of the low state it sits in).  ``off``: the switch cannot turn on again
 #: (see ``OperatingPoints.running``).
 MODES = ("dcm", "bcm", "ccm", "burst", "irregular", "lockup", "off")
 #: What ended the on-time.
@@ -1731,6 +1733,16 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     mode_names = np.where(bursting, "burst", mode_names)
     mode_names = np.where(state["pattern"] == 0, "irregular", mode_names)
     mode_names = np.where(state["lockup"], "lockup", mode_names)
+    # the rule every time-domain model uses (rcc.operation): an output held
+    # below LOCKUP_FRACTION of the level the design regulates to is a lock-up,
+    # whatever holds it there (a start-up barrier, or a load the cycles
+    # cannot carry at any output)
+    level = design.output.voltage_target
+    if level is None:
+        level = hold_output_voltage(design, temperature)
+    if level is not None:
+        mode_names = np.where(output < LOCKUP_FRACTION * np.asarray(level, dtype=float),
+                              "lockup", mode_names)
     mode_names = np.where(running, mode_names, "off")
     period = np.where(frequency > 0, 1.0 / np.maximum(frequency, 1e-300), 0.0)
     off_time = np.where(running, np.maximum(period - t_on, t_off), 0.0)
