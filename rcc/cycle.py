@@ -41,7 +41,8 @@ from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_ga
                           fall_time_charge_control, storage_time_rising_current,
                           thermal_voltage, turn_off_energy, zener_voltage)
 from rcc.stress import clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_voltage
-from rcc.limiter import (auxiliary_voltage, regulation_current, trip_current)
+from rcc.limiter import (LIMITER_REVERSE_GAIN, auxiliary_voltage, regulation_current,
+                         trip_current)
 from rcc.mains import bus_voltage
 from rcc.operation import LOCKUP_FRACTION
 from rcc.flyback import reflected_voltage
@@ -82,6 +83,9 @@ OFF_END = ("demagnetization", "drive-timing", "regulation-hold")
 _SCAN_POINTS = 8
 #: A junction reset path is taken as finished this close to its asymptote [V].
 _JUNCTION_END = 0.05
+#: Safeguarded Newton steps for the instant the loaded ring frees the base
+#: (quadratic convergence: well below 1e-12 of the swing)
+_RING_ITERATIONS = 12
 
 
 @dataclass(frozen=True)
@@ -750,14 +754,24 @@ class _Cycle:
         # ---- ring after demagnetization
         need = vc_demag - self.v_threshold
         ring_amplitude = self.nb * vr
-        ring_peak = self.nb * np.minimum(vr * self.ring_damping, self.bus)
+        free = self._ring_after_clamp(vc_demag, winding_plateau, vr)
+        ring_peak = self.nb * np.minimum(free * self.ring_damping, self.bus)
         ring_on = need <= ring_peak
         phase = np.arccos(np.clip(-need / ring_amplitude, -1.0, 1.0))
         t_ring = phase / self.omega
         # held past the ring's turn-on: the switch turns on at the release if
         # the decayed ring (or the start-up current) still lifts the base
         held = t_release > np.where(ring_on, t_ring, 0.0)
-        ring_left = ring_amplitude * self.ring_damping ** (2.0 * self.omega * t_release / np.pi)
+        # while the regulation path holds the limiter on, the limiter clamps
+        # the switch base (saturated on the positive swing, inverse mode on
+        # the negative one): the winding is loaded by R_b and R_cb in turn and
+        # the ring decays with zeta_hold = n_b^2 Z_0 (1/R_b + 1/R_cb) / 4 on
+        # top of the core loss
+        zeta_hold = 0.25 * self.nb**2 * self.ring_impedance * (
+            1.0 / self.design.drive.resistance + 1.0 / self._clamp_resistance())
+        ring_left = (self.nb * free
+                     * self.ring_damping ** (2.0 * self.omega * t_release / np.pi)
+                     * np.exp(-zeta_hold * self.omega * t_release))
         on_release = held & (need <= np.minimum(ring_left, ring_peak))
         # ---- waiting for the slow path (drive-capacitor timing)
         t_wait = self._reset_cross(vc_demag, 0.0, self.v_threshold)
@@ -774,14 +788,16 @@ class _Cycle:
             * self.ring_damping ** (phase / np.pi)
         residual = np.where(ccm, np.maximum(peak - vr * t_cross / self.lm, 0.0),
                             np.where(ring_turn, -ring_current, 0.0))
-        vc_after = np.where(t_release > t_wait, self._reset(vc_demag, 0.0, t_release),
+        vc_after = np.where((t_release > t_wait) | on_release,
+                            self._reset(vc_demag, 0.0, t_release),
                             self.v_threshold)
         vc_next = np.where(ccm, limit_plateau, np.where(ring_turn, vc_demag,
                                                        np.minimum(vc_after, vc_demag)))
         va_next = (self._aux_decay(va_plateau, t_after) if self.aux_state
                    else np.zeros_like(vr))
         mode = np.where(ccm, 2, np.where(ring_turn, 1, 0))
-        off_end = np.where(ccm | ring_turn, 0, np.where(held & (t_release >= t_wait), 2, 1))
+        off_end = np.where(ccm | ring_turn, 0,
+                           np.where(held & ((t_release >= t_wait) | on_release), 2, 1))
         period = t_on + t_off
         frequency = 1.0 / period
         # ---- energy per cycle
@@ -893,21 +909,93 @@ class _Cycle:
     # the drive capacitor (voltage v_C, winding side positive):
     #   1. base-emitter breakdown clamps the base at -VEBO: v_C relaxes
     #      towards w + VEBO through R_b (tau_fast = R_b C_b);
-    #   2. the limiter's collector-base junction conducts once the base is
-    #      below -V_d (V_d its junction drop), through R_lb from the sense
-    #      node at ground: v_C relaxes towards w + V_d (tau_cb = (R_b + R_lb) C_b);
+    #   2. the limiter conducts in inverse mode once the base is below -V_d
+    #      (V_d its junction drop): its base current I_B through R_lb from the
+    #      sense node at ground, plus the inverse transport current
+    #      beta_R I_B from its emitter (Ebers & Moll 1954), so the base node
+    #      sees R_lb / (1 + beta_R): v_C relaxes towards w + V_d with
+    #      tau_cb = R_cb C_b, R_cb = R_b + R_lb / (1 + beta_R);
     #   3. the slow path: base-emitter resistor and start-up current.
     # Breakdown (1) stops carrying current at v_C* = w + VEBO + R_b (VEBO -
-    # V_d)/R_lb, where path 2 alone holds the base at -VEBO; path 2 is taken
-    # as finished within _JUNCTION_END of its asymptote.
+    # V_d)(1 + beta_R)/R_lb, where path 2 alone holds the base at -VEBO;
+    # path 2 is taken as finished within _JUNCTION_END of its asymptote.
 
     def _reset_constants(self, winding):
         dr, lim, sw = self.design.drive, self.design.limiter, self.design.switch
         drop = self.vbe_limiter
+        inverse = 1.0 + LIMITER_REVERSE_GAIN
         knee = winding + sw.vebo + dr.resistance * np.maximum(sw.vebo - drop, 0.0) \
-            / lim.base_resistance
-        tau_cb = (dr.resistance + lim.base_resistance) * dr.capacitance
+            * inverse / lim.base_resistance
+        tau_cb = self._clamp_resistance() * dr.capacitance
         return drop, knee, tau_cb
+
+    def _clamp_resistance(self):
+        """Resistance of the inverse-mode limiter reset path, ``R_b + R_lb /
+        (1 + beta_R)`` [ohm]."""
+        return (self.design.drive.resistance
+                + self.design.limiter.base_resistance / (1.0 + LIMITER_REVERSE_GAIN))
+
+    def _ring_after_clamp(self, vc, winding, vr):
+        """Amplitude [V, primary] of the free ring once the base clamps let go.
+
+        At the end of demagnetization the drive-capacitor reset current
+        ``i = (v_C - v_j)/R`` (``v_j`` the clamp asymptote, ``R`` the inverse-mode
+        limiter path of :meth:`_clamp_resistance`) still flows through the limiter: the
+        feedback winding is loaded by ``R`` and the node sees the parallel
+        conductance ``G = n_b^2 / R``.  With ``x`` the fall of the collector
+        from its plateau, ``C x'' + G x' + x / L_m = V_R / L_m`` from
+        ``x = x' = 0``: a ring damped by ``zeta = G Z_0 / 2``.  The clamp lets
+        go where the winding has risen by ``v_C - v_j`` (``x_r = (v_C - v_j) /
+        n_b``); from there the ring is free, with amplitude
+        ``sqrt((x_r - V_R)^2 + (x'_r / omega_0)^2)`` about the bus.  If the
+        damped swing never reaches ``x_r`` the base stays clamped: amplitude 0
+        (the switch waits for the slow path).  With no reset current left the
+        amplitude is ``V_R``.  Parallel RLC step response: Nilsson & Riedel,
+        Electric Circuits, 10th ed., 2015, sec. 8.3.
+        """
+        drop, _, _ = self._reset_constants(winding)
+        junction = winding + drop
+        x_release = np.maximum(vc - junction, 0.0) / self.nb
+        clamped = x_release > 0.0
+        if not np.any(clamped):
+            return vr + 0.0 * vc
+        zeta = 0.5 * self.nb**2 / self._clamp_resistance() * self.ring_impedance
+        zeta = zeta + 0.0 * vc
+        # (the two real roots merge at zeta = 1: keep off it by 1e-7)
+        zeta = np.where(np.abs(zeta - 1.0) < 1e-7, 1.0 + 1e-7, zeta)
+        omega = self.omega + 0.0 * vc
+        root = np.sqrt(zeta.astype(complex) ** 2 - 1.0)
+        s1, s2 = omega * (-zeta + root), omega * (-zeta - root)
+        c1, c2 = -vr * s2 / (s2 - s1), vr * s1 / (s2 - s1)
+
+        def position(t):
+            return vr + np.real(c1 * np.exp(s1 * t) + c2 * np.exp(s2 * t))
+
+        def speed(t):
+            return np.real(c1 * s1 * np.exp(s1 * t) + c2 * s2 * np.exp(s2 * t))
+
+        # end of the first swing (underdamped: its peak; overdamped: 40 slow
+        # time constants, where x has reached V_R)
+        under = zeta < 1.0
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t_end = np.where(under, np.pi / (omega * np.sqrt(np.abs(1.0 - zeta**2))),
+                             40.0 / (omega * (zeta - np.sqrt(np.maximum(zeta**2 - 1.0, 0.0)))))
+        releases = clamped & (position(t_end) >= x_release)
+        # x rises monotonically over the first swing: Newton's method kept
+        # inside the bracket (bisection where a step leaves it)
+        low, high = np.zeros_like(t_end), t_end.copy()
+        # start from the undamped ring, x = V_R (1 - cos(omega t))
+        t_release = np.clip(np.arccos(np.clip(1.0 - x_release / vr, -1.0, 1.0)) / omega,
+                            0.0, t_end)
+        for _ in range(_RING_ITERATIONS):
+            gap = position(t_release) - x_release
+            low, high = np.where(gap < 0.0, t_release, low), np.where(gap < 0.0, high, t_release)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                step = t_release - gap / speed(t_release)
+            inside = (step >= low) & (step <= high)
+            t_release = np.where(inside, step, 0.5 * (low + high))
+        amplitude = np.hypot(x_release - vr, speed(t_release) / omega)
+        return np.where(~clamped, vr, np.where(releases, amplitude, 0.0))
 
     def _reset(self, vc, winding, duration):
         """Drive-capacitor voltage after ``duration`` with the winding at ``winding``."""
@@ -1731,7 +1819,9 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     mode_names = np.where(mixed, "dcm", mode_names)
     bursting = state["burst"] | state["hunting"] | (state["pattern"] > 1)
     mode_names = np.where(bursting, "burst", mode_names)
-    mode_names = np.where(state["pattern"] == 0, "irregular", mode_names)
+    # an irregular cycle inside a burst (the two regimes the output alternates
+    # between, or the hold at the top of the range) is still a burst
+    mode_names = np.where((state["pattern"] == 0) & ~state["burst"], "irregular", mode_names)
     mode_names = np.where(state["lockup"], "lockup", mode_names)
     # the rule every time-domain model uses (rcc.operation): an output held
     # below LOCKUP_FRACTION of the level the design regulates to is a lock-up,

@@ -13,6 +13,7 @@ import numpy as np
 from rcc.devices import base_emitter_voltage, zener_voltage
 
 __all__ = [
+    "LIMITER_REVERSE_GAIN",
     "current_limit",
     "feedback_winding_regulation_current",
     "optocoupler_regulation_current",
@@ -20,6 +21,14 @@ __all__ = [
     "trip_current",
     "auxiliary_voltage",
 ]
+
+#: Inverse (reverse-active) current gain of the limiter transistor, the value
+#: of the circuit definition (notes/circuit.md) shared by the engine and the
+#: cycle model: while the feedback winding pulls the switch base below ground
+#: the limiter conducts in inverse mode and the base node draws
+#: (1 + beta_R) times the limiter's base current (Ebers & Moll, Proc. IRE 42,
+#: 1954).  Small-signal NPN transistors have beta_R of about 0.5-5  # from memory
+LIMITER_REVERSE_GAIN = 1.0
 
 
 def _as(x):

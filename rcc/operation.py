@@ -100,6 +100,10 @@ class Operation:
     peak_current : float
         Mean of the per-cycle peak primary currents in the window; 0 when
         nothing switches in the window [A].
+    strongest_peak : float
+        Largest per-cycle peak primary current in the window (the stress a
+        burst or a lock-up puts on the switch); 0 when nothing switches in
+        the window [A].
     output_voltage : float
         Time-weighted mean output voltage over the window [V].
     burst_period : float
@@ -129,6 +133,7 @@ class Operation:
     kind: str
     frequency: float
     peak_current: float
+    strongest_peak: float
     output_voltage: float
     burst_period: float
     pulses_per_burst: float
@@ -144,7 +149,8 @@ class Operation:
         """JSON-ready dict (SI units; field names with unit suffixes)."""
         return {
             "kind": self.kind, "frequency_hz": self.frequency,
-            "peak_current_a": self.peak_current, "output_v": self.output_voltage,
+            "peak_current_a": self.peak_current, "strongest_peak_a": self.strongest_peak,
+            "output_v": self.output_voltage,
             "burst_period_s": self.burst_period, "pulses_per_burst": self.pulses_per_burst,
             "pulse_interval_s": self.pulse_interval, "interval_spread": self.interval_spread,
             "turn_ons": self.turn_ons, "total_turn_ons": self.total_turn_ons,
@@ -299,7 +305,8 @@ def classify_operation(turn_on_times, peak_currents, time, output_voltage, *,
     median = float(np.median(intervals)) if intervals.size else 0.0
     spread = float(np.max(np.abs(intervals - median)) / median) if intervals.size else 0.0
     peak = float(np.mean(peaks_w)) if count else 0.0
-    base = dict(peak_current=peak, output_voltage=mean_output, pulse_interval=median,
+    base = dict(peak_current=peak, strongest_peak=float(np.max(peaks_w)) if count else 0.0,
+                output_voltage=mean_output, pulse_interval=median,
                 interval_spread=spread, turn_ons=count, total_turn_ons=int(turn_ons.size),
                 window_start=start, window_end=end, expected_output=expected)
     quiet = dict(frequency=0.0, burst_period=0.0, pulses_per_burst=0.0)

@@ -177,7 +177,9 @@ class PowerOnRun:
         """JSON-ready summary (SI units; no arrays, no NaN)."""
         return {
             "kind": self.kind, "frequency_hz": self.frequency,
-            "peak_current_a": self.peak_current, "output_v": self.output_voltage,
+            "peak_current_a": self.peak_current,
+            "strongest_peak_a": self.operation.strongest_peak if self.operation else 0.0,
+            "output_v": self.output_voltage,
             "burst_period_s": self.burst_period, "pulses_per_burst": self.pulses_per_burst,
             "time_to_regulation_s": self.time_to_regulation, "settled": self.settled,
             "line_v": self.line_voltage, "bus_v": self.bus_voltage, "load": self.load.text(),
