@@ -207,12 +207,18 @@ def evaluate(design: Design, keep_report: bool = False) -> Evaluation:
     # oscillation, a lower bound of the line the supply starts into its load from
     start_line = startup.get("min_oscillation_line_v") if design.input.is_ac \
         else startup.get("min_oscillation_bus_v")
+    running = np.asarray(points.running, dtype=bool)
+
+    def running_value(values, load):
+        # a point where the switch does not run has no frequency or output
+        return float(values[nominal_line, load]) if running[nominal_line, load] else None
+
     quantities = {
         "min_start_line_v": start_line,
         "start_time_s": startup.get("start_time_s"),
-        "frequency_min_load_hz": float(points.frequency[nominal_line, 0]),
-        "frequency_max_load_hz": float(points.frequency[nominal_line, 2]),
-        "output_v": float(points.output_voltage[nominal_line, 1]),
+        "frequency_min_load_hz": running_value(points.frequency, 0),
+        "frequency_max_load_hz": running_value(points.frequency, 2),
+        "output_v": running_value(points.output_voltage, 1),
         "switch_peak_v": float(stress.switch_peak_v),
         "core_peak_flux_t": float(stress.core_peak_flux_t),
         "worst_peak_current_a": float(stress.worst_peak_current_a),
@@ -228,7 +234,7 @@ def evaluate(design: Design, keep_report: bool = False) -> Evaluation:
         "start-line": None if start_line is None else (lowest_line - start_line) / lowest_line,
         "start-time": (None if quantities["start_time_s"] is None
                        else 1.0 - quantities["start_time_s"] / limits.start_time_max),
-        "output": (None if target is None else
+        "output": (None if target is None or quantities["output_v"] is None else
                    1.0 - abs(quantities["output_v"] - target) / (limits.output_tolerance
                                                                  * target)),
     }
