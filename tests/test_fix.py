@@ -113,6 +113,31 @@ def test_fix_open_startup_resistor(open_resistor_fixes):
         assert not still, (suggestion.texts, still)
 
 
+def test_fix_startup_resistor_power_on_the_reversed_feedback_case():
+    """A second case with the full check as the model: the start-up resistor of the
+    reversed-feedback case dissipates more than half its rating at the highest line.
+    The resistor's power is (V_peak - Vbe)^2 / R, allowed up to half its rating
+    (resistor derating  # common practice), so the smallest value that clears is the
+    first E24 value above (V_peak - Vbe)^2 / (rating / 2)."""
+    path = WORKED_CASES / "fault_feedback_reversed.toml"
+    design = load_design(path)
+    result = suggest_fixes(design, keys=("startup.resistance",))
+    assert result.original.severity_of("startup-resistor-power") == "warn"
+    # the reversed winding is no value's to fix
+    assert "feedback-phase" in result.unfixed
+    (suggestion,) = [s for s in result.suggestions if s.finding == "startup-resistor-power"]
+    switch, environment = design.switch, design.environment
+    # rectified peak of the highest line, less the bridge; Vbe at the coldest
+    peak = math.sqrt(2) * design.input.line_voltages[2] - design.input.bridge_drop
+    vbe = switch.vbe + switch.vbe_tempco * (environment.temperature_min - 298.15)
+    bound = (peak - vbe) ** 2 / (0.5 * design.startup.power_rating)
+    expected = preferred_values("E24", bound, 10 * bound)[0]
+    assert suggestion.changes == {"startup.resistance": pytest.approx(expected)}
+    still = [f for f in _check_with_set(path, suggestion.texts)
+             if f["code"] == "startup-resistor-power"]
+    assert not still, still
+
+
 # ------------------------------------------------ every case, every adjustable value
 #: A value beyond which a stand-in finding clears: a factor that is no
 #: preferred-value ratio, so the search must bisect between ladder steps.
