@@ -150,6 +150,10 @@ class CheckReport:
         at each (:func:`solve_doubtful_points`); empty when not run.
     engine_budget : float or None
         Wall-clock budget those runs were given; ``None`` when not run [s].
+    corners : tuple of rcc.cycle.OperatingPoints
+        The points solved at the temperature x gain corners of the highest and
+        lowest line, per load (the stress, drive and overload findings rest on
+        them as well as on the grid); not in the JSON.
     """
 
     design: Design
@@ -159,6 +163,7 @@ class CheckReport:
     extra: dict
     engine_points: tuple = ()
     engine_budget: float | None = None
+    corners: tuple = ()
 
     @property
     def verdict(self) -> str:
@@ -274,7 +279,8 @@ def check_design(design: Design) -> CheckReport:
     _squegging(design, [points] + low_line + high_line, findings)
     _lockup(design, [points] + low_line + high_line, findings)
     return CheckReport(design=design, points=points, stress=stress_result,
-                       findings=sorted_findings(findings), extra={})
+                       findings=sorted_findings(findings), extra={},
+                       corners=tuple(high_line + low_line))
 
 
 def with_startup_stress(report: CheckReport, startup) -> CheckReport:

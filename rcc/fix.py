@@ -9,8 +9,11 @@ steps, bisection over the preferred values in between finds the one closest
 to the design value that clears it.  Every suggestion is therefore a value
 that was itself checked in full ("verified"), with its effect on every
 other margin.  The best single change and the best pair (two values changed
-together) are those with the fewest failing findings, then the largest
-smallest margin, then the fewest warnings.
+together) are those that let the supply start and keep switching, then with
+the fewest failing findings, then the largest smallest margin, then the
+fewest warnings.  (A supply that does not start or run has no findings about
+its running state, so counting failing findings alone would rank it above
+any running design.)
 """
 
 from __future__ import annotations
@@ -23,11 +26,12 @@ import numpy as np
 
 from rcc.design import Design
 from rcc.eseries import preferred_values
+from rcc.findings import NOT_STARTING
 from rcc.margins import Evaluation, evaluate
 from rcc.spread import evaluate_many
 
 __all__ = ["Adjustable", "ADJUSTABLE", "Suggestion", "FixResult", "suggest_fixes",
-           "SCAN_FACTORS", "RANGE_FACTOR"]
+           "SCAN_FACTORS", "RANGE_FACTOR", "NOT_RUNNING"]
 
 
 @dataclass(frozen=True)
@@ -95,8 +99,9 @@ class Suggestion:
     evaluation : Evaluation
         The full check of the changed design.
     verified : bool
-        The full check shows the finding cleared (for the best changes: fewer
-        failing findings than the design, or the same with a larger margin).
+        The full check shows the finding cleared (for the best changes: the
+        supply starts and runs where the design did not, or fewer failing
+        findings than the design, or the same with a larger margin).
     """
 
     finding: str
@@ -172,8 +177,10 @@ def _text(value: float, unit: str) -> str:
 def _ladder(adjustable: Adjustable, value: float) -> tuple[list, list]:
     """Candidate values below and above ``value``, nearest first."""
     if adjustable.series == "integer":
-        up = [value + step for step in _TURN_STEPS]
-        down = [value - step for step in _TURN_STEPS if value - step >= 1]
+        # every whole turn out to the widest step; the coarse scan takes the steps
+        steps = range(1, _TURN_STEPS[-1] + 1)
+        up = [value + step for step in steps]
+        down = [value - step for step in steps if value - step >= 1]
         return down, up
     low = min(value / RANGE_FACTOR, adjustable.low or value)
     high = max(value * RANGE_FACTOR, adjustable.high or value)
@@ -188,7 +195,7 @@ def _coarse(ladder: list, value: float, integer: bool) -> list[int]:
     if not ladder:
         return []
     if integer:
-        return list(range(len(ladder)))
+        return sorted({min(step, len(ladder)) - 1 for step in _TURN_STEPS})
     indices = []
     distances = np.array([abs(math.log(v / value)) for v in ladder])
     factors = list(SCAN_FACTORS)
@@ -207,14 +214,20 @@ def _clears(evaluation: Evaluation | None, code: str) -> bool:
     return evaluation is not None and evaluation.severity_of(code) not in ("fail", "warn")
 
 
+#: Failing findings that mean the supply does not start or does not keep switching.
+NOT_RUNNING = NOT_STARTING + ("no-restart",)
+
+
 def _better_key(evaluation: Evaluation) -> tuple:
-    return (len(evaluation.failing), -round(evaluation.smallest_margin, 3),
+    stopped = any(code in NOT_RUNNING for code in evaluation.failing)
+    return (stopped, len(evaluation.failing), -round(evaluation.smallest_margin, 3),
             len(evaluation.warning))
 
 
 def suggest_fixes(design: Design, workers: int = 1,
                   progress: Callable[[int, int], None] | None = None,
-                  keys: tuple[str, ...] | None = None) -> FixResult:
+                  keys: tuple[str, ...] | None = None,
+                  evaluator: Callable[[Design], Evaluation] = evaluate) -> FixResult:
     """Verified value changes that clear each failing or warning finding.
 
     Parameters
@@ -228,12 +241,16 @@ def suggest_fixes(design: Design, workers: int = 1,
     keys : tuple of str, optional
         Restrict the search to these ``section.key`` (default: every
         :data:`ADJUSTABLE` value the design has) [-].
+    evaluator : callable
+        ``Design -> Evaluation`` (default: the full check,
+        :func:`rcc.margins.evaluate`); a module-level function when
+        ``workers > 1`` [-].
 
     Returns
     -------
     FixResult
     """
-    original = evaluate(design)
+    original = evaluator(design)
     codes = [code for code in dict.fromkeys(f.code for f in original.findings
                                             if f.severity in ("fail", "warn"))]
     adjustables = [a for a in ADJUSTABLE if (keys is None or a.key in keys)
@@ -245,7 +262,7 @@ def suggest_fixes(design: Design, workers: int = 1,
         todo = [p for p in dict.fromkeys(pairs) if p not in evaluated]
         counter["total"] += len(todo)
         results = evaluate_many(design, [{key: value} for key, value in todo], workers,
-                                evaluate, progress and (lambda d, t: progress(
+                                evaluator, progress and (lambda d, t: progress(
                                     counter["done"] + d, counter["total"])))
         counter["done"] += len(todo)
         evaluated.update(zip(todo, results))
@@ -310,7 +327,7 @@ def suggest_fixes(design: Design, workers: int = 1,
         best_single = _suggestion("best-single", {key: value}, design, adjustables, e,
                                   _better_key(e) < _better_key(original))
     best_pair = _best_pair(design, adjustables, singles, suggestions, original, workers,
-                           progress, counter)
+                           progress, counter, evaluator)
     return FixResult(design.title, original, tuple(suggestions), unfixed, best_single,
                      best_pair, counter["total"] + 1)
 
@@ -339,7 +356,7 @@ def _suggestion(code, changes, design, adjustables, evaluation, verified) -> Sug
 
 
 def _best_pair(design, adjustables, singles, suggestions, original, workers, progress,
-               counter) -> Suggestion | None:
+               counter, evaluator) -> Suggestion | None:
     """Two values changed together: pairs of the most promising single changes."""
     best_per_key = {}
     for key, value, e in sorted(singles, key=lambda item: _better_key(item[2])):
@@ -356,7 +373,7 @@ def _best_pair(design, adjustables, singles, suggestions, original, workers, pro
         return None
     sets = [dict([a, b]) for a, b in pairs]
     counter["total"] += len(sets)
-    results = evaluate_many(design, sets, workers, evaluate, progress and (
+    results = evaluate_many(design, sets, workers, evaluator, progress and (
         lambda d, t: progress(counter["done"] + d, counter["total"])))
     counter["done"] += len(sets)
     scored = [(changes, e) for changes, e in zip(sets, results) if e is not None]

@@ -5,9 +5,10 @@ candidate audits, tolerance spreads and fix searches.
 cycle-model checks and the start-up analysis) and keeps what those studies
 compare: the verdict, the findings with signed margins, continuous margins of
 the main checks (which exist whether or not a finding fires, so a margin can
-be followed as a part value moves), headline quantities, and whether the fast
-model can be trusted for this design (:attr:`Evaluation.unverified`).  The
-result is small and picklable, so worker processes can return it.
+be followed as a part value moves), headline quantities, and the cycle model's
+own doubts at the points the check rests on (:attr:`Evaluation.unverified`,
+from :attr:`rcc.cycle.OperatingPoints.doubt`).  The result is small and
+picklable, so worker processes can return it.
 """
 
 from __future__ import annotations
@@ -19,7 +20,8 @@ import numpy as np
 from rcc.design import Design
 
 __all__ = ["Evaluation", "FindingMargin", "QUANTITIES", "MARGINS", "evaluate",
-           "finding_margin", "rank_key", "UNVERIFIED_FINDINGS", "quantity_limits"]
+           "finding_margin", "rank_key", "DOUBTS", "doubts_of", "describe_doubt",
+           "quantity_limits"]
 
 #: Headline quantities: name -> (unit, description, which extreme is adverse).
 QUANTITIES = {
@@ -44,9 +46,15 @@ MARGINS = {
     "output": "1 - |output - target| / (tolerance x target), nominal line and load",
 }
 
-#: Findings that mark an operating point where the fast cycle model is not
-#: trusted (regime boundaries: drive-capacitor ratchet, burst, lock-up).
-UNVERIFIED_FINDINGS = ("drive-ratchet", "light-load-burst", "startup-lockup")
+#: What each doubt of the cycle model (:attr:`rcc.cycle.OperatingPoints.doubt`)
+#: means, for reports; ``invariant: ...`` names the invariant that failed.
+DOUBTS = {
+    "pattern": "burst or irregular cycles: the values are averages of a pattern",
+    "lockup": "from power-on the output stops far below regulation",
+    "regime-boundary": "the power balance sits on a jump between two cycle regimes",
+    "unsettled": "the cycle states (or the bus) did not settle",
+    "invariant": "a physical invariant failed: the point's numbers are not to be used",
+}
 
 
 @dataclass(frozen=True)
@@ -90,7 +98,9 @@ class Evaluation:
     quantities : dict
         :data:`QUANTITIES` name -> value [SI] (``None`` where undefined).
     unverified : tuple of str
-        Why the fast model is not trusted here (empty: trusted).
+        The cycle model's doubts (:attr:`rcc.cycle.OperatingPoints.doubt`) at
+        the points the check rests on, each once (:func:`doubts_of`); empty:
+        the model doubts none.
     report : dict or None
         The full ``CheckReport.to_json()`` when asked for.
     """
@@ -197,12 +207,18 @@ def evaluate(design: Design, keep_report: bool = False) -> Evaluation:
     # oscillation, a lower bound of the line the supply starts into its load from
     start_line = startup.get("min_oscillation_line_v") if design.input.is_ac \
         else startup.get("min_oscillation_bus_v")
+    running = np.asarray(points.running, dtype=bool)
+
+    def running_value(values, load):
+        # a point where the switch does not run has no frequency or output
+        return float(values[nominal_line, load]) if running[nominal_line, load] else None
+
     quantities = {
         "min_start_line_v": start_line,
         "start_time_s": startup.get("start_time_s"),
-        "frequency_min_load_hz": float(points.frequency[nominal_line, 0]),
-        "frequency_max_load_hz": float(points.frequency[nominal_line, 2]),
-        "output_v": float(points.output_voltage[nominal_line, 1]),
+        "frequency_min_load_hz": running_value(points.frequency, 0),
+        "frequency_max_load_hz": running_value(points.frequency, 2),
+        "output_v": running_value(points.output_voltage, 1),
         "switch_peak_v": float(stress.switch_peak_v),
         "core_peak_flux_t": float(stress.core_peak_flux_t),
         "worst_peak_current_a": float(stress.worst_peak_current_a),
@@ -218,7 +234,7 @@ def evaluate(design: Design, keep_report: bool = False) -> Evaluation:
         "start-line": None if start_line is None else (lowest_line - start_line) / lowest_line,
         "start-time": (None if quantities["start_time_s"] is None
                        else 1.0 - quantities["start_time_s"] / limits.start_time_max),
-        "output": (None if target is None else
+        "output": (None if target is None or quantities["output_v"] is None else
                    1.0 - abs(quantities["output_v"] - target) / (limits.output_tolerance
                                                                  * target)),
     }
@@ -226,20 +242,46 @@ def evaluate(design: Design, keep_report: bool = False) -> Evaluation:
                for name, value in margins.items()}
     findings = tuple(FindingMargin(f.code, f.severity, finding_margin(f), f.value, f.limit,
                                    f.unit) for f in report.findings)
-    reasons = []
-    running = np.asarray(points.running, dtype=bool)
-    if np.any(~np.asarray(points.settled, dtype=bool) & running):
-        reasons.append("unsettled-drive")
-    if np.any(points.mode == "burst"):
-        reasons.append("burst")
-    if np.any(np.asarray(points.startup_lockup, dtype=bool)):
-        reasons.append("lockup")
-    for code in UNVERIFIED_FINDINGS:
-        if any(f.code == code for f in findings):
-            reasons.append(code)
-    return Evaluation(report.verdict, findings, margins, quantities,
-                      tuple(dict.fromkeys(reasons)),
+    return Evaluation(report.verdict, findings, margins, quantities, doubts_of(report),
                       report.to_json() if keep_report else None)
+
+
+def doubts_of(report) -> tuple[str, ...]:
+    """The cycle model's doubts at every point a check rests on.
+
+    Parameters
+    ----------
+    report : rcc.checks.CheckReport
+        A check: its report grid and its temperature x gain corners.
+
+    Returns
+    -------
+    tuple of str
+        Each distinct non-empty :attr:`rcc.cycle.OperatingPoints.doubt`, in the
+        order met (grid first) [-]; empty where the model doubts no point.
+    """
+    doubts = [str(d) for points in (report.points,) + tuple(report.corners)
+              for d in np.ravel(points.doubt) if str(d)]
+    return tuple(dict.fromkeys(doubts))
+
+
+def describe_doubt(doubt: str) -> str:
+    """What a doubt of the cycle model means (:data:`DOUBTS`).
+
+    Parameters
+    ----------
+    doubt : str
+        ``pattern``, ``lockup``, ``regime-boundary``, ``unsettled``,
+        ``invariant: <name>`` or ``model-error`` [-].
+
+    Returns
+    -------
+    str
+        One phrase [-].
+    """
+    if doubt == "model-error":
+        return "the model raised an error (counted as failing)"
+    return DOUBTS.get(doubt.split(":")[0], "doubted by the cycle model")
 
 
 def quantity_limits(design: Design) -> dict:

@@ -9,10 +9,12 @@ with some part values moved inside their tolerance bands
 * **Monte Carlo**: independent samples of every toleranced value (and the
   switch gain); yield = fraction of samples with no failing finding, with the
   Wilson (1927) score interval; fail fraction per finding; percentiles of the
-  headline quantities.  Samples where the fast model is not trusted (an
-  unsettled drive capacitor, a burst, a lock-up: see
-  :data:`rcc.margins.UNVERIFIED_FINDINGS`) are counted and reported as
-  unverified, and the yield is also given over the verified samples alone.
+  headline quantities.  Samples where the cycle model doubts any point the
+  check rests on (:attr:`rcc.cycle.OperatingPoints.doubt`: a pattern, a
+  lock-up, a regime boundary, an unsettled cycle, a failed invariant; see
+  :func:`rcc.margins.doubts_of`) are not solved by the engine here: they are
+  counted as unverified per reason, and the yield is also given over the
+  verified samples alone and with every unverified sample counted as failing.
 * **Worst case** after the ECSS worst-case analysis handbook
   (ECSS-Q-HB-30-01A, 2011): extreme-value analysis (EVA) at the vertices of
   the tolerance box, and the root-sum-square (RSS) estimate from the
@@ -37,7 +39,7 @@ from typing import Callable
 import numpy as np
 
 from rcc.design import Design
-from rcc.margins import QUANTITIES, Evaluation, evaluate, quantity_limits
+from rcc.margins import QUANTITIES, Evaluation, describe_doubt, evaluate, quantity_limits
 from rcc.tolerance import Tolerance, design_values, hfe_tolerance, sample_uniforms
 
 __all__ = ["wilson_interval", "Proportion", "FindingSpread", "QuantitySpread",
@@ -248,8 +250,12 @@ class SpreadResult:
         Samples with no failing finding.
     verified_yield : Proportion
         The same over the verified samples only.
+    verified_pass : Proportion
+        Samples that are verified and have no failing finding, over all
+        samples: the yield with every unverified sample counted as failing.
     unverified : dict
-        Reason -> number of samples (a sample may have several reasons).
+        Doubt of the cycle model (``"pattern"``, ``"invariant: ..."``, or
+        ``"model-error"``) -> number of samples with it (a sample may have several).
     unverified_samples : int
         Samples with any reason [-].
     errors : int
@@ -278,6 +284,7 @@ class SpreadResult:
     parameters: tuple[Tolerance, ...]
     pass_yield: Proportion
     verified_yield: Proportion
+    verified_pass: Proportion
     unverified: dict
     unverified_samples: int
     errors: int
@@ -302,9 +309,15 @@ class SpreadResult:
                             "unit": p.unit} for p in self.parameters],
             "yield": self.pass_yield.to_json(),
             "verified_yield": self.verified_yield.to_json(),
+            "verified_pass": self.verified_pass.to_json(),
             "unverified": {"samples": self.unverified_samples, "reasons": self.unverified,
-                           "note": "fast cycle model not trusted at these samples "
-                                   "(regime boundary); not verified by the engine"},
+                           "meaning": {reason: describe_doubt(reason)
+                                       for reason in self.unverified},
+                           "note": "samples where the cycle model doubts a point the "
+                                   "check rests on (its per-point doubt), not solved by "
+                                   "the engine: 'yield' includes them, 'verified_yield' "
+                                   "leaves them out, 'verified_pass' counts them as "
+                                   "failing"},
             "errors": self.errors,
             "findings": [f.to_json() for f in self.findings],
             "quantities": {q.name: q.to_json() for q in self.quantities},
@@ -576,6 +589,7 @@ def _summarize(design, samples, seed, workers, parameters, values, mc, worst,
         for reason in (e.unverified if e is not None else ("model-error",)):
             reasons[reason] = reasons.get(reason, 0) + 1
     unverified_samples = sum(e is None or bool(e.unverified) for e in mc)
+    verified_passed = sum(e.verdict != "fail" for e in verified)
     codes = list(dict.fromkeys(f.code for e in mc if e is not None for f in e.findings
                                if f.severity in ("fail", "warn")))
     findings = tuple(FindingSpread(
@@ -599,7 +613,8 @@ def _summarize(design, samples, seed, workers, parameters, values, mc, worst,
     return SpreadResult(
         title=design.title, samples=samples, seed=seed, workers=workers,
         parameters=parameters, pass_yield=Proportion(passed, samples),
-        verified_yield=Proportion(sum(e.verdict != "fail" for e in verified), len(verified)),
+        verified_yield=Proportion(verified_passed, len(verified)),
+        verified_pass=Proportion(verified_passed, samples),
         unverified=reasons, unverified_samples=unverified_samples, errors=errors,
         findings=findings, quantities=tuple(quantities), worst_case=worst,
         sensitivities=sensitivities, corner_method=corner_method,

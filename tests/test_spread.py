@@ -213,3 +213,65 @@ def test_spread_command_json_and_figure(standby_case, tmp_path):
     assert data["quantities"]["switch_peak_v"]["unit"] == "V"
     assert all({"quantity", "parameter", "value"} == set(s) for s in data["sensitivities"])
     assert figure.stat().st_size > 10_000
+
+
+# ------------------------------------------------ samples the cycle model doubts
+def doubting_evaluator(design) -> Evaluation:
+    """The linear stand-in, with the cycle model's doubts of a real check:
+    ``pattern`` above 750 kohm, ``invariant: power balance`` above 790 kohm."""
+    evaluation = linear_evaluator(design)
+    resistance = design.startup.resistance
+    doubts = (("pattern",) if resistance > 750e3 else ()) + (
+        ("invariant: power balance",) if resistance > 790e3 else ())
+    return Evaluation(evaluation.verdict, evaluation.findings, evaluation.margins,
+                      evaluation.quantities, doubts)
+
+
+def test_doubted_samples_are_unverified_per_reason_and_kept_apart(linear_design):
+    from rcc.cli.spread import format_spread
+
+    result = spread(linear_design, samples=2000, seed=7, evaluator=doubting_evaluator,
+                    worst_case=False)
+    resistance = result.values[:, 0]
+    pattern = resistance > 750e3
+    invariant = resistance > 790e3
+    passing = resistance <= 700e3  # the stand-in fails above 700 kohm
+    assert result.unverified == {"pattern": int(pattern.sum()),
+                                 "invariant: power balance": int(invariant.sum())}
+    assert result.unverified_samples == int(pattern.sum())
+    # the yield over the verified samples counts none of the doubted ones
+    assert result.verified_yield.trials == int((~pattern).sum())
+    assert result.verified_yield.count == int((passing & ~pattern).sum())
+    assert result.verified_pass.count == int((passing & ~pattern).sum())
+    assert result.verified_pass.trials == 2000
+    # here every doubted sample also fails, so the yield over all samples agrees
+    assert result.pass_yield.count == int(passing.sum())
+    data = result.to_json()
+    assert data["unverified"]["samples"] == int(pattern.sum())
+    assert data["unverified"]["reasons"] == result.unverified
+    assert set(data["unverified"]["meaning"]) == set(result.unverified)
+    text = format_spread(result)
+    assert f"UNVERIFIED: {int(pattern.sum())} of 2000 samples" in text
+    for reason, count in result.unverified.items():
+        assert any(reason in line and f" {count} " in line for line in text.splitlines())
+    assert "Yield counting unverified samples as failing" in text
+
+
+def test_a_sample_whose_point_the_model_doubts_is_unverified():
+    """With the full check: the 5 V case's cycle model doubts points (a burst
+    pattern, a lock-up); every sample carries those doubts, none is verified."""
+    from rcc.checks import check_design
+    from rcc.margins import doubts_of, evaluate
+    from tests.conftest import WORKED_CASES
+
+    design = load_design(WORKED_CASES / "aux_5v_48v_dc.toml")
+    report = check_design(design)
+    expected = {str(d) for points in (report.points,) + report.corners
+                for d in np.ravel(points.doubt)} - {""}
+    assert expected  # the case has doubtful points
+    assert set(doubts_of(report)) == expected
+    assert set(evaluate(design).unverified) == expected
+    result = spread(design, samples=2, seed=1, worst_case=False)
+    assert result.unverified_samples == 2
+    assert set(result.unverified) >= expected
+    assert result.verified_yield.trials == 0 and result.verified_pass.count == 0

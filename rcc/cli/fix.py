@@ -69,6 +69,12 @@ def _effect(suggestion, original) -> str:
     return "; ".join(p for p in parts if p)
 
 
+def _stopped(evaluation) -> bool:
+    from rcc.fix import NOT_RUNNING
+
+    return any(code in NOT_RUNNING for code in evaluation.failing)
+
+
 def format_fixes(result, design_file) -> str:
     """Plain-text list of suggestions, grouped by finding."""
     original = result.original
@@ -93,6 +99,8 @@ def format_fixes(result, design_file) -> str:
             continue
         changes = ", ".join(f"{k} = {v}" for k, v in s.texts.items())
         better = "improves on the design" if s.verified else "no improvement found"
+        if s.verified and _stopped(original) and not _stopped(s.evaluation):
+            better = "the supply starts and runs, as the design does not"
         out += [f"{label}: {changes} ({better}) -> {_effect(s, original)}",
                 f"    try: rcc check {design_file} {_set_args(s)}", ""]
     out.append("The fast model decides these; confirm a chosen change with `rcc check "

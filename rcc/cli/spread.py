@@ -103,13 +103,20 @@ def format_spread(result) -> str:
     for p in result.parameters:
         out.append(f"    {p.key:40s} {si(p.low, p.unit)} .. {si(p.high, p.unit)} "
                    f"({p.distribution}{', 3 sigma at the edges' if p.distribution != 'uniform' else ''})")
-    out += ["", f"Yield (no failing finding): {_percent(result.pass_yield)}"]
+    out += ["", f"Yield (no failing finding), all samples: {_percent(result.pass_yield)}"]
     if result.unverified_samples:
-        reasons = ", ".join(f"{k} {v}" for k, v in result.unverified.items())
-        out += [f"UNVERIFIED: {result.unverified_samples} of {result.samples} samples lie where "
-                f"the fast cycle model is not trusted ({reasons}); they are counted above "
-                "but not verified by the time-domain engine.",
-                f"Yield over the verified samples only: {_percent(result.verified_yield)}"]
+        from rcc.margins import describe_doubt
+
+        out += [f"UNVERIFIED: {result.unverified_samples} of {result.samples} samples, where "
+                "the cycle model doubts a point the check rests on (not solved by the "
+                "time-domain engine; confirm with `rcc check` or `rcc waveforms`), "
+                "samples per doubt:"]
+        width = max(len(reason) for reason in result.unverified)
+        out += [f"    {reason:{width}s} {count:6d}  {describe_doubt(reason)}"
+                for reason, count in result.unverified.items()]
+        out += [f"Yield over the verified samples only: {_percent(result.verified_yield)}",
+                f"Yield counting unverified samples as failing: "
+                f"{_percent(result.verified_pass)}"]
     if result.errors:
         out.append(f"{result.errors} samples raised a model error and count as failing.")
     out += ["", "Findings (fraction of samples; 95 % Wilson interval)", ""]
