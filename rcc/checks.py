@@ -602,7 +602,8 @@ def _overload(design, findings):
             "overload", "warn",
             f"Heaviest load needs {demand:.2f} W; {limit_text}: less than "
             f"{OVERLOAD_MARGIN_WARN - 1:.0%} reserve.",
-            demand, capability, "W",
+            # the bound of a warning is the load the reserve allows
+            demand, capability / OVERLOAD_MARGIN_WARN, "W",
             "Raise the current limit slightly or reduce load_max."))
 
 

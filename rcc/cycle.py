@@ -84,8 +84,8 @@ _SCAN_POINTS = 8
 #: A junction reset path is taken as finished this close to its asymptote [V].
 _JUNCTION_END = 0.05
 #: Safeguarded Newton steps for the instant the loaded ring frees the base
-#: (quadratic convergence: well below 1e-12 of the swing)
-_RING_ITERATIONS = 12
+#: (quadratic convergence: within 1e-10 of the swing on the population)
+_RING_ITERATIONS = 10
 
 
 @dataclass(frozen=True)
@@ -971,9 +971,6 @@ class _Cycle:
         def position(t):
             return vr + np.real(c1 * np.exp(s1 * t) + c2 * np.exp(s2 * t))
 
-        def speed(t):
-            return np.real(c1 * s1 * np.exp(s1 * t) + c2 * s2 * np.exp(s2 * t))
-
         # end of the first swing (underdamped: its peak; overdamped: 40 slow
         # time constants, where x has reached V_R)
         under = zeta < 1.0
@@ -981,20 +978,22 @@ class _Cycle:
             t_end = np.where(under, np.pi / (omega * np.sqrt(np.abs(1.0 - zeta**2))),
                              40.0 / (omega * (zeta - np.sqrt(np.maximum(zeta**2 - 1.0, 0.0)))))
         releases = clamped & (position(t_end) >= x_release)
-        # x rises monotonically over the first swing: Newton's method kept
-        # inside the bracket (bisection where a step leaves it)
+        # x rises monotonically over the first swing: Newton's method from the
+        # undamped crossing (x = V_R (1 - cos omega t)), kept inside the
+        # bracket (bisection where a step leaves it)
         low, high = np.zeros_like(t_end), t_end.copy()
-        # start from the undamped ring, x = V_R (1 - cos(omega t))
         t_release = np.clip(np.arccos(np.clip(1.0 - x_release / vr, -1.0, 1.0)) / omega,
                             0.0, t_end)
-        for _ in range(_RING_ITERATIONS):
-            gap = position(t_release) - x_release
-            low, high = np.where(gap < 0.0, t_release, low), np.where(gap < 0.0, high, t_release)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                step = t_release - gap / speed(t_release)
-            inside = (step >= low) & (step <= high)
-            t_release = np.where(inside, step, 0.5 * (low + high))
-        amplitude = np.hypot(x_release - vr, speed(t_release) / omega)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            for _ in range(_RING_ITERATIONS):
+                e1, e2 = c1 * np.exp(s1 * t_release), c2 * np.exp(s2 * t_release)
+                gap = vr + np.real(e1 + e2) - x_release
+                below = gap < 0.0
+                low, high = np.where(below, t_release, low), np.where(below, high, t_release)
+                step = t_release - gap / np.real(s1 * e1 + s2 * e2)
+                t_release = np.where((step >= low) & (step <= high), step, 0.5 * (low + high))
+        speed = np.real(c1 * s1 * np.exp(s1 * t_release) + c2 * s2 * np.exp(s2 * t_release))
+        amplitude = np.hypot(x_release - vr, speed / omega)
         return np.where(~clamped, vr, np.where(releases, amplitude, 0.0))
 
     def _reset(self, vc, winding, duration):

@@ -137,8 +137,11 @@ def test_overload_capability_sits_on_its_own_bus_valley(name):
 
 
 def test_weak_drive_fires_with_a_large_drive_resistor(standby, standby_report):
-    # the demo case keeps its drive just under the 1.25 margin: a warning only
-    assert codes(standby_report)["weak-drive"].severity == "warn"
+    # the demo case's drive is adequate: at most a warning (it was just under the
+    # 1.25 warning level before the limiter's inverse-mode reset of the drive
+    # capacitor, notes/cycle_model.md, and is above it since)
+    assert codes(standby_report).get("weak-drive") is None \
+        or codes(standby_report)["weak-drive"].severity == "warn"
     weak = standby.with_values({"drive.resistance": "1 kohm"})
     finding = codes(check_design(weak))["weak-drive"]
     assert finding.severity == "fail" and finding.value < 1.0

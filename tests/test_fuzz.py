@@ -276,12 +276,10 @@ def generated():
 
 
 #: The cycle model's bus for AC input is the bulk-capacitor valley at its own input
-#: power, found in two passes from the no-load peak; where the first pass draws more
-#: than the bulk capacitor supplies (seen here at the highest line of some generated
-#: designs) the valley has no real value and the model floors the bus at 1 V, where
-#: it then reports negative peak currents, off-times and frequencies and divides by
-#: zero (RuntimeWarning).  Found by this test; a defect of the cycle model
-#: (rcc/cycle.py, operating_points), kept visible by the strict xfail below.
+#: power (solved against it, rcc/cycle.py ``_bus_balance``); where the input power
+#: is more than the bulk capacitor supplies, the valley has no real value and the
+#: model floors the bus at 1 V.  Such a point must carry the bus-range invariant
+#: (``test_points_with_the_bus_on_the_floor_are_refused``).
 BUS_FLOOR = 1.0
 
 
