@@ -77,12 +77,17 @@ def test_fix_open_startup_resistor(open_resistor_fixes):
     # open resistor: no start, and after a first cycle no restart either (the
     # base-emitter resistor bleeds the base); the current limit leaves less than
     # the 10 % reserve over the heaviest load (6.38 W for 6.00 W): a warning
-    assert set(original.failing) == {"no-start", "no-restart"}
+    assert {"no-start", "no-restart"} <= set(original.failing)
     assert original.severity_of("overload") == "warn"
     # a supply that does not switch has no output or frequency to compare (not 0 V)
     assert original.quantities["output_v"] is None and original.margins["output"] is None
-    # the start-up resistor does not set the current limit
-    assert set(result.unfixed) == {"overload"}
+    # the start-up resistor sets neither the current limit nor what the supply
+    # would do once running: the core flux at the current limit of this old
+    # design revision (core-saturation, found since the cycle model's loaded
+    # ring and inverse-mode reset, notes/cycle_model.md) stays unfixed too
+    others = set(original.failing) - {"no-start", "no-restart"}
+    assert others <= {"core-saturation"}
+    assert set(result.unfixed) == {"overload"} | others
     by_code = {}
     for suggestion in result.suggestions:
         assert suggestion.verified and set(suggestion.changes) == {"startup.resistance"}
