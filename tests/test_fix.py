@@ -79,15 +79,21 @@ def test_fix_open_startup_resistor(open_resistor_fixes):
     # the 10 % reserve over the heaviest load (6.38 W for 6.00 W): a warning
     assert {"no-start", "no-restart"} <= set(original.failing)
     assert original.severity_of("overload") == "warn"
-    # a supply that does not switch has no output or frequency to compare (not 0 V)
-    assert original.quantities["output_v"] is None and original.margins["output"] is None
+    # the output is the cycle model's running orbit (once running, the ring keeps
+    # it switching without the start-up current: 12.5 V), or none where it does
+    # not switch at all -- never 0 V
+    output = original.quantities["output_v"]
+    assert output is None or output > 0.5 * design.output.voltage_target
     # the start-up resistor sets neither the current limit nor what the supply
     # would do once running: the core flux at the current limit of this old
     # design revision (core-saturation, found since the cycle model's loaded
     # ring and inverse-mode reset, notes/cycle_model.md) stays unfixed too
     others = set(original.failing) - {"no-start", "no-restart"}
     assert others <= {"core-saturation"}
-    assert set(result.unfixed) == {"overload"} | others
+    # (nor what a running supply then shows: its output, drive and voltage
+    # findings belong to the old revision, not to the open resistor)
+    assert {"overload"} | others <= set(result.unfixed)
+    assert not set(result.unfixed) & {"no-start", "no-restart"}
     by_code = {}
     for suggestion in result.suggestions:
         assert suggestion.verified and set(suggestion.changes) == {"startup.resistance"}
