@@ -1662,6 +1662,14 @@ def _mix_regimes(first, second, share, where):
     return mixed
 
 
+def _regulation_level(design: Design, temperature):
+    """Output the design regulates to: its target, else the regulation hold
+    point, else None [V]."""
+    if design.output.voltage_target is not None:
+        return design.output.voltage_target
+    return hold_output_voltage(design, temperature)
+
+
 def _solve_output(design: Design, bus, temperature, gain, load):
     """Output voltage of the power balance the supply reaches from power-on.
 
@@ -1722,9 +1730,7 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     output = _balance(cycle, load, low, np.where(refine, high, low), seed)
     output = np.where(burst, top, np.where(refine, output, low))
     higher = np.any((index > barrier[None]) & positive, axis=0) & has_barrier
-    reference = design.output.voltage_target
-    if reference is None:
-        reference = hold_output_voltage(design, temperature)
+    reference = _regulation_level(design, temperature)
     if reference is None:
         reference = np.max(np.where(positive, scan_voltage, 0.0), axis=0)
     lockup = higher & (output < 0.8 * reference) & any_positive
@@ -1826,9 +1832,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     # below LOCKUP_FRACTION of the level the design regulates to is a lock-up,
     # whatever holds it there (a start-up barrier, or a load the cycles
     # cannot carry at any output)
-    level = design.output.voltage_target
-    if level is None:
-        level = hold_output_voltage(design, temperature)
+    level = _regulation_level(design, temperature)
     if level is not None:
         mode_names = np.where(output < LOCKUP_FRACTION * np.asarray(level, dtype=float),
                               "lockup", mode_names)

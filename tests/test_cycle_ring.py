@@ -65,6 +65,9 @@ def test_loaded_ring_matches_integrated_circuit(index, bus, winding, vr):
         closed = float(cycle._ring_after_clamp(np.array([vc]), np.array([winding]),
                                                np.array([vr]))[0])
         integrated = _integrated_amplitude(cycle, vc, winding, vr)
+        # 1e-6: the cycle model's well-posedness tolerance (tests/test_well_posed.py);
+        # the closed form's Newton is within 1e-10 (rcc.cycle._RING_ITERATIONS) and
+        # RK45 at rtol 1e-11 with event location within about 1e-9 of the swing
         assert closed == pytest.approx(integrated, rel=1e-6, abs=1e-6 * vr), vc
 
 
@@ -85,6 +88,9 @@ def test_clamped_first_swing_is_the_damped_step_response():
                                        / capacitance],
                          (0.0, period), [0.0, 0.0], rtol=1e-11, atol=1e-12,
                          max_step=period / 2000.0)
+    # 1e-4: the maximum is taken over the solver's steps (max_step = period/2000):
+    # a sampled crest misses the true one by up to (pi/1000)^2/2 = 5e-6 of V_R,
+    # about 2e-5 of the overshoot (V_R / overshoot = 4.3)
     assert np.max(solution.y[0]) - vr == pytest.approx(overshoot, rel=1e-4)
     # a clamp that needs more than the damped swing never lets go: no ring
     winding = -2.72
