@@ -38,7 +38,7 @@ import numpy as np
 
 from rcc.design import Design, Load
 from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain,
-                          fall_time_charge_control, storage_time_rising_current,
+                          fall_time_charge_control,
                           thermal_voltage, turn_off_energy, zener_voltage)
 from rcc.stress import clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_voltage
 from rcc.limiter import (LIMITER_REVERSE_GAIN, auxiliary_voltage, regulation_current,
@@ -46,6 +46,7 @@ from rcc.limiter import (LIMITER_REVERSE_GAIN, auxiliary_voltage, regulation_cur
 from rcc.mains import bus_voltage
 from rcc.operation import LOCKUP_FRACTION
 from rcc.flyback import reflected_voltage
+from rcc import _cycle_kernel as kernel
 
 __all__ = [
     "OperatingPoints",
@@ -81,11 +82,6 @@ ON_END = ("drive", "limit", "regulation")
 OFF_END = ("demagnetization", "drive-timing", "regulation-hold")
 
 _SCAN_POINTS = 8
-#: A junction reset path is taken as finished this close to its asymptote [V].
-_JUNCTION_END = 0.05
-#: Safeguarded Newton steps for the instant the loaded ring frees the base
-#: (quadratic convergence: within 1e-10 of the swing on the population)
-_RING_ITERATIONS = 10
 
 
 @dataclass(frozen=True)
@@ -497,46 +493,10 @@ def _first_crossing(function, low, high, tolerance=1e-15, iterations=200, jump=N
     return result
 
 
-def _newton_in_bracket(function, low, high, tolerance=1e-13, iterations=100):
-    """First root of ``function`` on ``[low, high]``, safeguarded Newton.
-
-    ``function(t)`` returns the value and its derivative; the value is
-    negative at ``low`` and not negative at ``high`` (where it is already
-    non-negative at ``low`` the result is ``low``).  A Newton step that
-    leaves the bracket is replaced by bisection, and the bracket shrinks on
-    every step, so convergence is guaranteed; the loop stops when every step
-    is below ``tolerance`` relative, not after a fixed count.
-    """
-    low, high = np.broadcast_arrays(np.asarray(low, float), np.asarray(high, float))
-    low, high = low.astype(float).copy(), high.astype(float).copy()
-    value, _ = function(low)
-    value = value * np.ones_like(low)
-    result = np.where(value >= 0.0, low, high)
-    active = np.flatnonzero((value < 0.0) & (high > low))
-    t = high.copy()
-    for _ in range(iterations):
-        if active.size == 0:
-            break
-        f, df = function(t)
-        f = np.broadcast_to(f, t.shape)[active]
-        df = np.broadcast_to(df, t.shape)[active]
-        ta = t[active]
-        positive = f >= 0.0
-        high[active] = np.where(positive, ta, high[active])
-        low[active] = np.where(positive, low[active], ta)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            step = ta - f / df
-        inside = np.isfinite(step) & (step > low[active]) & (step < high[active])
-        new = np.where(inside, step, 0.5 * (low[active] + high[active]))
-        moved = np.abs(new - ta)
-        t[active] = new
-        finished = (moved <= tolerance * np.maximum(np.abs(new), 1e-300)) | (f == 0.0) \
-            | (high[active] - low[active] <= tolerance * np.abs(high[active]))
-        result[active[finished]] = np.where(f == 0.0, ta, np.minimum(
-            np.maximum(new, low[active]), high[active]))[finished]
-        active = active[~finished]
-    result[active] = high[active]
-    return result
+#: Per-point attributes of :class:`_Cycle` the compiled timing reads
+#: (columns of :data:`rcc._cycle_kernel.POINT_NAMES`).
+_POINT_ATTRIBUTES = ("bus", "hfe", "steal_gain", "slope", "v_on", "startup_current", "bleed",
+                     "thermal_voltage", "vbe_limiter", "v_threshold", "aux_floor", "aux_hold")
 
 
 class _Cycle:
@@ -604,6 +564,20 @@ class _Cycle:
         self.ring_impedance = np.sqrt(self.lm / design.node_capacitance)
         quality = tr.core_loss_resistance * np.sqrt(design.node_capacitance / self.lm)
         self.ring_damping = np.exp(-np.pi / (2.0 * quality))
+        constants = dict(
+            rb=rb, rlb=lim.base_resistance, rs=lim.sense_resistance, tau=self.tau,
+            aux_tau=self.aux_tau, storage_constant=self.storage_constant,
+            node=design.node_capacitance, nb=self.nb, lm=self.lm, vebo=sw.vebo,
+            inverse_gain=1.0 + LIMITER_REVERSE_GAIN, clamp_resistance=self._clamp_resistance(),
+            cb=dr.capacitance, tau_slow=self._tau_slow, rbe=self.rbe, omega=self.omega,
+            ring_impedance=self.ring_impedance, ring_damping=self.ring_damping,
+            limiter_gain=self.limiter_gain,
+            zener_resistance=self.zener_resistance if self.aux_state else np.inf,
+            filter_capacitance=regulation.filter_capacitance if self.aux_state else 0.0,
+            aux_state=float(self.aux_state), linear_slow=float(np.isinf(self._tau_slow)))
+        #: design constants of the compiled cycle timing (never subset)
+        self.constants = np.array([float(constants[name])
+                                   for name in kernel.CONSTANT_NAMES])
 
     def subset(self, index):
         """The same cycle for a flat selection of the points [-]."""
@@ -612,7 +586,8 @@ class _Cycle:
         shape = np.shape(self.bus)
         part = copy.copy(self)
         for name, value in vars(self).items():
-            if isinstance(value, np.ndarray) and value.ndim and value.shape == shape:
+            if name != "constants" and isinstance(value, np.ndarray) and value.ndim \
+                    and value.shape == shape:
                 setattr(part, name, value.reshape(-1)[index])
         return part
 
@@ -624,14 +599,60 @@ class _Cycle:
                                             d.transformer.output_turns,
                                             d.regulation.rectifier_drop), 0.0)
 
-    def evaluate(self, output_voltage, vc0, i0, va0=None, losses=False):
+    def evaluate(self, output_voltage, vc0, i0, va0=None, losses=False, energy=True):
+        """One switching cycle from the states at a turn-on (vectorized).
+
+        The timing (on-time decision, storage, turn-off, drive-capacitor
+        reset, ring, off-time, the states at the next turn-on) runs in the
+        compiled loop of :mod:`rcc._cycle_kernel`, which evaluates, point by
+        point, the equations described here and in the methods below:
+
+        - on-time: the switch leaves saturation when the ramp reaches the
+          collector current the base can hold, with the limiter stealing
+          drive (finite gain, ``notes/cycle_model.md``); to divert the drive
+          the limiter's collector carries about the whole base current
+          ``I_B``, so its junction sits ``V_T ln(I_B / 1 mA)`` above the Vbe
+          given at 1 mA (Ebers & Moll 1954, exponential law);
+        - storage by charge control (Moll 1954): the excess charge set by the
+          base current at the decision (``I_B1``) decays while the collector
+          current keeps rising; the saturated limiter pulls the base below
+          the emitter with ``I_B2 = I_B1``
+          (:func:`rcc.devices.storage_time_rising_current`);
+        - turn-off transition after storage: the collector current follows the
+          limiter's hold point (or, when the drive ends the on-time, the
+          switch's own gain) while the collector rises and the feedback
+          winding loses voltage, ``dI_C/dv = -m``; the node capacitance takes
+          the rest of the still rising primary current, so the collector
+          reaches the bus after ``t_rise = (C/m) ln(1 + m^2 V_bus / (s C))``;
+        - flyback plateau: the base is pulled negative and the drive
+          capacitor is reset through the base clamps (the stages below); with
+          feedback-winding regulation the auxiliary capacitor drains through
+          the zener path in the on-time and recharges to the plateau, and the
+          limiter holds the switch off until it has drained to the hold level
+          (regulation by dead time);
+        - after demagnetization the ring, loaded by the reset clamp until it
+          lets go (:meth:`_ring_after_clamp`), turns the switch on where the
+          winding lifts the base over Vbe; while the regulation path holds the
+          limiter on, the limiter clamps the base (saturated on the positive
+          swing, inverse mode on the negative one), so the ring decays with
+          ``zeta_hold = n_b^2 Z_0 (1/R_b + 1/R_cb) / 4`` on top of the core
+          loss and the switch turns on at the release if the decayed ring
+          still lifts the base; otherwise the drive capacitor's slow path
+          times the restart; a drive timer shorter than demagnetization
+          turns the switch on during the plateau (CCM);
+        - the turn-on current is what is left in CCM, and on the ring the
+          negative magnetizing current ``-(V_R / Z_0) sin(phase)``, damped.
+
+        Returns a dict of arrays; with ``energy=False`` only the states at the
+        next turn-on (``vc_next``, ``residual``, ``va_next``), with
+        ``losses=True`` also the :class:`Losses`.
+        """
         d = self.design
         tr, sw, dr, lim = d.transformer, d.switch, d.drive, d.limiter
         vr = reflected_voltage(output_voltage, d.output.rectifier_drop, tr.primary_turns,
                                tr.output_turns)
         vr = np.maximum(vr, 1e-3)
-        rb, tau = dr.resistance, self.tau
-        rlb, rs = lim.base_resistance, lim.sense_resistance
+        rb = dr.resistance
         # ---- regulation current into the limiter base during the on-time
         plateau_aux = self.auxiliary_plateau(output_voltage)
         if self.aux_state:
@@ -640,168 +661,35 @@ class _Cycle:
             va0 = plateau_aux if va0 is None else va0
             ireg0 = np.maximum(va0 - self.aux_floor, 0.0) / self.zener_resistance
         else:
+            va0 = 0.0
             ireg0 = regulation_current(d, output_voltage, self.temperature)
-        # ---- on-time decision: the switch leaves saturation when the ramp
-        # reaches the collector current the base can hold, with the limiter
-        # stealing drive (finite gain, notes/cycle_model.md)
-        amplitude = np.maximum(self.v_on - vc0, 0.0) / rb
-        offset = self.startup_current - self.bleed
-        a_tau = self.aux_tau
-
-        gain = self.steal_gain
-        reg_drop = rlb * ireg0 / rs
-
-        def base(t):
-            return amplitude * np.exp(-t / tau) + offset
-
-        def ideal_trip(t):
-            drive = np.maximum(base(t), 1e-12)
-            lift = np.where(drive > 1e-3, self.thermal_voltage * np.log(drive / 1e-3), 0.0)
-            return (self.vbe_limiter + lift - rlb * ireg0 * np.exp(-t / a_tau)) / rs
-
-        def excess(t):
-            """Ramp minus the current the base can hold, and its derivative."""
-            decay = amplitude * np.exp(-t / tau)
-            drive = np.maximum(decay + offset, 1e-12)
-            own = self.hfe * (decay + offset)
-            own_rate = -self.hfe * decay / tau
-            aux_decay = reg_drop * np.exp(-t / a_tau)
-            # to divert the drive the limiter's collector carries about the
-            # whole base current I_B: its junction then sits V_T ln(I_B / 1 mA)
-            # above the Vbe given at 1 mA (Ebers & Moll 1954, exponential law)
-            lift = np.where(drive > 1e-3, self.thermal_voltage * np.log(drive / 1e-3), 0.0)
-            lift_rate = np.where(drive > 1e-3, -self.thermal_voltage * decay / tau / drive, 0.0)
-            ideal = (self.vbe_limiter + lift) / rs - aux_decay
-            shared = (own + gain * ideal) / (1.0 + gain)
-            shared_rate = (own_rate + gain * (aux_decay / a_tau + lift_rate / rs)) \
-                / (1.0 + gain)
-            limited = shared < own
-            value = i0 + self.slope * t - np.where(limited, shared, own)
-            return value, self.slope - np.where(limited, shared_rate, own_rate)
-
-        t_high = np.maximum((self.hfe * np.maximum(amplitude + offset, 0.0) - i0) / self.slope,
-                            0.0)
-        t_decision = _newton_in_bracket(excess, np.zeros_like(t_high), t_high)
-        i_decision = i0 + self.slope * t_decision
-        base_decision = np.maximum(base(t_decision), 0.0)
-        drive_ends = self.hfe * base_decision <= ideal_trip(t_decision)
-        ireg = ireg0 * np.exp(-t_decision / a_tau)
-        itrip = np.maximum(ideal_trip(t_decision), 0.0)
-        # storage time by charge control (Moll 1954): the excess charge set by
-        # the base current at the decision (I_B1) decays while the collector
-        # current keeps rising; the saturated limiter pulls the base below the
-        # emitter with a current of the order of the drive: I_B2 = I_B1
-        storage = storage_time_rising_current(self.storage_constant, base_decision,
-                                              base_decision, i_decision, self.slope, self.hfe)
-        overshoot = np.where(drive_ends, 0.0, self.slope * storage)
-        peak = i_decision + overshoot
-        # turn-off transition after storage (notes/cycle_model.md): the
-        # collector current follows the limiter's hold point (or, when the
-        # drive ends the on-time, the switch's own gain) while the collector
-        # rises and the feedback winding loses voltage, dI_C/dv = -m; the node
-        # capacitance takes the rest of the still rising primary current, so
-        # the collector reaches the bus, where the winding reverses, after
-        # t_rise = (C/m) ln(1 + m^2 V_bus / (s C))
+        columns = {"vr": vr, "plateau_aux": plateau_aux, "ireg0": ireg0, "vc0": vc0,
+                   "i0": i0, "va0": va0}
+        columns.update((name, getattr(self, name, 0.0)) for name in _POINT_ATTRIBUTES)
+        shape = np.broadcast_shapes(*(np.shape(value) for value in columns.values()))
+        points = np.empty(shape + (len(kernel.POINT_NAMES),))
+        for index, name in enumerate(kernel.POINT_NAMES):
+            points[..., index] = columns[name]
+        timing = kernel.cycle_timing(points.reshape(-1, len(kernel.POINT_NAMES)),
+                                     self.constants)
+        out = {name: timing[:, index].reshape(shape)
+               for index, name in enumerate(kernel.OUTPUT_NAMES)}
+        (ireg, itrip, peak, t_on, t_off, t_rise, vc_next, va_next, residual,
+         drive_capability, crossing, left, vc_end, vc_demag, t_cross, t_demag, aux_charge,
+         phase, charge_base, limit_plateau) = (out[name] for name in (
+             "ireg", "itrip", "peak", "t_on", "t_off", "t_rise", "vc_next", "va_next",
+             "residual", "drive_capability", "crossing", "left", "vc_end", "vc_demag",
+             "t_cross", "t_demag", "aux_charge", "phase", "charge_base", "limit_plateau"))
+        on_end, off_end, mode = (out[name].astype(int) for name in ("on_end", "off_end",
+                                                                     "mode"))
+        ccm, ring_on, restarts = (out[name] > 0.5 for name in ("ccm", "ring_on", "restarts"))
+        if not energy:
+            return dict(vc_next=vc_next, residual=residual, va_next=va_next)
+        vr, i0 = np.broadcast_to(vr, shape), np.broadcast_to(i0, shape)
+        aux = np.broadcast_to(plateau_aux, shape)
         node = d.node_capacitance
-        droop = np.where(drive_ends, self.hfe, 1.0 / self.limiter_gain) * self.nb / rb
-        rise = node / droop
-        t_rise = rise * np.log1p(droop**2 * self.bus / (self.slope * node))
-        v_reverse = np.minimum(self.bus, peak / droop)
-        crossing = rise * (peak * v_reverse - 0.5 * droop * v_reverse**2)
-        left = np.maximum(peak - droop * self.bus, 0.0)
-        # the drive has to hold the switch up to the end of storage only
-        t_switch = (peak - i0) / self.slope
-        base_end = amplitude * np.exp(-t_switch / tau) + offset
-        drive_capability = self.hfe * np.maximum(base_end, 0.0)
-        peak = peak + self.slope * np.maximum(t_rise - rise, 0.0)
-        t_on = t_switch + t_rise
-        on_end = np.where(drive_ends, 0, np.where(ireg > 0.0, 2, 1))
-        vc_end = self.v_on + (vc0 - self.v_on) * np.exp(-t_on / tau)
-        charge_base = amplitude * tau * (1.0 - np.exp(-t_on / tau)) + offset * t_on
-        # ---- off-time: flyback plateau
-        t_demag = self.lm * peak / vr
-        winding_plateau = -self.nb * vr
-        # plateau: the base is pulled negative; the drive capacitor is reset
-        # through the clamps of the base node (see _reset)
-        vc_demag = self._reset(vc_end, winding_plateau, t_demag)
-        # auxiliary capacitor: drained through the zener path during the
-        # on-time, recharged to the plateau by its rectifier during the flyback
-        if self.aux_state:
-            va_on_end = self._aux_decay(va0, t_on)
-            va_plateau = np.maximum(plateau_aux, self._aux_decay(va_on_end, t_demag))
-            aux_charge = (d.regulation.filter_capacitance
-                          * np.maximum(plateau_aux - va_on_end, 0.0)
-                          + np.maximum(plateau_aux - self.aux_floor, 0.0)
-                          / self.zener_resistance * t_demag * (plateau_aux >= va_on_end))
-            # the limiter holds the switch off until the capacitor has drained
-            # to the hold level (regulation by dead time)
-            with np.errstate(divide="ignore"):
-                t_release = np.where(
-                    va_plateau > self.aux_hold,
-                    self.aux_tau * np.log(np.maximum(va_plateau - self.aux_floor, 1e-300)
-                                          / (self.aux_hold - self.aux_floor)), 0.0)
-            held_plateau = plateau_aux > self.aux_hold
-        else:
-            va_plateau = np.zeros_like(vr)
-            aux_charge = np.zeros_like(vr)
-            t_release = np.zeros_like(vr)
-            held_plateau = np.zeros(np.shape(vr), dtype=bool)
-        # turn-on during the plateau (drive timer shorter than demagnetization),
-        # unless the regulation path holds the limiter on through the plateau
-        limit_plateau = self.v_threshold + winding_plateau
-        t_cross = self._reset_cross(vc_end, winding_plateau, limit_plateau)
-        ccm = (t_cross < t_demag) & ~held_plateau
-        # ---- ring after demagnetization
-        need = vc_demag - self.v_threshold
-        ring_amplitude = self.nb * vr
-        free = self._ring_after_clamp(vc_demag, winding_plateau, vr)
-        ring_peak = self.nb * np.minimum(free * self.ring_damping, self.bus)
-        ring_on = need <= ring_peak
-        phase = np.arccos(np.clip(-need / ring_amplitude, -1.0, 1.0))
-        t_ring = phase / self.omega
-        # held past the ring's turn-on: the switch turns on at the release if
-        # the decayed ring (or the start-up current) still lifts the base
-        held = t_release > np.where(ring_on, t_ring, 0.0)
-        # while the regulation path holds the limiter on, the limiter clamps
-        # the switch base (saturated on the positive swing, inverse mode on
-        # the negative one): the winding is loaded by R_b and R_cb in turn and
-        # the ring decays with zeta_hold = n_b^2 Z_0 (1/R_b + 1/R_cb) / 4 on
-        # top of the core loss
-        zeta_hold = 0.25 * self.nb**2 * self.ring_impedance * (
-            1.0 / self.design.drive.resistance + 1.0 / self._clamp_resistance())
-        ring_left = (self.nb * free
-                     * self.ring_damping ** (2.0 * self.omega * t_release / np.pi)
-                     * np.exp(-zeta_hold * self.omega * t_release))
-        on_release = held & (need <= np.minimum(ring_left, ring_peak))
-        # ---- waiting for the slow path (drive-capacitor timing)
-        t_wait = self._reset_cross(vc_demag, 0.0, self.v_threshold)
-        restarts = ccm | ring_on | np.isfinite(t_wait) | on_release
-        t_wait = np.where(np.isfinite(t_wait), t_wait, 0.0)
-        t_after = np.where(ring_on & ~held, t_ring,
-                           np.where(on_release, t_release, np.maximum(t_wait, t_release)))
-        t_off = np.where(ccm, t_cross, t_demag + t_after)
-        ring_turn = ring_on & ~held & ~ccm
-        # current at the next turn-on: what is left in CCM; on the ring the
-        # magnetizing current is negative (it discharges the node
-        # capacitance), -(V_R / Z0) sin(phase) with Z0 = sqrt(Lm / C), damped
-        ring_current = vr / self.ring_impedance * np.sin(phase) \
-            * self.ring_damping ** (phase / np.pi)
-        residual = np.where(ccm, np.maximum(peak - vr * t_cross / self.lm, 0.0),
-                            np.where(ring_turn, -ring_current, 0.0))
-        vc_after = np.where((t_release > t_wait) | on_release,
-                            self._reset(vc_demag, 0.0, t_release),
-                            self.v_threshold)
-        vc_next = np.where(ccm, limit_plateau, np.where(ring_turn, vc_demag,
-                                                       np.minimum(vc_after, vc_demag)))
-        va_next = (self._aux_decay(va_plateau, t_after) if self.aux_state
-                   else np.zeros_like(vr))
-        mode = np.where(ccm, 2, np.where(ring_turn, 1, 0))
-        off_end = np.where(ccm | ring_turn, 0,
-                           np.where(held & ((t_release >= t_wait) | on_release), 2, 1))
-        period = t_on + t_off
-        frequency = 1.0 / period
+        frequency = 1.0 / (t_on + t_off)
         # ---- energy per cycle
-        aux = plateau_aux
         transferred = 0.5 * self.lm * (peak**2 - residual**2)
         t_flyback = np.where(ccm, t_cross, t_demag)
         core_off = vr**2 / tr.core_loss_resistance * t_flyback
@@ -897,13 +785,6 @@ class _Cycle:
                                      clamp.resistance)
         return vr + leakage_spike(peak, tr.leakage_inductance, d.node_capacitance)
 
-    def _aux_decay(self, va, duration):
-        """Auxiliary capacitor drained through the zener path for ``duration`` [V]."""
-        if not self.aux_state:
-            return va
-        floor = self.aux_floor
-        return np.where(va > floor, floor + (va - floor) * np.exp(-duration / self.aux_tau), va)
-
     # ------------------------------------------------ drive-capacitor reset
     # While the feedback winding holds the base negative, three paths reset
     # the drive capacitor (voltage v_C, winding side positive):
@@ -918,16 +799,9 @@ class _Cycle:
     #   3. the slow path: base-emitter resistor and start-up current.
     # Breakdown (1) stops carrying current at v_C* = w + VEBO + R_b (VEBO -
     # V_d)(1 + beta_R)/R_lb, where path 2 alone holds the base at -VEBO;
-    # path 2 is taken as finished within _JUNCTION_END of its asymptote.
-
-    def _reset_constants(self, winding):
-        dr, lim, sw = self.design.drive, self.design.limiter, self.design.switch
-        drop = self.vbe_limiter
-        inverse = 1.0 + LIMITER_REVERSE_GAIN
-        knee = winding + sw.vebo + dr.resistance * np.maximum(sw.vebo - drop, 0.0) \
-            * inverse / lim.base_resistance
-        tau_cb = self._clamp_resistance() * dr.capacitance
-        return drop, knee, tau_cb
+    # path 2 is taken as finished within rcc._cycle_kernel.JUNCTION_END of its
+    # asymptote.  The compiled timing evaluates these stages
+    # (rcc._cycle_kernel.reset, reset_cross).
 
     def _clamp_resistance(self):
         """Resistance of the inverse-mode limiter reset path, ``R_b + R_lb /
@@ -953,121 +827,10 @@ class _Cycle:
         amplitude is ``V_R``.  Parallel RLC step response: Nilsson & Riedel,
         Electric Circuits, 10th ed., 2015, sec. 8.3.
         """
-        drop, _, _ = self._reset_constants(winding)
-        junction = winding + drop
-        x_release = np.maximum(vc - junction, 0.0) / self.nb
-        clamped = x_release > 0.0
-        if not np.any(clamped):
-            return vr + 0.0 * vc
-        zeta = 0.5 * self.nb**2 / self._clamp_resistance() * self.ring_impedance
-        zeta = zeta + 0.0 * vc
-        # (the two real roots merge at zeta = 1: keep off it by 1e-7)
-        zeta = np.where(np.abs(zeta - 1.0) < 1e-7, 1.0 + 1e-7, zeta)
-        omega = self.omega + 0.0 * vc
-        root = np.sqrt(zeta.astype(complex) ** 2 - 1.0)
-        s1, s2 = omega * (-zeta + root), omega * (-zeta - root)
-        c1, c2 = -vr * s2 / (s2 - s1), vr * s1 / (s2 - s1)
-
-        def position(t):
-            return vr + np.real(c1 * np.exp(s1 * t) + c2 * np.exp(s2 * t))
-
-        # end of the first swing (underdamped: its peak; overdamped: 40 slow
-        # time constants, where x has reached V_R)
-        under = zeta < 1.0
-        with np.errstate(invalid="ignore", divide="ignore"):
-            t_end = np.where(under, np.pi / (omega * np.sqrt(np.abs(1.0 - zeta**2))),
-                             40.0 / (omega * (zeta - np.sqrt(np.maximum(zeta**2 - 1.0, 0.0)))))
-        releases = clamped & (position(t_end) >= x_release)
-        # x rises monotonically over the first swing: Newton's method from the
-        # undamped crossing (x = V_R (1 - cos omega t)), kept inside the
-        # bracket (bisection where a step leaves it)
-        low, high = np.zeros_like(t_end), t_end.copy()
-        t_release = np.clip(np.arccos(np.clip(1.0 - x_release / vr, -1.0, 1.0)) / omega,
-                            0.0, t_end)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            for _ in range(_RING_ITERATIONS):
-                e1, e2 = c1 * np.exp(s1 * t_release), c2 * np.exp(s2 * t_release)
-                gap = vr + np.real(e1 + e2) - x_release
-                below = gap < 0.0
-                low, high = np.where(below, t_release, low), np.where(below, high, t_release)
-                step = t_release - gap / np.real(s1 * e1 + s2 * e2)
-                t_release = np.where((step >= low) & (step <= high), step, 0.5 * (low + high))
-        speed = np.real(c1 * s1 * np.exp(s1 * t_release) + c2 * s2 * np.exp(s2 * t_release))
-        amplitude = np.hypot(x_release - vr, speed / omega)
-        return np.where(~clamped, vr, np.where(releases, amplitude, 0.0))
-
-    def _reset(self, vc, winding, duration):
-        """Drive-capacitor voltage after ``duration`` with the winding at ``winding``."""
-        sw = self.design.switch
-        drop, knee, tau_cb = self._reset_constants(winding)
-        floor = winding + sw.vebo
-        # stage 1: breakdown clamp down to the knee
-        t1 = np.where(vc > knee, self.tau * np.log(np.maximum(
-            (vc - floor) / np.maximum(knee - floor, 1e-300), 1.0)), 0.0)
-        in_stage1 = duration < t1
-        v1 = floor + (vc - floor) * np.exp(-np.minimum(duration, t1) / self.tau)
-        start2 = np.where(vc > knee, knee, vc)
-        left = np.maximum(duration - t1, 0.0)
-        # stage 2: collector-base junction of the limiter
-        junction = winding + drop
-        above = start2 > junction
-        v2 = np.where(above, junction + (start2 - junction) * np.exp(-left / tau_cb), start2)
-        t2 = np.where(above, tau_cb * np.log(np.maximum(
-            (start2 - junction) / _JUNCTION_END, 1.0)), 0.0)
-        # stage 3: slow path for what is left
-        left3 = np.maximum(left - t2, 0.0)
-        v3 = self._slow(v2, winding, left3)
-        return np.where(in_stage1, v1, np.where(left < t2, v2, v3))
-
-    def _reset_cross(self, vc, winding, level):
-        """Time for the drive capacitor to fall to ``level`` (inf if never)."""
-        sw = self.design.switch
-        drop, knee, tau_cb = self._reset_constants(winding)
-        floor = winding + sw.vebo
-        junction = winding + drop
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            # stage 1 reaches down to the knee
-            t_knee = np.where(vc > knee, self.tau * np.log(
-                (vc - floor) / np.maximum(knee - floor, 1e-300)), 0.0)
-            t_in1 = self.tau * np.log((vc - floor) / np.maximum(level - floor, 1e-300))
-            start2 = np.minimum(vc, knee)
-            # stage 2 down to the junction asymptote
-            t_in2 = tau_cb * np.log((start2 - junction) / np.maximum(level - junction, 1e-300))
-            t_end2 = np.where(start2 > junction, tau_cb * np.log(np.maximum(
-                (start2 - junction) / _JUNCTION_END, 1.0)), 0.0)
-            start3 = np.minimum(start2, junction + _JUNCTION_END)
-            t_in3 = self._slow_cross(np.maximum(start3, level), winding, level)
-        t = np.where(
-            vc <= level, 0.0,
-            np.where(level >= knee, t_in1,
-                     np.where(level > junction + _JUNCTION_END, t_knee + t_in2,
-                              t_knee + t_end2 + t_in3)))
-        return np.where(np.isnan(t), np.inf, t)
-
-    def _slow(self, vc, winding, duration):
-        """Drive capacitor on the slow path (base-emitter resistor and
-        start-up current) after ``duration``."""
-        if np.isinf(self._tau_slow):
-            current = self.startup_current
-            return vc - current * duration / self.design.drive.capacitance
-        target = winding - self.startup_current * self.rbe
-        return target + (vc - target) * np.exp(-duration / self._tau_slow)
-
-    def _slow_cross(self, vc, winding, level):
-        """Time for the drive capacitor to fall to ``level`` on the slow path."""
-        cb = self.design.drive.capacitance
-        tau_slow = self._tau_slow
-        if np.isinf(tau_slow):
-            # start-up resistor current only: linear discharge
-            current = np.maximum(self.startup_current, 1e-30)
-            t = cb * (vc - level) / current
-            return np.where(vc <= level, 0.0, t)
-        target = winding - self.startup_current * self.rbe
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = (vc - target) / (level - target)
-            t = tau_slow * np.log(ratio)
-        reachable = level > target
-        return np.where(vc <= level, 0.0, np.where(reachable & (ratio > 0), t, np.inf))
+        vc, winding, vr, drop = (np.ravel(value) for value in np.broadcast_arrays(
+            *(np.asarray(value, dtype=float) for value in (vc, winding, vr,
+                                                           self.vbe_limiter))))
+        return kernel.ring_after_clamp_many(self.constants, drop, vc, winding, vr)
 
 
 def operating_points(design: Design, line_voltage, load, temperature=None, hfe=None):
@@ -1350,9 +1113,12 @@ _STATE_KEYS = ("vc", "i0", "va")
 _STATE_SCALES = (1.0, 1e-3, 1.0)
 
 
-def _map(cycle: "_Cycle", voltage, states, losses=False):
+def _map(cycle: "_Cycle", voltage, states, losses=False, energy=True):
+    """One cycle from the states ``(vc, i0, va)`` at a turn-on: the cycle's
+    quantities and the states at the next turn-on (without ``energy``, the
+    states only: what the fixed-point and pattern searches need)."""
     state = cycle.evaluate(voltage, states[..., 0], states[..., 1], states[..., 2],
-                           losses=losses)
+                           losses=losses, energy=energy)
     image = np.stack([state["vc_next"], state["residual"],
                       np.broadcast_to(state["va_next"], np.shape(state["vc_next"]))], axis=-1)
     return state, image
@@ -1380,7 +1146,8 @@ def _newton_fixed_point(cycle, voltage, x, iterations):
         image = known_image[active]
         fresh = ~known[active]
         if fresh.any():
-            _, image[fresh] = _map(cycle.subset(active[fresh]), va[fresh], xa[fresh])
+            _, image[fresh] = _map(cycle.subset(active[fresh]), va[fresh], xa[fresh],
+                                   energy=False)
         known[active] = False
         residual = image - xa
         size = np.max(np.abs(residual) / (np.abs(xa) + scale[active]), axis=-1)
@@ -1403,7 +1170,7 @@ def _newton_fixed_point(cycle, voltage, x, iterations):
             for column in range(3):
                 shifted[column, :, column] += step[:, column]
             _, images = _map(cycle.subset(np.tile(active, 3)), np.tile(va, 3),
-                             shifted.reshape(3 * count, 3))
+                             shifted.reshape(3 * count, 3), energy=False)
             images = images.reshape(3, count, 3)
             jacobian = np.empty(xa.shape + (3,))
             for column in range(3):
@@ -1412,7 +1179,7 @@ def _newton_fixed_point(cycle, voltage, x, iterations):
             singular = ~(np.abs(np.linalg.det(system)) > 1e-12)
             system = np.where(singular[:, None, None], -identity, system)
             newton = xa - np.linalg.solve(system, residual[..., None])[..., 0]
-            _, trial_image = _map(cycle.subset(active), va, newton)
+            _, trial_image = _map(cycle.subset(active), va, newton, energy=False)
             trial_size = np.max(np.abs(trial_image - newton)
                                 / (np.abs(newton) + scale[active]), axis=-1)
             better = np.isfinite(trial_size) & (trial_size < size)
@@ -1460,7 +1227,7 @@ def _settle(cycle: "_Cycle", voltage, state_in, losses=False):
         history = [x[loose]]
         found = np.zeros(loose.size, dtype=int)
         for _ in range(_PATTERN_CYCLES):
-            _, x_next = _map(sub, voltage[loose], history[-1])
+            _, x_next = _map(sub, voltage[loose], history[-1], energy=False)
             x_next = np.where((found > 0)[:, None], history[-1], x_next)
             history.append(x_next)
             for lag in range(1, min(_MAX_PERIOD, len(history) - 1) + 1):

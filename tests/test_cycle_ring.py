@@ -29,7 +29,7 @@ def _integrated_amplitude(cycle, vc, winding, vr):
     """Free-ring amplitude about the bus after the clamp lets go, by RK45."""
     lm, capacitance = cycle.lm, cycle.design.node_capacitance
     conductance = cycle.nb**2 / cycle._clamp_resistance()
-    drop, _, _ = cycle._reset_constants(np.array([winding]))
+    drop = cycle.vbe_limiter
     x_release = (vc - (winding + float(drop[0]))) / cycle.nb
     if x_release <= 0.0:
         return vr
@@ -58,7 +58,7 @@ def _integrated_amplitude(cycle, vc, winding, vr):
 ])
 def test_loaded_ring_matches_integrated_circuit(index, bus, winding, vr):
     cycle = _cycle(index, bus)
-    drop, _, _ = cycle._reset_constants(np.array([winding]))
+    drop = cycle.vbe_limiter
     junction = winding + float(drop[0])
     # from no reset current left to a clamp the swing cannot lift
     for vc in np.linspace(junction - 0.5, junction + 2.5 * cycle.nb * vr, 9):
@@ -66,7 +66,7 @@ def test_loaded_ring_matches_integrated_circuit(index, bus, winding, vr):
                                                np.array([vr]))[0])
         integrated = _integrated_amplitude(cycle, vc, winding, vr)
         # 1e-6: the cycle model's well-posedness tolerance (tests/test_well_posed.py);
-        # the closed form's Newton is within 1e-10 (rcc.cycle._RING_ITERATIONS) and
+        # the closed form's Newton is within 1e-10 (rcc._cycle_kernel.RING_ITERATIONS) and
         # RK45 at rtol 1e-11 with event location within about 1e-9 of the swing
         assert closed == pytest.approx(integrated, rel=1e-6, abs=1e-6 * vr), vc
 
@@ -94,7 +94,7 @@ def test_clamped_first_swing_is_the_damped_step_response():
     assert np.max(solution.y[0]) - vr == pytest.approx(overshoot, rel=1e-4)
     # a clamp that needs more than the damped swing never lets go: no ring
     winding = -2.72
-    drop, _, _ = cycle._reset_constants(np.array([winding]))
+    drop = cycle.vbe_limiter
     vc_stuck = winding + float(drop[0]) + cycle.nb * (vr + overshoot) * 1.01
     assert cycle._ring_after_clamp(np.array([vc_stuck]), np.array([winding]),
                                    np.array([vr]))[0] == 0.0

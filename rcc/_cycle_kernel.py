@@ -1,0 +1,425 @@
+"""Compiled timing of one switching cycle (internal to :mod:`rcc.cycle`).
+
+The cycle model's map (the state at one turn-on to the state at the next)
+is evaluated thousands of times per operating point: inside Newton's method
+for its fixed point, inside the scan and the balance of the output, inside
+the balance of the bulk capacitor.  Written with numpy, one evaluation of a
+handful of points is dominated by the per-call cost of some 300 small array
+operations.  The timing part of the map (on-time decision, storage, turn-off,
+drive-capacitor reset, ring, off-time, next state) is therefore one scalar
+loop compiled with numba; the energy bookkeeping, which calls the device and
+stress formulas of :mod:`rcc.devices` and :mod:`rcc.stress`, stays in numpy
+in :meth:`rcc.cycle._Cycle.evaluate`.
+
+The physics and its sources are documented at the call site
+(:meth:`rcc.cycle._Cycle.evaluate`, the methods of :class:`rcc.cycle._Cycle`
+and ``notes/cycle_model.md``); each function here names the method whose
+equations it evaluates.  Every quantity is in SI units.  Arithmetic follows
+numpy's rules (``error_model="numpy"``: a division by zero gives inf or nan,
+never an exception), as the vectorized code it replaces did.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from rcc._numba_cache import configure as _configure_numba_cache
+
+_configure_numba_cache()  # per-user kernel cache (before numba loads)
+
+from numba import njit  # noqa: E402
+
+#: A junction reset path is taken as finished this close to its asymptote [V]
+#: (the stages are described in ``rcc.cycle``, "drive-capacitor reset").
+JUNCTION_END = 0.05
+#: Safeguarded Newton steps for the instant the loaded ring frees the base
+#: (quadratic convergence: within 1e-10 of the swing on the population) [1].
+RING_ITERATIONS = 10
+#: Newton steps of the storage time with a rising collector current [1]
+#: (as :func:`rcc.devices.storage_time_rising_current`).
+STORAGE_ITERATIONS = 12
+#: Relative tolerance of the on-time decision (safeguarded Newton) [1].
+DECISION_TOLERANCE = 1e-13
+DECISION_ITERATIONS = 100
+
+# ---- per-point inputs (columns of ``points``)
+POINT_NAMES = (
+    "vr", "plateau_aux", "ireg0", "vc0", "i0", "va0", "bus", "hfe", "steal_gain", "slope",
+    "v_on", "startup_current", "bleed", "thermal_voltage", "vbe_limiter", "v_threshold",
+    "aux_floor", "aux_hold",
+)
+# ---- design constants (entries of ``constants``)
+CONSTANT_NAMES = (
+    "rb", "rlb", "rs", "tau", "aux_tau", "storage_constant", "node", "nb", "lm", "vebo",
+    "inverse_gain", "clamp_resistance", "cb", "tau_slow", "rbe", "omega", "ring_impedance",
+    "ring_damping", "limiter_gain", "zener_resistance", "filter_capacitance", "aux_state",
+    "linear_slow",
+)
+# ---- outputs (columns of the result)
+OUTPUT_NAMES = (
+    "ireg", "itrip", "peak", "t_on", "t_off", "t_rise", "on_end", "off_end", "mode",
+    "vc_next", "va_next", "residual", "restarts", "drive_capability", "crossing", "left",
+    "vc_end", "vc_demag", "ccm", "t_cross", "t_demag", "aux_charge", "phase", "ring_on",
+    "charge_base", "limit_plateau",
+)
+
+# column indices of ``points`` (numba reads module globals as constants)
+(P_VR, P_PLATEAU_AUX, P_IREG0, P_VC0, P_I0, P_VA0, P_BUS, P_HFE, P_STEAL_GAIN, P_SLOPE,
+ P_V_ON, P_STARTUP_CURRENT, P_BLEED, P_THERMAL_VOLTAGE, P_VBE_LIMITER, P_V_THRESHOLD,
+ P_AUX_FLOOR, P_AUX_HOLD) = range(18)
+# column indices of ``constants`` (numba reads module globals as constants)
+(C_RB, C_RLB, C_RS, C_TAU, C_AUX_TAU, C_STORAGE_CONSTANT, C_NODE, C_NB, C_LM, C_VEBO,
+ C_INVERSE_GAIN, C_CLAMP_RESISTANCE, C_CB, C_TAU_SLOW, C_RBE, C_OMEGA,
+ C_RING_IMPEDANCE, C_RING_DAMPING, C_LIMITER_GAIN, C_ZENER_RESISTANCE,
+ C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW) = range(23)
+
+
+@njit(cache=True, error_model="numpy")
+def storage_time_rising(tau, base_on, base_off, collector, slope, gain):
+    """:func:`rcc.devices.storage_time_rising_current` for one point [s]."""
+    drive = gain * (base_on + base_off)
+    hold = gain * base_off
+    t = 0.0
+    for _ in range(STORAGE_ITERATIONS):
+        decay = np.exp(-t / tau)
+        residual = collector + slope * t - (drive * decay - hold)
+        derivative = slope + drive * decay / tau
+        t = max(t - residual / derivative, 0.0)
+    return t if drive - hold > collector else 0.0
+
+
+@njit(cache=True, error_model="numpy")
+def _slow(c, startup_current, vc, winding, duration):
+    """``_Cycle._slow``: the drive capacitor on the slow path after ``duration`` [V]."""
+    if c[C_LINEAR_SLOW] > 0.0:
+        return vc - startup_current * duration / c[C_CB]
+    target = winding - startup_current * c[C_RBE]
+    return target + (vc - target) * np.exp(-duration / c[C_TAU_SLOW])
+
+
+@njit(cache=True, error_model="numpy")
+def _slow_cross(c, startup_current, vc, winding, level):
+    """``_Cycle._slow_cross``: time to fall to ``level`` on the slow path [s]."""
+    if c[C_LINEAR_SLOW] > 0.0:
+        current = max(startup_current, 1e-30)
+        return 0.0 if vc <= level else c[C_CB] * (vc - level) / current
+    target = winding - startup_current * c[C_RBE]
+    ratio = (vc - target) / (level - target)
+    if vc <= level:
+        return 0.0
+    if level > target and ratio > 0.0:
+        return c[C_TAU_SLOW] * np.log(ratio)
+    return np.inf
+
+
+@njit(cache=True, error_model="numpy")
+def _knee(c, drop, winding):
+    """Drive-capacitor voltage where base-emitter breakdown stops conducting [V]."""
+    return winding + c[C_VEBO] + c[C_RB] * max(c[C_VEBO] - drop, 0.0) \
+        * c[C_INVERSE_GAIN] / c[C_RLB]
+
+
+@njit(cache=True, error_model="numpy")
+def reset(c, drop, startup_current, vc, winding, duration):
+    """``_Cycle._reset``: the drive capacitor after ``duration`` with the winding at
+    ``winding`` [V]."""
+    knee = _knee(c, drop, winding)
+    tau_cb = c[C_CLAMP_RESISTANCE] * c[C_CB]
+    floor = winding + c[C_VEBO]
+    t1 = c[C_TAU] * np.log(max((vc - floor) / max(knee - floor, 1e-300), 1.0)) \
+        if vc > knee else 0.0
+    if duration < t1:
+        return floor + (vc - floor) * np.exp(-min(duration, t1) / c[C_TAU])
+    start2 = knee if vc > knee else vc
+    left = max(duration - t1, 0.0)
+    junction = winding + drop
+    if start2 > junction:
+        v2 = junction + (start2 - junction) * np.exp(-left / tau_cb)
+        t2 = tau_cb * np.log(max((start2 - junction) / JUNCTION_END, 1.0))
+    else:
+        v2 = start2
+        t2 = 0.0
+    if left < t2:
+        return v2
+    return _slow(c, startup_current, v2, winding, max(left - t2, 0.0))
+
+
+@njit(cache=True, error_model="numpy")
+def reset_cross(c, drop, startup_current, vc, winding, level):
+    """``_Cycle._reset_cross``: time for the drive capacitor to fall to ``level``
+    (inf if never) [s]."""
+    if vc <= level:
+        return 0.0
+    knee = _knee(c, drop, winding)
+    tau_cb = c[C_CLAMP_RESISTANCE] * c[C_CB]
+    floor = winding + c[C_VEBO]
+    junction = winding + drop
+    if level >= knee:
+        t = c[C_TAU] * np.log((vc - floor) / max(level - floor, 1e-300))
+    else:
+        t_knee = c[C_TAU] * np.log((vc - floor) / max(knee - floor, 1e-300)) \
+            if vc > knee else 0.0
+        start2 = min(vc, knee)
+        if level > junction + JUNCTION_END:
+            t = t_knee + tau_cb * np.log((start2 - junction) / max(level - junction, 1e-300))
+        else:
+            t_end2 = tau_cb * np.log(max((start2 - junction) / JUNCTION_END, 1.0)) \
+                if start2 > junction else 0.0
+            start3 = min(start2, junction + JUNCTION_END)
+            t = t_knee + t_end2 + _slow_cross(c, startup_current, max(start3, level),
+                                              winding, level)
+    return np.inf if np.isnan(t) else t
+
+
+@njit(cache=True, error_model="numpy")
+def ring_after_clamp(c, drop, vc, winding, vr):
+    """``_Cycle._ring_after_clamp``: amplitude of the free ring once the base
+    clamps let go [V, primary]."""
+    nb, omega = c[C_NB], c[C_OMEGA]
+    x_release = max(vc - (winding + drop), 0.0) / nb
+    if not x_release > 0.0:
+        return vr
+    zeta = 0.5 * nb**2 / c[C_CLAMP_RESISTANCE] * c[C_RING_IMPEDANCE]
+    # (the two real roots merge at zeta = 1: keep off it by 1e-7)
+    if abs(zeta - 1.0) < 1e-7:
+        zeta = 1.0 + 1e-7
+    root = np.sqrt(complex(zeta) ** 2 - 1.0)
+    s1, s2 = omega * (-zeta + root), omega * (-zeta - root)
+    c1, c2 = -vr * s2 / (s2 - s1), vr * s1 / (s2 - s1)
+    if zeta < 1.0:
+        t_end = np.pi / (omega * np.sqrt(abs(1.0 - zeta**2)))
+    else:
+        t_end = 40.0 / (omega * (zeta - np.sqrt(max(zeta**2 - 1.0, 0.0))))
+    if not vr + (c1 * np.exp(s1 * t_end) + c2 * np.exp(s2 * t_end)).real >= x_release:
+        return 0.0
+    low, high = 0.0, t_end
+    t = min(max(np.arccos(min(max(1.0 - x_release / vr, -1.0), 1.0)) / omega, 0.0), t_end)
+    for _ in range(RING_ITERATIONS):
+        e1, e2 = c1 * np.exp(s1 * t), c2 * np.exp(s2 * t)
+        gap = vr + (e1 + e2).real - x_release
+        if gap < 0.0:
+            low = t
+        else:
+            high = t
+        step = t - gap / (s1 * e1 + s2 * e2).real
+        t = step if low <= step <= high else 0.5 * (low + high)
+    speed = (c1 * s1 * np.exp(s1 * t) + c2 * s2 * np.exp(s2 * t)).real
+    return np.hypot(x_release - vr, speed / omega)
+
+
+@njit(cache=True, error_model="numpy")
+def _aux_decay(c, floor, va, duration):
+    """``_Cycle._aux_decay``: the auxiliary capacitor drained through the zener
+    path for ``duration`` [V]."""
+    if c[C_AUX_STATE] > 0.0 and va > floor:
+        return floor + (va - floor) * np.exp(-duration / c[C_AUX_TAU])
+    return va
+
+
+@njit(cache=True, error_model="numpy")
+def _excess(p, c, amplitude, offset, reg_drop, t):
+    """Ramp minus the current the base can hold at ``t`` [A], and its rate [A/s]."""
+    tau, a_tau, rs = c[C_TAU], c[C_AUX_TAU], c[C_RS]
+    gain, hfe, vt = p[P_STEAL_GAIN], p[P_HFE], p[P_THERMAL_VOLTAGE]
+    decay = amplitude * np.exp(-t / tau)
+    drive = max(decay + offset, 1e-12)
+    own = hfe * (decay + offset)
+    own_rate = -hfe * decay / tau
+    aux_decay = reg_drop * np.exp(-t / a_tau)
+    if drive > 1e-3:
+        lift = vt * np.log(drive / 1e-3)
+        lift_rate = -vt * decay / tau / drive
+    else:
+        lift = 0.0
+        lift_rate = 0.0
+    ideal = (p[P_VBE_LIMITER] + lift) / rs - aux_decay
+    shared = (own + gain * ideal) / (1.0 + gain)
+    shared_rate = (own_rate + gain * (aux_decay / a_tau + lift_rate / rs)) / (1.0 + gain)
+    if shared < own:
+        return p[P_I0] + p[P_SLOPE] * t - shared, p[P_SLOPE] - shared_rate
+    return p[P_I0] + p[P_SLOPE] * t - own, p[P_SLOPE] - own_rate
+
+
+@njit(cache=True, error_model="numpy")
+def _decision(p, c, amplitude, offset, reg_drop, high):
+    """``rcc.cycle._newton_in_bracket`` on the excess over ``[0, high]`` [s]."""
+    low = 0.0
+    value, _ = _excess(p, c, amplitude, offset, reg_drop, low)
+    if value >= 0.0 or not high > low:
+        return low if value >= 0.0 else high
+    t = high
+    for _ in range(DECISION_ITERATIONS):
+        f, df = _excess(p, c, amplitude, offset, reg_drop, t)
+        if f >= 0.0:
+            high = t
+        else:
+            low = t
+        step = t - f / df
+        new = step if (np.isfinite(step) and low < step < high) else 0.5 * (low + high)
+        moved = abs(new - t)
+        if f == 0.0:
+            return t
+        if moved <= DECISION_TOLERANCE * max(abs(new), 1e-300) \
+                or high - low <= DECISION_TOLERANCE * abs(high):
+            return min(max(new, low), high)
+        t = new
+    return high
+
+
+@njit(cache=True, error_model="numpy")
+def _point(p, c, out):
+    """One switching cycle of one point: ``rcc.cycle._Cycle.evaluate``'s timing."""
+    rb, tau, rlb, rs = c[C_RB], c[C_TAU], c[C_RLB], c[C_RS]
+    nb, lm, a_tau = c[C_NB], c[C_LM], c[C_AUX_TAU]
+    aux_state = c[C_AUX_STATE] > 0.0
+    vr, plateau_aux, ireg0 = p[P_VR], p[P_PLATEAU_AUX], p[P_IREG0]
+    vc0, i0, va0 = p[P_VC0], p[P_I0], p[P_VA0]
+    bus, hfe, slope = p[P_BUS], p[P_HFE], p[P_SLOPE]
+    startup, drop, vt = p[P_STARTUP_CURRENT], p[P_VBE_LIMITER], p[P_THERMAL_VOLTAGE]
+    v_threshold = p[P_V_THRESHOLD]
+    # ---- on-time decision
+    amplitude = max(p[P_V_ON] - vc0, 0.0) / rb
+    offset = startup - p[P_BLEED]
+    reg_drop = rlb * ireg0 / rs
+    t_high = max((hfe * max(amplitude + offset, 0.0) - i0) / slope, 0.0)
+    t_decision = _decision(p, c, amplitude, offset, reg_drop, t_high)
+    i_decision = i0 + slope * t_decision
+    base_now = amplitude * np.exp(-t_decision / tau) + offset
+    drive = max(base_now, 1e-12)
+    lift = vt * np.log(drive / 1e-3) if drive > 1e-3 else 0.0
+    ideal_trip = (drop + lift - rlb * ireg0 * np.exp(-t_decision / a_tau)) / rs
+    base_decision = max(base_now, 0.0)
+    drive_ends = hfe * base_decision <= ideal_trip
+    ireg = ireg0 * np.exp(-t_decision / a_tau)
+    itrip = max(ideal_trip, 0.0)
+    storage = storage_time_rising(c[C_STORAGE_CONSTANT], base_decision, base_decision,
+                                  i_decision, slope, hfe)
+    peak = i_decision + (0.0 if drive_ends else slope * storage)
+    # ---- turn-off transition
+    node = c[C_NODE]
+    droop = (hfe if drive_ends else 1.0 / c[C_LIMITER_GAIN]) * nb / rb
+    rise = node / droop
+    t_rise = rise * np.log1p(droop**2 * bus / (slope * node))
+    v_reverse = min(bus, peak / droop)
+    crossing = rise * (peak * v_reverse - 0.5 * droop * v_reverse**2)
+    left = max(peak - droop * bus, 0.0)
+    t_switch = (peak - i0) / slope
+    base_end = amplitude * np.exp(-t_switch / tau) + offset
+    drive_capability = hfe * max(base_end, 0.0)
+    peak = peak + slope * max(t_rise - rise, 0.0)
+    t_on = t_switch + t_rise
+    on_end = 0.0 if drive_ends else (2.0 if ireg > 0.0 else 1.0)
+    v_on = p[P_V_ON]
+    vc_end = v_on + (vc0 - v_on) * np.exp(-t_on / tau)
+    charge_base = amplitude * tau * (1.0 - np.exp(-t_on / tau)) + offset * t_on
+    # ---- off-time: flyback plateau
+    t_demag = lm * peak / vr
+    winding_plateau = -nb * vr
+    vc_demag = reset(c, drop, startup, vc_end, winding_plateau, t_demag)
+    if aux_state:
+        floor, hold = p[P_AUX_FLOOR], p[P_AUX_HOLD]
+        va_on_end = _aux_decay(c, floor, va0, t_on)
+        va_plateau = max(plateau_aux, _aux_decay(c, floor, va_on_end, t_demag))
+        aux_charge = c[C_FILTER_CAPACITANCE] * max(plateau_aux - va_on_end, 0.0)
+        if plateau_aux >= va_on_end:
+            aux_charge += max(plateau_aux - floor, 0.0) / c[C_ZENER_RESISTANCE] * t_demag
+        t_release = a_tau * np.log(max(va_plateau - floor, 1e-300) / (hold - floor)) \
+            if va_plateau > hold else 0.0
+        held_plateau = plateau_aux > hold
+    else:
+        floor = 0.0
+        va_plateau = 0.0
+        aux_charge = 0.0
+        t_release = 0.0
+        held_plateau = False
+    limit_plateau = v_threshold + winding_plateau
+    t_cross = reset_cross(c, drop, startup, vc_end, winding_plateau, limit_plateau)
+    ccm = (t_cross < t_demag) and not held_plateau
+    # ---- ring after demagnetization
+    need = vc_demag - v_threshold
+    free = ring_after_clamp(c, drop, vc_demag, winding_plateau, vr)
+    ring_peak = nb * min(free * c[C_RING_DAMPING], bus)
+    ring_on = need <= ring_peak
+    phase = np.arccos(min(max(-need / (nb * vr), -1.0), 1.0))
+    omega = c[C_OMEGA]
+    t_ring = phase / omega
+    held = t_release > (t_ring if ring_on else 0.0)
+    zeta_hold = 0.25 * nb**2 * c[C_RING_IMPEDANCE] * (1.0 / rb + 1.0 / c[C_CLAMP_RESISTANCE])
+    ring_left = (nb * free * c[C_RING_DAMPING] ** (2.0 * omega * t_release / np.pi)
+                 * np.exp(-zeta_hold * omega * t_release))
+    on_release = held and need <= min(ring_left, ring_peak)
+    # ---- waiting for the slow path (drive-capacitor timing)
+    t_wait = reset_cross(c, drop, startup, vc_demag, 0.0, v_threshold)
+    restarts = ccm or ring_on or np.isfinite(t_wait) or on_release
+    if not np.isfinite(t_wait):
+        t_wait = 0.0
+    if ring_on and not held:
+        t_after = t_ring
+    elif on_release:
+        t_after = t_release
+    else:
+        t_after = max(t_wait, t_release)
+    t_off = t_cross if ccm else t_demag + t_after
+    ring_turn = ring_on and not held and not ccm
+    if ccm:
+        residual = max(peak - vr * t_cross / lm, 0.0)
+    elif ring_turn:
+        residual = -(vr / c[C_RING_IMPEDANCE] * np.sin(phase)
+                     * c[C_RING_DAMPING] ** (phase / np.pi))
+    else:
+        residual = 0.0
+    if t_release > t_wait or on_release:
+        vc_after = reset(c, drop, startup, vc_demag, 0.0, t_release)
+    else:
+        vc_after = v_threshold
+    if ccm:
+        vc_next = limit_plateau
+    elif ring_turn:
+        vc_next = vc_demag
+    else:
+        vc_next = min(vc_after, vc_demag)
+    va_next = _aux_decay(c, floor, va_plateau, t_after) if aux_state else 0.0
+    mode = 2.0 if ccm else (1.0 if ring_turn else 0.0)
+    if ccm or ring_turn:
+        off_end = 0.0
+    elif held and (t_release >= t_wait or on_release):
+        off_end = 2.0
+    else:
+        off_end = 1.0
+    values = (ireg, itrip, peak, t_on, t_off, t_rise, on_end, off_end, mode, vc_next,
+              va_next, residual, 1.0 if restarts else 0.0, drive_capability, crossing, left, vc_end,
+              vc_demag, 1.0 if ccm else 0.0, t_cross, t_demag, aux_charge, phase, 1.0 if ring_on else 0.0,
+              charge_base, limit_plateau)
+    for k in range(len(values)):
+        out[k] = values[k]
+
+
+@njit(cache=True, error_model="numpy")
+def cycle_timing(points, constants):
+    """Timing of one switching cycle at every point.
+
+    Parameters
+    ----------
+    points : ndarray, shape (n, len(POINT_NAMES))
+        Per-point inputs, columns as :data:`POINT_NAMES` [SI].
+    constants : ndarray, shape (len(CONSTANT_NAMES),)
+        Design constants, as :data:`CONSTANT_NAMES` [SI].
+
+    Returns
+    -------
+    ndarray, shape (n, len(OUTPUT_NAMES))
+        Outputs, columns as :data:`OUTPUT_NAMES` [SI; flags and codes as 0/1/2].
+    """
+    out = np.empty((points.shape[0], len(OUTPUT_NAMES)))
+    for n in range(points.shape[0]):
+        _point(points[n], constants, out[n])
+    return out
+
+
+@njit(cache=True, error_model="numpy")
+def ring_after_clamp_many(constants, drop, vc, winding, vr):
+    """:func:`ring_after_clamp` over flat arrays of equal length [V]."""
+    out = np.empty(vc.shape[0])
+    for n in range(vc.shape[0]):
+        out[n] = ring_after_clamp(constants, drop[n], vc[n], winding[n], vr[n])
+    return out
