@@ -8,11 +8,13 @@ the off-time (demagnetization and the resonant ring, or the drive
 capacitor's timing), the conduction mode, the peak current, the frequency
 and the output voltage that balances the delivered power against the load.
 
-Everything is vectorized with numpy: inputs broadcast against each other
-and no Python loop runs per point.  The output voltage is found by
-bisection on the power balance; the drive-capacitor state is carried from
-one bisection step to the next, which is the cycle-to-cycle map of the
-drive capacitor iterated to its fixed point.
+Inputs broadcast against each other and every solve runs on all points at
+once: the timing of one switching cycle is a loop over the points compiled
+with numba (:mod:`rcc._cycle_kernel`), the rest is numpy.  The map from the
+states at one turn-on (drive capacitor, turn-on current, auxiliary
+capacitor) to those at the next is solved for its fixed point (or its
+repeating pattern) at each output voltage; the output voltage is the root
+of the power balance, reached from power-on (see :func:`_solve_output`).
 
 References
 ----------
@@ -446,51 +448,53 @@ def _voltage_for_power(load, power, fallback):
 def _first_crossing(function, low, high, tolerance=1e-15, iterations=200, jump=None):
     """Root of an increasing-through-zero function on a bracket, to tolerance.
 
-    ``function(low) < 0 <= function(high)`` is expected; where already
-    ``function(low) >= 0`` the result is ``low``.  Regula falsi with the
-    Illinois modification (Dowell & Jarratt, BIT 11 (1971) 168-174): the
-    bracket always holds the sign change and shrinks superlinearly; the loop
-    stops when every bracket is narrower than ``tolerance`` relative (or the
-    residual is exactly zero), never after a fixed count of steps, so the
+    ``function(x, index)`` returns the function at ``x`` for the flat point
+    indices ``index`` (the points still iterating: converged points are not
+    evaluated again).  ``function(low) < 0 <= function(high)`` is expected;
+    where already ``function(low) >= 0`` the result is ``low``.  Regula falsi
+    with the Illinois modification (Dowell & Jarratt, BIT 11 (1971) 168-174):
+    the bracket always holds the sign change and shrinks superlinearly; the
+    loop stops when every bracket is narrower than ``tolerance`` relative (or
+    the residual is exactly zero), never after a fixed count of steps, so the
     result does not move when an input moves by one part in 10^12.
     """
     low, high = np.broadcast_arrays(np.asarray(low, float), np.asarray(high, float))
-    low, high = low.astype(float), high.astype(float)
-    f_low = np.asarray(function(low), dtype=float) * np.ones_like(low)
-    f_high = np.asarray(function(high), dtype=float) * np.ones_like(low)
-    done = (f_low >= 0.0) | (high <= low)
+    shape = low.shape
+    low, high = low.astype(float).reshape(-1), high.astype(float).reshape(-1)
+    everything = np.arange(low.size)
+    f_low = np.asarray(function(low, everything), dtype=float) * np.ones_like(low)
+    f_high = np.asarray(function(high, everything), dtype=float) * np.ones_like(low)
     result = np.where(f_low >= 0.0, low, high)
+    active = np.flatnonzero(~((f_low >= 0.0) | (high <= low)))
     side = np.zeros(low.shape, dtype=int)
     for _ in range(iterations):
-        active = ~done
-        if not active.any():
+        if active.size == 0:
             break
-        span = f_high - f_low
+        lo, hi, fl, fh = low[active], high[active], f_low[active], f_high[active]
         with np.errstate(divide="ignore", invalid="ignore"):
-            trial = high - f_high * (high - low) / span
-        bad = ~np.isfinite(trial) | (trial <= low) | (trial >= high)
-        trial = np.where(bad, 0.5 * (low + high), trial)
-        f_trial = np.asarray(function(trial), dtype=float) * np.ones_like(low)
+            trial = hi - fh * (hi - lo) / (fh - fl)
+        bad = ~np.isfinite(trial) | (trial <= lo) | (trial >= hi)
+        trial = np.where(bad, 0.5 * (lo + hi), trial)
+        f_trial = np.asarray(function(trial, active), dtype=float) * np.ones_like(trial)
         positive = f_trial >= 0.0
         # Illinois: halve the stale end's value when the same end is kept twice
-        keep_low = positive & active
-        keep_high = ~positive & active
-        f_low = np.where(keep_low & (side == -1), 0.5 * f_low, f_low)
-        f_high = np.where(keep_high & (side == 1), 0.5 * f_high, f_high)
-        high = np.where(keep_low, trial, high)
-        f_high = np.where(keep_low, f_trial, f_high)
-        low = np.where(keep_high, trial, low)
-        f_low = np.where(keep_high, f_trial, f_low)
-        side = np.where(keep_low, -1, np.where(keep_high, 1, side))
-        width = high - low
-        converged = (width <= tolerance * np.maximum(np.abs(high), 1e-300)) | (f_trial == 0.0)
+        s = side[active]
+        fl = np.where(positive & (s == -1), 0.5 * fl, fl)
+        fh = np.where(~positive & (s == 1), 0.5 * fh, fh)
+        hi, fh = np.where(positive, trial, hi), np.where(positive, f_trial, fh)
+        lo, fl = np.where(positive, lo, trial), np.where(positive, fl, f_trial)
+        low[active], high[active], f_low[active], f_high[active] = lo, hi, fl, fh
+        side[active] = np.where(positive, -1, 1)
+        width = hi - lo
+        converged = (width <= tolerance * np.maximum(np.abs(hi), 1e-300)) | (f_trial == 0.0)
         if jump is not None:
             # a jump of the function across zero (no root): located to 1e-6
-            converged |= (width <= 1e-6 * np.abs(high)) & (np.minimum(
-                np.abs(f_low), np.abs(f_high)) > jump)
-        result = np.where(active, high, result)
-        done = done | (active & converged)
-    return result
+            step = np.reshape(np.broadcast_to(jump, shape), -1)[active]
+            converged |= (width <= 1e-6 * np.abs(hi)) & (np.minimum(
+                np.abs(fl), np.abs(fh)) > step)
+        result[active] = hi
+        active = active[~converged]
+    return result.reshape(shape)
 
 
 #: Per-point attributes of :class:`_Cycle` the compiled timing reads
@@ -1377,16 +1381,21 @@ def _balance(cycle, load, low, high, seed):
     bracket (at first ``seed``, what the rising output brought along): the
     path of a rising output, as from power-on.
     """
-    memory = {key: np.array(value, dtype=float) for key, value in seed.items()}
-    memory_voltage = np.array(low, dtype=float)
+    shape = np.shape(low)
+    memory = {key: np.array(np.broadcast_to(value, shape), dtype=float).reshape(-1)
+              for key, value in seed.items()}
+    memory_voltage = np.array(np.broadcast_to(low, shape), dtype=float).reshape(-1)
+    flat_load = load.take(slice(None))
 
-    def deficit(voltage):
-        state, settled = _settle(cycle, voltage, memory)
-        surplus = _surplus(state, load, voltage)
-        lower = (surplus > 0.0) & (voltage >= memory_voltage)
+    def deficit(voltage, index):
+        part = flat_load.take(index)
+        state, settled = _settle(cycle.subset(index), voltage,
+                                 {key: value[index] for key, value in memory.items()})
+        surplus = _surplus(state, part, voltage)
+        lower = (surplus > 0.0) & (voltage >= memory_voltage[index])
         for key in memory:
-            memory[key] = np.where(lower, settled[key], memory[key])
-        memory_voltage[...] = np.where(lower, voltage, memory_voltage)
+            memory[key][index] = np.where(lower, settled[key], memory[key][index])
+        memory_voltage[index] = np.where(lower, voltage, memory_voltage[index])
         return -surplus
 
     return _first_crossing(deficit, low, high, tolerance=1e-8,
@@ -1503,7 +1512,7 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     lockup = higher & (output < 0.8 * reference) & any_positive
     sits_at_bottom = has_barrier & ~refine
     seed = {key: np.where(burst, scan_states[key][-1], seed[key]) for key in seed}
-    state, states = _settle(cycle, output, seed)
+    state, states = _settle(cycle, output, seed, losses=True)
     # a jump of the surplus across zero (the drive-capacitor regime changes
     # between neighbouring outputs): no exact root exists and the circuit
     # mixes the two cycles; take the side with the surplus and scale the
@@ -1511,7 +1520,6 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     load_power = _load_power(load, output)
     jump = (np.abs(_surplus(state, load, output)) > 1e-6 * np.maximum(load_power, 1e-9)) \
         & ~burst & ~sits_at_bottom & refine
-    state, states = _settle(cycle, output, seed, losses=True)
     if jump.any():
         # the balance sits on a jump of the surplus between two cycle
         # regimes: the supply alternates between the regime below the jump
@@ -1690,19 +1698,20 @@ def limit_power_capability(design: Design, line_voltage, temperature, hfe=None):
     output = np.broadcast_to(np.asarray(target, dtype=float), line_voltage.shape)
     gain = current_gain(hfe, design.switch.hfe_tempco, temperature)
 
-    def delivered(power):
-        bus = np.maximum(bus_voltage(design, line_voltage, power * 1.25), 1.0)
-        cycle = _Cycle(unregulated, bus, temperature, gain)
+    def delivered(power, index=slice(None)):
+        line, heat = (np.reshape(value, -1)[index] for value in (line_voltage, temperature))
+        bus = np.maximum(bus_voltage(design, line, power * 1.25), 1.0)
+        cycle = _Cycle(unregulated, bus, heat, np.reshape(gain, -1)[index])
         start = {"vc": np.minimum(cycle.v_threshold, 0.0) + np.zeros_like(bus),
                  "i0": np.zeros_like(bus), "va": np.zeros_like(bus)}
-        state, _ = _settle(cycle, output, start)
+        state, _ = _settle(cycle, np.reshape(output, -1)[index], start)
         return np.where(state["restarts"], np.maximum(state["delivered"], 0.0), 0.0)
 
-    at_peak = delivered(np.zeros_like(output))
+    at_peak = delivered(np.zeros(output.size)).reshape(output.shape)
     if not design.input.is_ac:
         return at_peak
-    return _first_crossing(lambda power: power - delivered(power), np.zeros_like(output),
-                           at_peak, tolerance=_BUS_TOLERANCE)
+    return _first_crossing(lambda power, index: power - delivered(power, index),
+                           np.zeros_like(output), at_peak, tolerance=_BUS_TOLERANCE)
 
 
 def _doubts(design, line, bus, temperature, running, mode, state, on_time, off_time,
