@@ -89,9 +89,17 @@ class Stress:
                 for name, value in self.__dict__.items()}
 
 
-#: Default wall-clock budget for solving doubtful operating points with the
-#: engine from power-on (:func:`solve_doubtful_points`) [s].
+#: Default budget for solving doubtful operating points with the engine from
+#: power-on (:func:`solve_doubtful_points`), in nominal engine time [s].
 ENGINE_BUDGET = 20.0
+#: Nominal engine speed the budget is counted in: switching cycles per second
+#: (``benchmarks/bench_engine.py``: 3,204 cycles/s on the idle 2-core
+#: development machine, 2026-12-02) [1/s] ...
+ENGINE_NOMINAL_RATE = 3000.0
+#: ... and set-up per run (about 2,000 topologies at about 1 ms each,
+#: ``notes/benchmarks.md``) [s].  The budget is spent by these nominal costs,
+#: never by the clock, so what a check solves is the same on every machine.
+ENGINE_NOMINAL_SETUP = 2.0
 #: Mode reported for an engine-solved point, by kind of operation
 #: (:data:`rcc.operation.KINDS`): the engine run says whether the switching
 #: repeats, not which conduction mode a regular cycle is in.
@@ -149,7 +157,8 @@ class CheckReport:
         The doubtful points of the grid and what the engine from power-on said
         at each (:func:`solve_doubtful_points`); empty when not run.
     engine_budget : float or None
-        Wall-clock budget those runs were given; ``None`` when not run [s].
+        Budget those runs were given, in nominal engine time
+        (:func:`solve_doubtful_points`); ``None`` when not run [s].
     corners : tuple of rcc.cycle.OperatingPoints
         The points solved at the temperature x gain corners of the highest and
         lowest line, per load (the stress, drive and overload findings rest on
@@ -359,9 +368,12 @@ def solve_doubtful_points(report: CheckReport, budget: float = ENGINE_BUDGET,
     report : CheckReport
         From :func:`check_design` (or :func:`rcc.analysis.full_check`).
     budget : float
-        Wall-clock time after which no further engine run is started; a run
-        started before finishes (at most
-        :data:`rcc.startup.start_line.INTO_LOAD_DURATION` simulated) [s].
+        Nominal engine time after which no further engine run is started; a
+        run started before finishes (at most
+        :data:`rcc.startup.start_line.INTO_LOAD_DURATION` simulated).  Each
+        run costs :data:`ENGINE_NOMINAL_SETUP` plus its planned switching
+        cycles at :data:`ENGINE_NOMINAL_RATE`, whatever the clock says, so the
+        points solved do not depend on the machine [s].
     progress : callable, optional
         Called as ``progress(done, total)`` after each doubtful point [1].
 
@@ -384,8 +396,6 @@ def solve_doubtful_points(report: CheckReport, budget: float = ENGINE_BUDGET,
     (:func:`rcc.engine.power_on.planned_duration`), cheapest first, so the
     budget solves as many points as it can.
     """
-    import time
-
     from rcc.engine.power_on import (expected_output_voltage, planned_duration,
                                      power_on_bus_voltage)
     from rcc.startup.start_line import INTO_LOAD_DURATION, power_on_run
@@ -413,13 +423,14 @@ def solve_doubtful_points(report: CheckReport, budget: float = ENGINE_BUDGET,
         queue.append((not doubt.startswith("invariant"), duration * frequency, index, doubt,
                       line, load))
     queue.sort(key=lambda item: item[:3])
-    started = time.perf_counter()
+    spent = 0.0
     total = len(queue)
-    for done, (_, _, index, doubt, line, load) in enumerate(queue, start=1):
-        if time.perf_counter() - started >= budget:
+    for done, (_, cycles, index, doubt, line, load) in enumerate(queue, start=1):
+        if spent >= budget:
             points.append(EnginePoint(index, doubt, None,
                                       f"time budget of {budget:.3g} s spent"))
         else:
+            spent += ENGINE_NOMINAL_SETUP + cycles / ENGINE_NOMINAL_RATE
             run = power_on_run(design, line, load, temperature, hfe, INTO_LOAD_DURATION)
             skipped = "" if run.kind in ENGINE_MODES else f"the engine failed: {run.message}"
             points.append(EnginePoint(index, doubt, run, skipped))

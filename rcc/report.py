@@ -109,7 +109,7 @@ def format_engine_points(records, budget=None) -> str:
     records : list of dict
         ``CheckReport.operating_point_records()`` (SI units) [-].
     budget : float, optional
-        The time budget the engine runs were given [s].
+        The budget the engine runs were given, in nominal engine time [s].
 
     Returns
     -------
@@ -123,7 +123,8 @@ def format_engine_points(records, budget=None) -> str:
     if not solved and not skipped:
         return ""
     out = ["Doubtful points solved by the engine from power-on"
-           + ("" if budget is None else f" (time budget {budget:.3g} s)"), ""]
+           + ("" if budget is None else f" (time budget {budget:.3g} s of nominal engine time)"),
+           ""]
     if solved:
         rows = []
         for r in solved:

@@ -23,8 +23,9 @@ def check(
                                 "differences (slow: seconds per point)."),
     engine_budget: str = typer.Option(
         "20s", "--engine-budget", metavar="TIME",
-        help="Wall-clock time for solving the points the cycle model doubts with the "
-             "engine from power-on, e.g. 60s; 0s solves none (they stay marked)."),
+        help="Engine time for solving the points the cycle model doubts with the "
+             "engine from power-on, e.g. 60s, counted at a fixed nominal engine speed "
+             "(the same points on every machine); 0s solves none (they stay marked)."),
     quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """Operating points at min/nominal/max line and load, stresses and findings.
