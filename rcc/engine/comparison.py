@@ -49,8 +49,11 @@ class VerifiedPoint:
         The engine's periodic steady state; ``None`` if there is none.
     error : str
         Why there is no steady state (empty otherwise).
-    frequency_difference, output_voltage_difference, peak_current_difference : float
-        ``engine / model - 1``; 0 where either is missing [1].
+    frequency_difference, output_voltage_difference, peak_current_difference : float or None
+        ``engine / model - 1``; 0 where there is no steady state or both are
+        zero; None where the cycle model gives zero (the supply off or locked
+        up) and the engine does not: no relative difference exists, and the
+        two disagree [1].
     event_sequence_changed : bool
         The event sequence differs from the previous point of the list
         (same temperature and line): a change of operating regime between
@@ -66,9 +69,9 @@ class VerifiedPoint:
     model_mode: str
     steady_state: PeriodicSteadyState | None
     error: str
-    frequency_difference: float
-    output_voltage_difference: float
-    peak_current_difference: float
+    frequency_difference: float | None
+    output_voltage_difference: float | None
+    peak_current_difference: float | None
     event_sequence_changed: bool
 
     def to_json(self) -> dict:
@@ -94,8 +97,10 @@ class VerifiedPoint:
         return data
 
 
-def _relative(engine: float, model: float) -> float:
-    return engine / model - 1.0 if model != 0.0 else 0.0
+def _relative(engine: float, model: float) -> float | None:
+    if model != 0.0:
+        return engine / model - 1.0
+    return 0.0 if engine == 0.0 else None
 
 
 def verify_operating_points(design, line_voltages, loads, temperatures=None, hfe=None):
