@@ -242,7 +242,14 @@ def _excess(p, c, amplitude, offset, reg_drop, t):
 
 @njit(cache=True, error_model="numpy")
 def _decision(p, c, amplitude, offset, reg_drop, high):
-    """``rcc.cycle._newton_in_bracket`` on the excess over ``[0, high]`` [s]."""
+    """First root of the excess on ``[0, high]`` by safeguarded Newton [s].
+
+    The excess is negative at 0 and not negative at ``high`` (where it is
+    already non-negative at 0 the result is 0).  A Newton step that leaves
+    the bracket is replaced by bisection and the bracket shrinks on every
+    step, so convergence is guaranteed; the loop stops when a step is below
+    :data:`DECISION_TOLERANCE` relative, not after a fixed count.
+    """
     low = 0.0
     value, _ = _excess(p, c, amplitude, offset, reg_drop, low)
     if value >= 0.0 or not high > low:
