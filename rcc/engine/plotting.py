@@ -98,6 +98,9 @@ def plot_waveforms(trace, title: str = "", cycles: int = 3, axes=None,
         axes[row, 0].set_ylabel(f"{label} [{unit}]")
         for ax in axes[row]:
             ax.grid(True, alpha=0.3)
+            # absolute values on the axis (an offset like "+3.139e2" over a
+            # bus that moves by 0.1 V hides the level an engineer reads)
+            ax.ticklabel_format(axis="y", useOffset=False, style="plain")
     axes[-1, 0].set_xlabel(f"time [{unit_t}] (start-up)")
     # the zoom's time axis starts at the window (absolute microseconds late
     # in a run have too many digits to read)
