@@ -467,6 +467,8 @@ def _first_crossing(function, low, high, tolerance=1e-15, iterations=200, jump=N
     result = np.where(f_low >= 0.0, low, high)
     active = np.flatnonzero(~((f_low >= 0.0) | (high <= low)))
     side = np.zeros(low.shape, dtype=int)
+    if jump is not None:
+        jump = np.reshape(np.broadcast_to(jump, shape), -1)
     for _ in range(iterations):
         if active.size == 0:
             break
@@ -489,9 +491,8 @@ def _first_crossing(function, low, high, tolerance=1e-15, iterations=200, jump=N
         converged = (width <= tolerance * np.maximum(np.abs(hi), 1e-300)) | (f_trial == 0.0)
         if jump is not None:
             # a jump of the function across zero (no root): located to 1e-6
-            step = np.reshape(np.broadcast_to(jump, shape), -1)[active]
             converged |= (width <= 1e-6 * np.abs(hi)) & (np.minimum(
-                np.abs(fl), np.abs(fh)) > step)
+                np.abs(fl), np.abs(fh)) > jump[active])
         result[active] = hi
         active = active[~converged]
     return result.reshape(shape)
@@ -679,6 +680,8 @@ class _Cycle:
                                      self.constants)
         out = {name: timing[:, index].reshape(shape)
                for index, name in enumerate(kernel.OUTPUT_NAMES)}
+        if not energy:
+            return {name: out[name] for name in ("vc_next", "residual", "va_next")}
         (ireg, itrip, peak, t_on, t_off, t_rise, vc_next, va_next, residual,
          drive_capability, crossing, left, vc_end, vc_demag, t_cross, t_demag, aux_charge,
          phase, charge_base, limit_plateau) = (out[name] for name in (
@@ -688,8 +691,6 @@ class _Cycle:
         on_end, off_end, mode = (out[name].astype(int) for name in ("on_end", "off_end",
                                                                      "mode"))
         ccm, ring_on, restarts = (out[name] > 0.5 for name in ("ccm", "ring_on", "restarts"))
-        if not energy:
-            return dict(vc_next=vc_next, residual=residual, va_next=va_next)
         vr, i0 = np.broadcast_to(vr, shape), np.broadcast_to(i0, shape)
         aux = np.broadcast_to(plateau_aux, shape)
         node = d.node_capacitance
