@@ -81,3 +81,52 @@ def test_one_part_in_1e12_moves_nothing(case):
     compared += _assert_close(points, moved, base, base, "magnetizing inductance")
     # the exception for regime boundaries must stay an exception
     assert compared >= 2 * count, compared
+
+
+#: Seeded population the well-posedness sweep covers (rcc.population, seed 1:
+#: the first 25 designs, the same ones as the reduced accuracy run in
+#: notes/accuracy.md); designs nobody tuned
+POPULATION_SEED = 1
+POPULATION_DESIGNS = 25
+
+
+@pytest.mark.parametrize("index", range(POPULATION_DESIGNS))
+def test_population_one_part_in_1e12_moves_nothing(index):
+    """The same sweep on generated designs: lowest, nominal and highest line
+    at 10/50/100 % of the design's largest load, line and load each moved by
+    one part in 10^12 (one vectorized call).
+
+    Points the model reports on a regime boundary are excused as in the
+    worked cases; on these 25 designs that is 38 of 225 points (17 %, the
+    mixed-regime bursts; measured 2026-12-03), so the check asserts only that
+    each design keeps some compared points."""
+    from rcc.population import generate_one
+
+    design = generate_one(POPULATION_SEED, index).design
+    line, load, temperature = _grid(design)
+    up = 1.0 + PERTURBATION
+    points = operating_points(design, np.concatenate([line, line * up, line]),
+                              np.concatenate([load, load, load * up]),
+                              np.concatenate([temperature] * 3))
+    count = line.size
+    base = np.arange(count)
+    compared = sum(_assert_close(points, points, base, base + count * block, what)
+                   for block, what in enumerate(("line", "load"), start=1))
+    assert compared > 0, compared
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "pop-1-0022 at 90 V, 0.408848 A: the cycle pattern at the balance is irregular "
+    "(no repeat within 64 cycles), its surplus is a window average with jumps at every "
+    "scale, and the balance lands on either side of one: burst 37.5 kHz against "
+    "irregular 17.2 kHz. The point is flagged 'invariant: energy per cycle' and routed "
+    "to the engine, so the numbers are not printed (notes/accuracy.md)"))
+def test_population_irregular_pattern_point():
+    from rcc.population import generate_one
+
+    design = generate_one(POPULATION_SEED, 22).design
+    line = np.array([90.0, 90.0 * (1.0 + PERTURBATION)])
+    points = operating_points(design, line, np.full(2, 0.408848), np.full(2, 298.15))
+    # both sides are routed to the engine (a doubt), whatever the mode
+    assert points.doubt[0] and points.doubt[1], tuple(points.doubt)
+    assert points.mode[0] == points.mode[1], tuple(points.mode)
