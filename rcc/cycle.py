@@ -42,7 +42,8 @@ from rcc.design import Design, Load
 from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain,
                           fall_time_charge_control,
                           thermal_voltage, turn_off_energy, zener_voltage)
-from rcc.stress import clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_voltage
+from rcc.stress import (clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_cycle,
+                         rcd_clamp_periodic)
 from rcc.limiter import (LIMITER_REVERSE_GAIN, auxiliary_voltage, regulation_current,
                          trip_current)
 from rcc.mains import bus_voltage
@@ -194,6 +195,11 @@ class OperatingPoints:
         hFE times the base current at the end of the on-time [A].
     reflected_voltage : ndarray
         Reflected output voltage [V].
+    clamp_voltage : ndarray
+        Highest collector voltage above the bus after turn-off: the RCD clamp
+        capacitor's peak (the highest over a pattern's cycles, the capacitor
+        carried through them), the zener clamp voltage, or with no clamp the
+        reflected voltage plus the leakage spike into the node capacitance [V].
     regulation_current : ndarray
         Regulation current injected into the limiter base [A].
     mode : ndarray of str
@@ -265,6 +271,7 @@ class OperatingPoints:
     trip_current: np.ndarray
     drive_capability: np.ndarray
     reflected_voltage: np.ndarray
+    clamp_voltage: np.ndarray
     regulation_current: np.ndarray
     mode: np.ndarray
     on_end: np.ndarray
@@ -605,7 +612,8 @@ class _Cycle:
                                             d.transformer.output_turns,
                                             d.regulation.rectifier_drop), 0.0)
 
-    def evaluate(self, output_voltage, vc0, i0, va0=None, losses=False, energy=True):
+    def evaluate(self, output_voltage, vc0, i0, va0=None, losses=False, energy=True,
+                 clamp0=None):
         """One switching cycle from the states at a turn-on (vectorized).
 
         The timing (on-time decision, storage, turn-off, drive-capacitor
@@ -649,9 +657,16 @@ class _Cycle:
         - the turn-on current is what is left in CCM, and on the ring the
           negative magnetizing current ``-(V_R / Z_0) sin(phase)``, damped.
 
+        The RCD clamp capacitor is a slow state of its own that does not act
+        on the timing: ``clamp0`` is its voltage above the bus at this
+        turn-off (default: the steady cycle's, :func:`rcc.stress.rcd_clamp_periodic`);
+        it takes this turn-off's leakage energy and what the magnetizing
+        current gives while it conducts (:func:`rcc.stress.rcd_clamp_cycle`),
+        and ``clamp_next`` is its voltage at the next turn-off.
+
         Returns a dict of arrays; with ``energy=False`` only the states at the
-        next turn-on (``vc_next``, ``residual``, ``va_next``), with
-        ``losses=True`` also the :class:`Losses`.
+        next turn-on (``vc_next``, ``residual``, ``va_next``) and the peak
+        current and cycle times, with ``losses=True`` also the :class:`Losses`.
         """
         d = self.design
         tr, sw, dr, lim = d.transformer, d.switch, d.drive, d.limiter
@@ -681,7 +696,10 @@ class _Cycle:
         out = {name: timing[:, index].reshape(shape)
                for index, name in enumerate(kernel.OUTPUT_NAMES)}
         if not energy:
-            return {name: out[name] for name in ("vc_next", "residual", "va_next")}
+            quick = {name: out[name] for name in ("vc_next", "residual", "va_next", "peak",
+                                                  "t_on", "t_off")}
+            quick["vr"] = np.broadcast_to(vr, shape)
+            return quick
         (ireg, itrip, peak, t_on, t_off, t_rise, vc_next, va_next, residual,
          drive_capability, crossing, left, vc_end, vc_demag, t_cross, t_demag, aux_charge,
          phase, charge_base, limit_plateau) = (out[name] for name in (
@@ -702,10 +720,16 @@ class _Cycle:
         # the clamp takes the leakage energy and, while the leakage current
         # falls, part of the magnetizing energy
         leakage_rate = leakage_energy_rate(tr.leakage_inductance, peak, frequency)
-        clamp_level = self._clamp_level(vr, peak, frequency)
-        clamp_rate = np.where(d.clamp.type == "none", leakage_rate,
-                              clamp_power(vr, clamp_level, tr.leakage_inductance, peak,
-                                          frequency))
+        if d.clamp.type == "rcd":
+            clamp = self.clamp_cycle(vr, peak, t_on + t_off, clamp0)
+            clamp_level = 0.5 * (clamp.start + clamp.end)
+            clamp_rate = clamp.energy * frequency
+            clamp_next, clamp_peak = clamp.following, clamp.end
+        else:
+            clamp_level = self._clamp_level(vr, peak, frequency)
+            clamp_rate = leakage_rate if d.clamp.type == "none" else clamp_power(
+                vr, clamp_level, tr.leakage_inductance, peak, frequency)
+            clamp_next, clamp_peak = np.zeros_like(peak), clamp_level
         # turn-off, second part: above the bus the reversed winding, in series
         # with the drive capacitor charged during the on-time, pulls the rest
         # of the forward charge out through R_b while the junction still sits
@@ -752,7 +776,8 @@ class _Cycle:
             frequency=frequency, delivered=delivered, on_end=on_end, off_end=off_end,
             mode=mode, vc_next=vc_next, va_next=va_next, residual=residual,
             restarts=restarts, drive_capability=drive_capability,
-            transferred=transferred, shortfall=shortfall,
+            transferred=transferred, shortfall=shortfall, clamp_next=clamp_next,
+            clamp_peak=np.broadcast_to(clamp_peak, np.shape(peak)),
         )
         if not losses:
             return state
@@ -781,15 +806,22 @@ class _Cycle:
         return state
 
     def _clamp_level(self, vr, peak, frequency):
-        """Collector voltage above the bus while the clamp conducts [V]."""
+        """Collector voltage above the bus while a zener clamp conducts, or
+        the leakage spike's peak with no clamp [V]."""
         d = self.design
-        tr, clamp = d.transformer, d.clamp
-        if clamp.type == "zener":
-            return np.broadcast_to(clamp.voltage, np.shape(vr)).astype(float)
-        if clamp.type == "rcd":
-            return rcd_clamp_voltage(vr, tr.leakage_inductance, peak, frequency,
-                                     clamp.resistance)
-        return vr + leakage_spike(peak, tr.leakage_inductance, d.node_capacitance)
+        if d.clamp.type == "zener":
+            return np.broadcast_to(d.clamp.voltage, np.shape(vr)).astype(float)
+        return vr + leakage_spike(peak, d.transformer.leakage_inductance, d.node_capacitance)
+
+    def clamp_cycle(self, vr, peak, cycle_time, clamp0=None):
+        """The RCD clamp capacitor through one cycle from ``clamp0`` (default
+        the steady cycle's level) (:class:`rcc.stress.RcdClampCycle`)."""
+        d = self.design
+        arguments = (d.transformer.leakage_inductance, peak, d.clamp.capacitance,
+                     d.clamp.resistance, cycle_time)
+        if clamp0 is None:
+            clamp0 = rcd_clamp_periodic(vr, *arguments)
+        return rcd_clamp_cycle(clamp0, vr, *arguments)
 
     # ------------------------------------------------ drive-capacitor reset
     # While the feedback winding holds the base negative, three paths reset
@@ -1119,12 +1151,13 @@ _STATE_KEYS = ("vc", "i0", "va")
 _STATE_SCALES = (1.0, 1e-3, 1.0)
 
 
-def _map(cycle: "_Cycle", voltage, states, losses=False, energy=True):
+def _map(cycle: "_Cycle", voltage, states, losses=False, energy=True, clamp=None):
     """One cycle from the states ``(vc, i0, va)`` at a turn-on: the cycle's
     quantities and the states at the next turn-on (without ``energy``, the
-    states only: what the fixed-point and pattern searches need)."""
+    states only: what the fixed-point and pattern searches need).  ``clamp``
+    is the RCD clamp capacitor's voltage (default: the steady cycle's)."""
     state = cycle.evaluate(voltage, states[..., 0], states[..., 1], states[..., 2],
-                           losses=losses, energy=energy)
+                           losses=losses, energy=energy, clamp0=clamp)
     image = np.stack([state["vc_next"], state["residual"],
                       np.broadcast_to(state["va_next"], np.shape(state["vc_next"]))], axis=-1)
     return state, image
@@ -1307,8 +1340,51 @@ def _unflatten(value, shape, size):
     return value
 
 
+def _clamp_pattern_start(cycle, voltage, x, length):
+    """RCD clamp capacitor voltage at the first turn-off of a repeating
+    pattern of ``length`` cycles (per point) from the states ``x`` [V].
+
+    The capacitor is carried through the pattern's cycles
+    (:func:`rcc.stress.rcd_clamp_cycle`, the times and peak currents of the
+    cycles, which it does not change) and must return to where it started:
+    the fixed point of the pattern map ``F``.  ``F`` is increasing and convex
+    with slope below ``exp(-T_pattern / (R C)) < 1``, so Newton's method from
+    ``v = 0`` (where ``F(v) > v``) climbs monotonically to the root; it stops
+    at 1e-12 relative.  An irregular sequence is taken as repeating its
+    window.
+    """
+    shape = np.shape(length)
+    count = int(length.max())
+    vr, peaks, times = None, [], []
+    for _ in range(count):
+        quick, x = _map(cycle, voltage, x, energy=False)
+        vr = quick["vr"]
+        peaks.append(quick["peak"])
+        times.append(quick["t_on"] + quick["t_off"])
+    start = np.zeros(shape)
+    for _ in range(100):
+        value, slope = start, np.ones(shape)
+        for k in range(count):
+            clamp = cycle.clamp_cycle(vr, peaks[k], times[k], value)
+            take = k < length
+            rising = np.where(value > vr, (clamp.start - vr) / (clamp.end - vr), 0.0)
+            slope = np.where(take, slope * rising * clamp.following / clamp.end, slope)
+            value = np.where(take, clamp.following, value)
+        gap = value - start
+        step = gap / (1.0 - slope)
+        start = start + step
+        if np.all(np.abs(step) <= 1e-12 * np.maximum(start, 1e-3)):
+            break
+    return start
+
+
 def _pattern_average(cycle, voltage, x, period, first, losses=False):
-    """Averages over one repetition of a cycle pattern (see :func:`_settle`)."""
+    """Averages over one repetition of a cycle pattern (see :func:`_settle`).
+
+    With an RCD clamp the clamp capacitor is carried through the pattern
+    from its periodic start (:func:`_clamp_pattern_start`): a long cycle of a
+    burst discharges it and the next turn-offs recharge it.
+    """
     length = np.where(period == 0, _IRREGULAR_WINDOW, period)
     count = int(length.max())
     shape = np.shape(period)
@@ -1317,10 +1393,16 @@ def _pattern_average(cycle, voltage, x, period, first, losses=False):
     peak_max = np.zeros(shape)
     largest = dict(first)
     state = first
+    rcd = cycle.design.clamp.type == "rcd"
+    clamp = _clamp_pattern_start(cycle, voltage, x, length) if rcd else None
+    clamp_peak = np.zeros(shape)
     for k in range(count):
-        if k:
-            state, _ = _map(cycle, voltage, x, losses)
+        if k or rcd:
+            state, _ = _map(cycle, voltage, x, losses, clamp=clamp)
+        if rcd:
+            clamp = state["clamp_next"]
         take = k < length
+        clamp_peak = np.where(take, np.maximum(clamp_peak, state["clamp_peak"]), clamp_peak)
         duration = state["t_on"] + state["t_off"]
         if losses:
             for item in fields(Losses):
@@ -1358,6 +1440,7 @@ def _pattern_average(cycle, voltage, x, period, first, losses=False):
     for key in ("mode", "on_end", "off_end", "restarts"):
         averaged[key] = np.where(multi, largest[key], first[key])
     averaged["peak"] = np.where(multi, peak_max, first["peak"])
+    averaged["clamp_peak"] = np.where(multi, clamp_peak, first["clamp_peak"])
     averaged["frequency"] = np.where(multi, cycles / weights, first["frequency"])
     averaged["pattern_period"] = np.where(multi, weights, 1.0 / first["frequency"])
     # the states that start the next repetition are those at its start
@@ -1430,6 +1513,8 @@ def _mix_regimes(first, second, share, where):
         mixed[key] = np.where(where & stronger, first[key], second[key])
     mixed["restarts"] = np.where(where, first["restarts"] | second["restarts"],
                                  second["restarts"])
+    mixed["clamp_peak"] = np.where(where, np.maximum(first["clamp_peak"], second["clamp_peak"]),
+                                   second["clamp_peak"])
     mixed["converged"] = second["converged"] & ~where
     if "losses" in first:
         mixed["losses"] = Losses(**{
@@ -1637,6 +1722,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
         trip_current=state["itrip"],
         drive_capability=state["drive_capability"],
         reflected_voltage=state["vr"],
+        clamp_voltage=np.where(running, state["clamp_peak"], 0.0),
         regulation_current=state["ireg"],
         mode=mode_names,
         on_end=np.array(ON_END)[state["on_end"]],

@@ -10,12 +10,17 @@ References
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 __all__ = [
     "leakage_spike",
     "rcd_clamp_voltage",
     "clamp_power",
+    "RcdClampCycle",
+    "rcd_clamp_cycle",
+    "rcd_clamp_periodic",
     "leakage_energy_rate",
     "peak_flux_density",
     "storage_overshoot",
@@ -149,6 +154,126 @@ def clamp_power(reflected_voltage, clamp_voltage, leakage_inductance, peak_curre
     vc = np.maximum(_as(clamp_voltage), vr * (1.0 + 1e-9))
     energy_rate = leakage_energy_rate(leakage_inductance, peak_current, switching_frequency)
     return energy_rate * vc / (vc - vr)
+
+
+@dataclass(frozen=True)
+class RcdClampCycle:
+    """One turn-off into an RCD clamp capacitor (:func:`rcd_clamp_cycle`).
+
+    Attributes
+    ----------
+    start : ndarray
+        Capacitor voltage above the bus when the leakage current starts to
+        fall (at least the reflected voltage) [V].
+    end : ndarray
+        Capacitor voltage above the bus when the leakage current has fallen
+        to zero: the collector's peak above the bus [V].
+    energy : ndarray
+        Energy into the capacitor in this turn-off: the leakage energy plus
+        what the magnetizing current gives while the clamp conducts [J].
+    following : ndarray
+        Capacitor voltage above the bus at the next turn-off, after the
+        resistor has discharged it for one cycle [V].
+    """
+
+    start: np.ndarray
+    end: np.ndarray
+    energy: np.ndarray
+    following: np.ndarray
+
+
+def rcd_clamp_cycle(clamp_voltage, reflected_voltage, leakage_inductance, peak_current,
+                    clamp_capacitance, clamp_resistance, cycle_time):
+    """An RCD clamp capacitor through one switching cycle.
+
+    Parameters
+    ----------
+    clamp_voltage : float or array_like
+        Capacitor voltage above the bus at turn-off [V].
+    reflected_voltage : float or array_like
+        Reflected voltage V_R [V].
+    leakage_inductance : float or array_like
+        Primary leakage inductance L_lk [H].
+    peak_current : float or array_like
+        Primary current at turn-off [A].
+    clamp_capacitance : float or array_like
+        Clamp capacitor C [F].
+    clamp_resistance : float or array_like
+        Clamp resistor R [ohm].
+    cycle_time : float or array_like
+        Time to the next turn-off [s].
+
+    Returns
+    -------
+    RcdClampCycle
+
+    Notes
+    -----
+    Below ``V_R`` the clamp diode conducts first and the whole primary
+    current charges the capacitor to ``V_R`` (energy ``C (V_R^2 - v^2)/2``
+    from the magnetizing inductance).  From there the output winding holds
+    the magnetizing inductance at ``V_R`` and the leakage current ``i``
+    charges the capacitor, ``L_lk di/dt = -(v - V_R)``, ``C dv/dt = i``: a
+    quarter of an LC oscillation in ``(i, v - V_R)`` that conserves
+    ``L_lk i^2/2 + C (v - V_R)^2/2``, so it ends at
+    ``v_end = V_R + sqrt((v_0 - V_R)^2 + L_lk Ipk^2 / C)``
+    (Nilsson & Riedel, *Electric Circuits*, 10th ed., 2015, sec. 8.1, the
+    LC natural response).  The resistor then discharges the capacitor,
+    ``v e^(-t/(R C))``, until the next turn-off (the diode blocks below the
+    collector voltage).  With ``R C`` much longer than the cycle the steady
+    level tends to :func:`rcd_clamp_voltage` ([1]_).
+    """
+    v, vr = _as(clamp_voltage), _as(reflected_voltage)
+    capacitance = _as(clamp_capacitance)
+    start = np.maximum(v, vr)
+    end = vr + np.sqrt((start - vr) ** 2
+                       + _as(leakage_inductance) * _as(peak_current) ** 2 / capacitance)
+    energy = 0.5 * capacitance * (end**2 - v**2)
+    following = end * np.exp(-_as(cycle_time) / (_as(clamp_resistance) * capacitance))
+    return RcdClampCycle(start=start, end=end, energy=energy, following=following)
+
+
+def rcd_clamp_periodic(reflected_voltage, leakage_inductance, peak_current,
+                       clamp_capacitance, clamp_resistance, cycle_time):
+    """Capacitor voltage of an RCD clamp at turn-off in a steady cycle.
+
+    Parameters
+    ----------
+    reflected_voltage : float or array_like
+        Reflected voltage V_R [V].
+    leakage_inductance : float or array_like
+        Primary leakage inductance [H].
+    peak_current : float or array_like
+        Primary current at turn-off [A].
+    clamp_capacitance : float or array_like
+        Clamp capacitor C [F].
+    clamp_resistance : float or array_like
+        Clamp resistor R [ohm].
+    cycle_time : float or array_like
+        Switching period T [s].
+
+    Returns
+    -------
+    ndarray
+        The fixed point ``v`` of :func:`rcd_clamp_cycle` (``following == v``)
+        [V above the bus].
+
+    Notes
+    -----
+    With ``a = e^(-T/(R C))``, ``b = L_lk Ipk^2 / C`` and ``x = v - V_R >= 0``
+    the fixed point ``x + V_R = a (V_R + sqrt(x^2 + b))`` is the root of
+    ``(1 + a) x^2 + 2 V_R x + V_R^2 (1 - a) - a^2 b / (1 - a) = 0``:
+    ``x = (a sqrt(V_R^2 + b (1 + a)/(1 - a)) - V_R) / (1 + a)``.  Where that
+    is negative the capacitor discharges below ``V_R`` every cycle and
+    ``v = a (V_R + sqrt(b))``.  (Derived here from :func:`rcd_clamp_cycle`.)
+    """
+    vr = _as(reflected_voltage)
+    ratio = _as(cycle_time) / (_as(clamp_resistance) * _as(clamp_capacitance))
+    a = np.exp(-ratio)
+    one_minus_a = -np.expm1(-ratio)
+    b = _as(leakage_inductance) * _as(peak_current) ** 2 / _as(clamp_capacitance)
+    x = (a * np.sqrt(vr**2 + b * (1.0 + a) / one_minus_a) - vr) / (1.0 + a)
+    return np.where(x >= 0.0, vr + x, a * (vr + np.sqrt(b)))
 
 
 def peak_flux_density(magnetizing_inductance, peak_current, primary_turns, core_area):

@@ -87,9 +87,11 @@ def test_fix_open_startup_resistor(open_resistor_fixes):
     # the start-up resistor sets neither the current limit nor what the supply
     # would do once running: the core flux at the current limit of this old
     # design revision (core-saturation, found since the cycle model's loaded
-    # ring and inverse-mode reset, notes/cycle_model.md) stays unfixed too
+    # ring and inverse-mode reset, notes/cycle_model.md) stays unfixed too, as
+    # does the collector peak of the RCD clamp capacitor at high line (567 V
+    # against 80 % of VCEV, 560 V, since the clamp capacitor is a cycle state)
     others = set(original.failing) - {"no-start", "no-restart"}
-    assert others <= {"core-saturation"}
+    assert others <= {"core-saturation", "switch-overvoltage"}
     # (nor what a running supply then shows: its output, drive and voltage
     # findings belong to the old revision, not to the open resistor)
     assert {"overload"} | others <= set(result.unfixed)
