@@ -217,6 +217,33 @@ def _aux_decay(c, floor, va, duration):
 
 
 @njit(cache=True, error_model="numpy")
+def _aux_hold_decay(c, floor, drop, va, t_inverse, duration):
+    """The auxiliary capacitor drained for ``duration`` after
+    demagnetization: towards ``floor - drop/2`` while the ring still drives
+    the limiter's collector-base junction (``t < t_inverse``), towards
+    ``floor`` after that [V] (``_Cycle.evaluate``, regulation by dead time)."""
+    first = min(duration, t_inverse)
+    va = _aux_decay(c, floor - 0.5 * drop, va, first)
+    return _aux_decay(c, floor, va, duration - first)
+
+
+@njit(cache=True, error_model="numpy")
+def _hold_release(c, floor, drop, hold, va, t_inverse):
+    """Time after demagnetization at which the auxiliary capacitor, drained as
+    in :func:`_aux_hold_decay`, reaches the limiter's hold level ``hold``
+    (0 if it starts below) [s]."""
+    if not va > hold:
+        return 0.0
+    a_tau = c[C_AUX_TAU]
+    low = floor - 0.5 * drop
+    t = a_tau * np.log((va - low) / (hold - low))
+    if t <= t_inverse:
+        return t
+    va = _aux_decay(c, low, va, t_inverse)
+    return t_inverse + a_tau * np.log(max(va - floor, 1e-300) / (hold - floor))
+
+
+@njit(cache=True, error_model="numpy")
 def _excess(p, c, amplitude, offset, reg_drop, t):
     """Ramp minus the current the base can hold at ``t`` [A], and its rate [A/s]."""
     tau, a_tau, rs = c[C_TAU], c[C_AUX_TAU], c[C_RS]
@@ -330,14 +357,12 @@ def _point(p, c, out):
         aux_charge = c[C_FILTER_CAPACITANCE] * max(plateau_aux - va_on_end, 0.0)
         if plateau_aux >= va_on_end:
             aux_charge += max(plateau_aux - floor, 0.0) / c[C_ZENER_RESISTANCE] * t_demag
-        t_release = a_tau * np.log(max(va_plateau - floor, 1e-300) / (hold - floor)) \
-            if va_plateau > hold else 0.0
         held_plateau = plateau_aux > hold
     else:
         floor = 0.0
+        hold = 0.0
         va_plateau = 0.0
         aux_charge = 0.0
-        t_release = 0.0
         held_plateau = False
     limit_plateau = v_threshold + winding_plateau
     t_cross = reset_cross(c, drop, startup, vc_end, winding_plateau, limit_plateau)
@@ -350,10 +375,27 @@ def _point(p, c, out):
     phase = np.arccos(min(max(-need / (nb * vr), -1.0), 1.0))
     omega = c[C_OMEGA]
     t_ring = phase / omega
-    held = t_release > (t_ring if ring_on else 0.0)
+    # the ring while the regulation path holds the limiter on: its amplitude
+    # decays at ``decay`` (core loss, ``ring_damping`` per half period, and the
+    # limiter's clamps, zeta_hold); while its negative swing pulls the base a
+    # junction drop below the emitter (until t_inverse), the limiter's
+    # collector-base junction conducts and pulls the limiter's base to about
+    # the emitter for half of each period, so the zener path drains the
+    # auxiliary capacitor towards Vz (not Vz + Vbe_lim) half of the time
     zeta_hold = 0.25 * nb**2 * c[C_RING_IMPEDANCE] * (1.0 / rb + 1.0 / c[C_CLAMP_RESISTANCE])
-    ring_left = (nb * free * c[C_RING_DAMPING] ** (2.0 * omega * t_release / np.pi)
-                 * np.exp(-zeta_hold * omega * t_release))
+    decay = zeta_hold * omega - omega / np.pi * np.log(c[C_RING_DAMPING])
+    swing = nb * free
+    reach = drop - vc_demag
+    if not reach > 0.0:
+        t_inverse = np.inf
+    elif swing > reach:
+        t_inverse = np.log(swing / reach) / decay
+    else:
+        t_inverse = 0.0
+    t_release = _hold_release(c, floor, drop, hold, va_plateau, t_inverse) \
+        if aux_state else 0.0
+    held = t_release > (t_ring if ring_on else 0.0)
+    ring_left = swing * np.exp(-decay * t_release)
     on_release = held and need <= min(ring_left, ring_peak)
     # ---- waiting for the slow path (drive-capacitor timing)
     t_wait = reset_cross(c, drop, startup, vc_demag, 0.0, v_threshold)
@@ -385,7 +427,8 @@ def _point(p, c, out):
         vc_next = vc_demag
     else:
         vc_next = min(vc_after, vc_demag)
-    va_next = _aux_decay(c, floor, va_plateau, t_after) if aux_state else 0.0
+    va_next = _aux_hold_decay(c, floor, drop, va_plateau, t_inverse, t_after) \
+        if aux_state else 0.0
     mode = 2.0 if ccm else (1.0 if ring_turn else 0.0)
     if ccm or ring_turn:
         off_end = 0.0

@@ -652,7 +652,11 @@ class _Cycle:
           ``zeta_hold = n_b^2 Z_0 (1/R_b + 1/R_cb) / 4`` on top of the core
           loss and the switch turns on at the release if the decayed ring
           still lifts the base; otherwise the drive capacitor's slow path
-          times the restart; a drive timer shorter than demagnetization
+          times the restart; while the ring's negative swing still reaches
+          the limiter's collector-base junction, the limiter's base falls to
+          about the emitter for half of each period and the zener path
+          drains the auxiliary capacitor towards ``Vz`` instead of
+          ``Vz + Vbe_lim`` then (``notes/cycle_model.md``, the hold's drain); a drive timer shorter than demagnetization
           turns the switch on during the plateau (CCM);
         - the turn-on current is what is left in CCM, and on the ring the
           negative magnetizing current ``-(V_R / Z_0) sin(phase)``, damped.
