@@ -301,6 +301,29 @@ def _decision(p, c, amplitude, offset, reg_drop, high):
 
 
 @njit(cache=True, error_model="numpy")
+def _plateau_reset(c, p, plateau_aux, drop):
+    """Constants and junction drop of the inverse-mode limiter reset path
+    while the flyback plateau holds the auxiliary capacitor at
+    ``plateau_aux``: the limiter's base is fed by ``R_lb`` from the emitter and
+    by the zener path from ``plateau_aux - Vz`` through ``R_z``; their
+    Thevenin source ``V_th`` lowers the junction's asymptote by ``V_th`` and
+    their parallel resistance ``R_th`` replaces ``R_lb`` (``_Cycle.evaluate``,
+    drive-capacitor reset)."""
+    rlb, rz = c[C_RLB], c[C_ZENER_RESISTANCE]
+    zener = p[P_AUX_FLOOR] - drop
+    if not plateau_aux > zener:
+        # the zener conducts only while the limiter's base is below
+        # V_ap - Vz < 0; near the reset's end that base rises to about the
+        # emitter, so the path is taken as off (it is off at the asymptote)
+        return c, drop
+    source = (plateau_aux - zener) * rlb / (rlb + rz)
+    plateau = c.copy()
+    plateau[C_RLB] = rlb * rz / (rlb + rz)
+    plateau[C_CLAMP_RESISTANCE] = c[C_RB] + plateau[C_RLB] / c[C_INVERSE_GAIN]
+    return plateau, drop - source
+
+
+@njit(cache=True, error_model="numpy")
 def _point(p, c, out):
     """One switching cycle of one point: ``rcc.cycle._Cycle.evaluate``'s timing."""
     rb, tau, rlb, rs = c[C_RB], c[C_TAU], c[C_RLB], c[C_RS]
@@ -349,7 +372,11 @@ def _point(p, c, out):
     # ---- off-time: flyback plateau
     t_demag = lm * peak / vr
     winding_plateau = -nb * vr
-    vc_demag = reset(c, drop, startup, vc_end, winding_plateau, t_demag)
+    # during the plateau the regulation zener also feeds the limiter's base
+    # (the auxiliary rectifier holds C_a at the plateau): the junction reset
+    # path sees the Thevenin source of R_lb (to the emitter) and the zener path
+    plateau, drop_plateau = _plateau_reset(c, p, plateau_aux, drop) if aux_state else (c, drop)
+    vc_demag = reset(plateau, drop_plateau, startup, vc_end, winding_plateau, t_demag)
     if aux_state:
         floor, hold = p[P_AUX_FLOOR], p[P_AUX_HOLD]
         va_on_end = _aux_decay(c, floor, va0, t_on)
@@ -365,11 +392,12 @@ def _point(p, c, out):
         aux_charge = 0.0
         held_plateau = False
     limit_plateau = v_threshold + winding_plateau
-    t_cross = reset_cross(c, drop, startup, vc_end, winding_plateau, limit_plateau)
+    t_cross = reset_cross(plateau, drop_plateau, startup, vc_end, winding_plateau,
+                          limit_plateau)
     ccm = (t_cross < t_demag) and not held_plateau
     # ---- ring after demagnetization
     need = vc_demag - v_threshold
-    free = ring_after_clamp(c, drop, vc_demag, winding_plateau, vr)
+    free = ring_after_clamp(plateau, drop_plateau, vc_demag, winding_plateau, vr)
     ring_peak = nb * min(free * c[C_RING_DAMPING], bus)
     ring_on = need <= ring_peak
     phase = np.arccos(min(max(-need / (nb * vr), -1.0), 1.0))

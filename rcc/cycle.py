@@ -837,7 +837,11 @@ class _Cycle:
     #      sense node at ground, plus the inverse transport current
     #      beta_R I_B from its emitter (Ebers & Moll 1954), so the base node
     #      sees R_lb / (1 + beta_R): v_C relaxes towards w + V_d with
-    #      tau_cb = R_cb C_b, R_cb = R_b + R_lb / (1 + beta_R);
+    #      tau_cb = R_cb C_b, R_cb = R_b + R_lb / (1 + beta_R); on the flyback
+    #      plateau with zener regulation the zener path (from V_ap - Vz
+    #      through R_z) feeds the limiter's base too: R_lb becomes
+    #      R_lb || R_z and the asymptote w + V_d - V_th, V_th = (V_ap - Vz)
+    #      R_lb / (R_lb + R_z) (notes/cycle_model.md);
     #   3. the slow path: base-emitter resistor and start-up current.
     # Breakdown (1) stops carrying current at v_C* = w + VEBO + R_b (VEBO -
     # V_d)(1 + beta_R)/R_lb, where path 2 alone holds the base at -VEBO;

@@ -36,3 +36,52 @@ def test_tables_of_names_match_the_indices():
     for prefix, names in (("P_", kernel.POINT_NAMES), ("C_", kernel.CONSTANT_NAMES)):
         for index, name in enumerate(names):
             assert getattr(kernel, prefix + name.upper()) == index
+
+
+@pytest.mark.parametrize("plateau_aux", [4.0, 10.9, 14.0])
+def test_plateau_reset_current_by_nodal_analysis(plateau_aux):
+    """The drive-capacitor reset on the flyback plateau with zener regulation
+    (``_plateau_reset`` feeding ``reset``) against the circuit solved by nodal
+    analysis (Kirchhoff's current law, ``numpy.linalg.solve``): the switch
+    base ``b`` joined to the winding ``w`` through ``R_b`` and the drive
+    capacitor at ``v_C``; the limiter's collector-base junction (drop ``V_d``)
+    from its base ``l`` into ``b``, carrying ``(1 + beta_R)`` times its base
+    current (Ebers & Moll 1954, inverse mode); ``l`` fed by ``R_lb`` from the
+    emitter at 0 V and, where it conducts (``v_l < V_ap - Vz``), by the zener
+    path, ``V_ap - Vz`` behind ``R_z`` (values of pop-1-0012)."""
+    rb, rlb, rz, cb, gain = 270.0, 270.0, 220.0, 560e-9, 2.0
+    drop, zener, winding, vc = 0.561, 8.2, -11.53, 1.5
+    constants = np.zeros(len(kernel.CONSTANT_NAMES))
+    values = dict(rb=rb, rlb=rlb, zener_resistance=rz, cb=cb, inverse_gain=gain,
+                  clamp_resistance=rb + rlb / gain, tau=rb * cb, vebo=6.9, aux_state=1.0,
+                  tau_slow=np.inf, linear_slow=1.0, rbe=np.inf)
+    for name, value in values.items():
+        constants[kernel.CONSTANT_NAMES.index(name)] = value
+    point = np.zeros(len(kernel.POINT_NAMES))
+    point[kernel.P_AUX_FLOOR] = zener + drop
+    plateau, junction_drop = kernel._plateau_reset(constants, point, plateau_aux, drop)
+    # (a step short against R C = 93-130 us: the finite difference's own error,
+    # about step / (2 R C), stays below 1e-7)
+    step = 1e-11
+    after = kernel.reset(plateau, junction_drop, 0.0, vc, winding, step)
+    rate = (vc - after) / step
+    # nodal analysis: unknowns v_b, v_l, i (from b through R_b to the capacitor)
+    # KCL at l: I_B = -v_l/R_lb [+ (source - v_l)/R_z];  junction: v_l - v_b = V_d;
+    # at b: i = (1 + beta_R) I_B;  R_b: i = (v_b - w + v_C)/R_b
+    source = plateau_aux - zener
+
+    def solve(zener_on):
+        g_l = 1.0 / rlb + (1.0 / rz if zener_on else 0.0)
+        matrix = np.array([[0.0, gain * g_l, 1.0],
+                           [-1.0, 1.0, 0.0],
+                           [1.0 / rb, 0.0, -1.0]])
+        rhs = np.array([gain * (source / rz if zener_on else 0.0), drop,
+                        (winding - vc) / rb])
+        return np.linalg.solve(matrix, rhs)
+
+    v_b, v_l, current = solve(False)
+    if v_l < source:  # the zener conducts
+        v_b, v_l, current = solve(True)
+        assert v_l < source
+    assert v_b < 0.0 and current > 0.0
+    assert rate * cb == pytest.approx(current, rel=1e-6)

@@ -88,8 +88,8 @@ def test_fix_open_startup_resistor(open_resistor_fixes):
     # would do once running: the core flux at the current limit of this old
     # design revision (core-saturation, found since the cycle model's loaded
     # ring and inverse-mode reset, notes/cycle_model.md) stays unfixed too, as
-    # does the collector peak of the RCD clamp capacitor at high line (567 V
-    # against 80 % of VCEV, 560 V, since the clamp capacitor is a cycle state)
+    # does the collector peak of the RCD clamp capacitor at high line where it
+    # reaches 80 % of VCEV (560 V; it sits within a few volts of that)
     others = set(original.failing) - {"no-start", "no-restart"}
     assert others <= {"core-saturation", "switch-overvoltage"}
     # (nor what a running supply then shows: its output, drive and voltage
