@@ -656,8 +656,9 @@ class _Cycle:
           the limiter's collector-base junction, the limiter's base falls to
           about the emitter for half of each period and the zener path
           drains the auxiliary capacitor towards ``Vz`` instead of
-          ``Vz + Vbe_lim`` then (``notes/cycle_model.md``, the hold's drain); a drive timer shorter than demagnetization
-          turns the switch on during the plateau (CCM);
+          ``Vz + Vbe_lim`` then (``notes/cycle_model.md``, the hold's
+          drain); a drive timer shorter than demagnetization turns the switch
+          on during the plateau (CCM);
         - the turn-on current is what is left in CCM, and on the ring the
           negative magnetizing current ``-(V_R / Z_0) sin(phase)``, damped.
 
