@@ -98,9 +98,10 @@ through ``limiter.vbe`` at 1 mA of collector current (as in the start-up
 analysis) with ``LIMITER_BASE_RESISTANCE`` in series, in every conducting
 state: cut-off, active (``i_C = hFE i_B``), saturated, and a
 "collector-open" state when its collector is pulled below the saturation
-voltage with the base driven (the inverse-mode current is neglected, so the
-limiter cannot source the drive current back into the switch base); no
-charge storage (a small-signal transistor, much faster than the switch).
+voltage with the base driven (no forward collector current; the
+inverse-mode current flows once the collector-base junction below
+conducts); no charge storage (a small-signal transistor, much faster than
+the switch).
 
 *Diodes and zeners*: chords of their exponential laws with series
 resistance, blocking below the first chord's zero-current voltage.  The
@@ -112,8 +113,11 @@ regulation zener has ``Vz(T)`` at its 5 mA test current and a knee of
 practice), with ``regulation.series_resistance`` plus
 ``REGULATION_ZENER_RESISTANCE`` in series.  The limiter's collector-base
 junction is a diode too (from its base into the switch base; the inverse
-Ebers-Moll diode with reverse gain 1, 1 mA at ``limiter.vbe``): it resets the
-drive capacitor while the feedback winding holds the switch base negative.
+Ebers-Moll diode with reverse gain 1, 1 mA at ``limiter.vbe``), and in that
+inverse-active mode the limiter's emitter carries ``LIMITER_REVERSE_GAIN``
+times the junction current into the switch base as well (Ebers & Moll,
+Proc. IRE 42, 1954): together they reset the drive capacitor while the
+feedback winding holds the switch base negative.
 The zener clamp and the optocoupler LED keep a single threshold with a
 resistance.
 
@@ -218,6 +222,7 @@ import numpy as np
 
 from rcc import devices
 from rcc.design import Design, Load
+from rcc.limiter import LIMITER_REVERSE_GAIN
 
 __all__ = [
     "build_network",
@@ -1118,14 +1123,18 @@ def build_circuit(design: Design, bus_voltage: float, load: Load, temperature: f
     # switch base once the feedback winding pulls that below about -Vbe, and
     # so resets the drive capacitor through R_lb (notes/circuit.md); the
     # inverse Ebers-Moll diode with reverse gain 1 carries the limiter's
-    # reference current at its Vbe
+    # reference current at its Vbe, and the emitter, now the collector,
+    # pulls beta_R times that current from ground into the switch base
+    # (inverse-active mode, Ebers & Moll 1954)
     junctions = {"switch": switch_junction, "limiter": limiter_junction}
     junctions["limiter_collector_base"] = junction_segments(
         JunctionLaw.through(limiter_vbe + LIMITER_BASE_RESISTANCE * LIMITER_REFERENCE_CURRENT,
                             LIMITER_REFERENCE_CURRENT, vt, LIMITER_BASE_RESISTANCE),
         *LIMITER_COLLECTOR_BASE_CURRENTS)
     devs.append(_junction("limiter_collector_base", "l", "b",
-                          junctions["limiter_collector_base"]))
+                          junctions["limiter_collector_base"],
+                          extra=(E("CCCS", "limiter_inverse", "0", "b", LIMITER_REVERSE_GAIN,
+                                   control="limiter_collector_base"),)))
     junctions["output_rectifier"] = _rectifier_segments(
         out.rectifier_drop, OUTPUT_RECTIFIER_RESISTANCE, POWER_RECTIFIER_REFERENCE_CURRENT,
         POWER_RECTIFIER_CURRENTS, vt)
