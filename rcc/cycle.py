@@ -443,6 +443,49 @@ class _LoadLaw:
                         fallback)
 
 
+def _onset_base_voltage(design: Design, bus, temperature, hfe, vbe):
+    """Base-emitter voltage at which a switch held off by its drive network
+    turns on by regeneration [V].
+
+    The small-signal network of ``rcc.startup`` (limiter off) first has a
+    growing mode at the collector current
+    :func:`rcc.startup.poles.onset_collector_current`; on the Shockley law
+    with ``I_S`` from ``switch.vbe`` at the limiter's nominal trip current
+    (as the start-up analysis and the engine take it) that current sits at
+    ``Vbe(T) + V_T ln(I_onset / I_ref)``.  Where the network does not
+    regenerate at any current up to the trip, ``Vbe(T)``.  The onset does not
+    depend on the bus (no element of the network does), so it is computed
+    once per design, temperature and gain and kept (:data:`_ONSET_LIFTS`).
+    """
+    from rcc.startup.dcpoint import circuit_values
+    from rcc.startup.poles import onset_collector_current
+
+    bus, temperature, hfe, vbe = np.broadcast_arrays(
+        *(np.asarray(value, dtype=float) for value in (bus, temperature, hfe, vbe)))
+    pairs, inverse = np.unique(np.stack([temperature.ravel(), hfe.ravel()], axis=1),
+                               axis=0, return_inverse=True)
+    keys = [(design, float(t), float(h)) for t, h in pairs]
+    missing = [k for k, key in enumerate(keys) if key not in _ONSET_LIFTS]
+    if missing:
+        if len(_ONSET_LIFTS) > _ONSET_CACHE_SIZE:
+            _ONSET_LIFTS.clear()
+        new = pairs[missing]
+        circuit = circuit_values(design, np.ones(len(new)), new[:, 0]).replace(hfe=new[:, 1])
+        onset = onset_collector_current(circuit)
+        with np.errstate(divide="ignore"):
+            lift = thermal_voltage(new[:, 0]) * np.log(onset / circuit.switch_reference_current)
+        for k, value in zip(missing, np.where(np.isfinite(onset), lift, 0.0)):
+            _ONSET_LIFTS[keys[k]] = float(value)
+    lift = np.array([_ONSET_LIFTS[key] for key in keys])
+    return vbe + lift[np.ravel(inverse)].reshape(bus.shape)
+
+
+#: Regeneration-onset base-voltage lifts already computed, by (design,
+#: temperature, gain) [V]; cleared when it outgrows :data:`_ONSET_CACHE_SIZE`
+_ONSET_LIFTS: dict = {}
+_ONSET_CACHE_SIZE = 200_000
+
+
 def _load_power(load, output_voltage):
     return load.power(output_voltage)
 
@@ -565,12 +608,14 @@ class _Cycle:
         else:
             self.zener_share = 0.0
             self.aux_tau = np.inf
-        # base threshold: the drive-capacitor voltage at which the base reaches Vbe
+        # base threshold: the drive-capacitor voltage at which the base reaches
+        # the onset of regeneration (the switch then turns on by itself)
         rb = dr.resistance
+        self.vbe_onset = _onset_base_voltage(design, bus, temperature, hfe, self.vbe)
         if rbe is None:
-            self.v_threshold = self.startup_current * rb - self.vbe
+            self.v_threshold = self.startup_current * rb - self.vbe_onset
         else:
-            self.v_threshold = self.startup_current * rb - self.vbe * (rb + rbe) / rbe
+            self.v_threshold = self.startup_current * rb - self.vbe_onset * (rb + rbe) / rbe
         self._tau_slow = np.inf if rbe is None else (rb + rbe) * dr.capacitance
         self.omega = 1.0 / np.sqrt(self.lm * design.node_capacitance)
         self.ring_impedance = np.sqrt(self.lm / design.node_capacitance)

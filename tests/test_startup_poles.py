@@ -221,3 +221,57 @@ def test_routh_count_equals_right_half_plane_roots(sign):
     assert decided.mean() > 0.9
     counted = (result.poles.real > 1e-9 * w0[:, None]).sum(axis=1)
     np.testing.assert_array_equal(result.right_half_plane_roots[decided], counted[decided])
+
+
+def _raw_from_values(values):
+    """The hand-assembled matrix's parameters from the library's small-signal
+    values (limiter off: ``G_e = 1/R_s``, no limiter transconductance)."""
+    g = {name: float(np.ravel(value)[0]) for name, value in values.items()}
+    return {"L_m": g["L_m"], "R_core": 1.0 / g["G_core"], "L_lk": g["L_lk"], "R_p": g["R_p"],
+            "C_w": g["C_w"], "C_mu": g["C_mu"], "C_pi": g["C_pi"], "g_m": g["g_m"],
+            "hfe": g["g_m"] / g["g_pi"], "R_s": 1.0 / g["G_e"], "R_st": 1.0 / g["G_st"],
+            "R_be": np.inf if g["G_be"] == 0.0 else 1.0 / g["G_be"], "R_d": 1.0 / g["G_d"],
+            "C_d": g["C_d"], "n": abs(g["k"]), "sign": np.sign(g["k"]), "R_lb": 1.0,
+            "g_m2": 0.0, "hfe2": 1.0}
+
+
+def _designs_for_onset():
+    from pathlib import Path
+
+    from rcc.design import load_design
+    from rcc.population import generate_one
+
+    cases = sorted(Path("worked_cases").glob("*.toml"))
+    designs = [(case.stem, load_design(case)) for case in cases]
+    designs += [(f"pop-1-{index:04d}", generate_one(1, index).design) for index in range(8)]
+    return designs
+
+
+@pytest.mark.parametrize("name,design", _designs_for_onset(),
+                         ids=[name for name, _ in _designs_for_onset()])
+def test_regeneration_onset_is_where_the_hand_assembled_network_turns_unstable(name, design):
+    """``onset_collector_current`` (bisection on the Routh count of the
+    derived polynomial) against ``numpy.linalg.eigvals`` of the state matrix
+    assembled by hand from Kirchhoff's laws (``state_matrix``, a different
+    formulation): 1e-6 below the onset every pole of the hand-built network
+    is in the left half-plane, 1e-6 above it one is in the right half-plane
+    (Routh 1877; the hybrid-pi transconductance ``g_m = I_C/V_T``)."""
+    from rcc.startup.dcpoint import circuit_values
+    from rcc.startup.poles import onset_collector_current, small_signal_parameters
+
+    circuit = circuit_values(design, 100.0, 298.15, design.switch.hfe_typ)
+    onset = float(onset_collector_current(circuit)[0])
+    trip = float(circuit.trip_current[0])
+
+    def growth(current):
+        small = small_signal_parameters(circuit, None, collector_current=current)
+        raw = _raw_from_values(small.values)
+        return np.linalg.eigvals(state_matrix(raw)).real.max() / natural_frequency(raw)
+
+    if np.isinf(onset):
+        # no onset up to the trip current (a drive too weak to regenerate):
+        # the hand-built network is stable there too
+        assert growth(trip) < 0.0
+        return
+    assert 1e-12 < onset < trip
+    assert growth(onset * (1.0 - 1e-6)) < 0.0 < growth(onset * (1.0 + 1e-6))

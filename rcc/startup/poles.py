@@ -27,6 +27,7 @@ __all__ = [
     "MINIMUM_WINDING_CAPACITANCE",
     "STARVED_FRACTION",
     "holding_element",
+    "onset_collector_current",
 ]
 
 #: Names of what holds a stalled circuit, in the order they are tested.
@@ -66,7 +67,7 @@ class SmallSignal:
     natural_frequency: np.ndarray
 
 
-def small_signal_parameters(circuit: CircuitValues, dc: DcPoint,
+def small_signal_parameters(circuit: CircuitValues, dc: DcPoint | None,
                             collector_current=None) -> SmallSignal:
     """Hybrid-pi parameters of both transistors and the passive elements.
 
@@ -74,8 +75,9 @@ def small_signal_parameters(circuit: CircuitValues, dc: DcPoint,
     ----------
     circuit : CircuitValues
         Element values [SI].
-    dc : DcPoint
-        Power-on DC point.
+    dc : DcPoint or None
+        Power-on DC point; None with ``collector_current`` given: the
+        limiter is off (no transconductance, no input conductance).
     collector_current : array_like, optional
         Override the switch collector current [A] (the hybrid-pi values
         then follow ``g_m = I_C/V_T``, ``g_pi = g_m/h_FE``); used to ask
@@ -105,7 +107,8 @@ def small_signal_parameters(circuit: CircuitValues, dc: DcPoint,
     c_mu = v.output_capacitance
     c_pi = np.maximum(gm / (2.0 * np.pi * v.transition_frequency) - c_mu, c_mu)
     glb = 1.0 / v.limiter_base_resistance
-    gm2, gpi2 = dc.limiter_transconductance, dc.limiter_input_conductance
+    gm2, gpi2 = (0.0, 0.0) if dc is None else (dc.limiter_transconductance,
+                                               dc.limiter_input_conductance)
     divider = glb / (glb + gpi2)
     c_w = np.maximum(v.winding_capacitance, MINIMUM_WINDING_CAPACITANCE)
     values = {
@@ -225,6 +228,15 @@ def network_poles(small_signal: SmallSignal) -> PoleResult:
     poles = polynomial_roots(coefficients, w0)
     growth = poles[:, 0].real
     starts = growth > 1e-9 * w0
+    changes = _routh_changes(coefficients, w0)
+    return PoleResult(poles, coefficients, starts, growth,
+                      np.abs(poles[:, 0].imag) / (2.0 * np.pi), changes)
+
+
+def _routh_changes(coefficients, w0) -> np.ndarray:
+    """Sign changes of the Routh first column of each polynomial (``-1``
+    where an entry is zero or not finite) [1]."""
+    network = compiled()
     with np.errstate(all="ignore"):
         scaled = coefficients * w0[:, None] ** np.arange(network.degree, -1, -1)
         scaled = scaled / scaled[:, :1]
@@ -232,9 +244,105 @@ def network_poles(small_signal: SmallSignal) -> PoleResult:
                            for c in network.routh(*scaled.T)], axis=1)
     bad = ~np.isfinite(column).all(axis=1) | (column == 0).any(axis=1)
     changes = (np.diff(np.sign(column), axis=1) != 0).sum(axis=1)
-    changes = np.where(bad, -1, changes)
-    return PoleResult(poles, coefficients, starts, growth,
-                      np.abs(poles[:, 0].imag) / (2.0 * np.pi), changes)
+    return np.where(bad, -1, changes)
+
+
+#: Collector-current bracket of the regeneration onset [A]: below the lower
+#: end no plausible network regenerates, the upper end is the trip current
+ONSET_LOWEST_CURRENT = 1e-12
+#: Width on ln(I_C) to which the Routh count brackets the onset before the
+#: regula falsi [-]
+ONSET_BRACKET = 0.1
+#: Width of the final bracket on ln(I_C) [-]: 1e-9 relative in the current,
+#: 1e-9 V_T (3e-11 V) in the base voltage
+ONSET_TOLERANCE = 1e-9
+#: Most regula falsi steps (measured: 3-6 from a 0.1 bracket)
+ONSET_STEPS = 60
+
+
+def onset_collector_current(circuit: CircuitValues) -> np.ndarray:
+    """Least switch collector current at which the small-signal network with
+    the limiter off has a right-half-plane pole: the onset of regeneration
+    [A].
+
+    A switch held off by its drive network (after a demagnetized cycle or a
+    lock-up pulse, while the start-up current recharges the drive
+    capacitor) turns on by regeneration once its base has risen far enough
+    that the loop through the transformer's feedback winding has a
+    growing mode; that happens at a collector current of micro-amperes,
+    far below the datasheet ``switch.vbe`` point.
+
+    Parameters
+    ----------
+    circuit : CircuitValues
+
+    Returns
+    -------
+    ndarray
+        Onset current [A]; ``inf`` where the network is stable even at the
+        trip current (it cannot regenerate at any current in the bracket).
+
+    Notes
+    -----
+    Hybrid-pi parameters at each trial current (:func:`small_signal_parameters`,
+    ``g_m = I_C/V_T``).  Bisection on ``ln I_C`` of the Routh-Hurwitz count
+    (Routh, *A Treatise on the Stability of a Given State of Motion*, 1877)
+    between ``ONSET_LOWEST_CURRENT`` and the trip current brackets the onset
+    to ``ONSET_BRACKET``; there the real part of the crossing complex pair
+    (the feedback winding's ring) is smooth in ``ln I_C`` and the Illinois
+    variant of regula falsi (Dowell & Jarratt, BIT 11, 1971) finds its zero
+    to ``ONSET_TOLERANCE``.  Assumed to cross once over the bracket: more
+    transconductance, more loop gain.
+    """
+    network = compiled()
+    trip = np.atleast_1d(np.asarray(circuit.trip_current, dtype=float))
+
+    def polynomial(log_current):
+        small = small_signal_parameters(circuit, None, collector_current=np.exp(log_current))
+        coefficients = np.atleast_2d(evaluate(network.polynomial, small.values))
+        coefficients = coefficients * np.sign(coefficients[:, :1])
+        return coefficients, np.broadcast_to(np.atleast_1d(small.natural_frequency), trip.shape)
+
+    def unstable(log_current):
+        return _routh_changes(*polynomial(log_current)) > 0
+
+    def growth(log_current):
+        # real part of the least damped complex pair, over w0
+        coefficients, w0 = polynomial(log_current)
+        roots = polynomial_roots(coefficients, w0)
+        complex_ = np.abs(roots.imag) > 1e-6 * w0[:, None]
+        real = np.where(complex_, roots.real, -np.inf).max(axis=1)
+        return np.where(np.isfinite(real), real, roots[:, 0].real) / w0
+
+    low = np.full(trip.shape, np.log(ONSET_LOWEST_CURRENT))
+    high = np.log(trip)
+    regenerates = unstable(high) & ~unstable(low)
+    while True:
+        open_ = regenerates & (high - low > ONSET_BRACKET)
+        if not open_.any():
+            break
+        middle = np.where(open_, 0.5 * (low + high), high)
+        above = unstable(middle)
+        high = np.where(open_ & above, middle, high)
+        low = np.where(open_ & ~above, middle, low)
+    # Illinois: (a, f_a) the end kept, (b, f_b) the latest estimate
+    a, f_a = low, np.where(regenerates, growth(low), -1.0)
+    b, f_b = high, np.where(regenerates, growth(high), 1.0)
+    for _ in range(ONSET_STEPS):
+        open_ = regenerates & (np.abs(b - a) > ONSET_TOLERANCE) & (f_b != 0.0) \
+            & (f_a * f_b < 0.0)
+        if not open_.any():
+            break
+        with np.errstate(divide="ignore", invalid="ignore"):
+            c = b - f_b * (b - a) / (f_b - f_a)
+        c = np.where(open_ & np.isfinite(c), np.clip(c, np.minimum(a, b), np.maximum(a, b)), b)
+        f_c = np.where(open_, growth(c), f_b)
+        crossed = open_ & (f_c * f_b < 0.0)
+        a, f_a = np.where(crossed, b, a), np.where(crossed, f_b, np.where(open_, 0.5 * f_a, f_a))
+        b, f_b = np.where(open_, c, b), f_c
+    # the end of the final bracket on the growing side
+    upper = np.where(f_b > 0.0, b, a)
+    return np.where(regenerates, np.exp(upper), np.inf)
 
 
 def holding_element(circuit: CircuitValues, dc: DcPoint, result: PoleResult) -> np.ndarray:
