@@ -239,8 +239,11 @@ class OperatingPoints:
         are to be confirmed with the time-domain engine: ``pattern`` (burst or
         irregular: averages of a pattern), ``lockup``, ``regime-boundary``
         (the power balance sits on a jump between two cycle regimes),
-        ``unsettled``, or ``invariant: ...`` (a physical invariant failed;
-        such a point must not be reported as a number).
+        ``held-ring`` (the regulation hold keeps the switch off through a ring
+        that reaches its threshold; the model does not weigh the ring's drive
+        against what the held limiter sinks), ``unsettled``, or
+        ``invariant: ...`` (a physical invariant failed; such a point must not
+        be reported as a number).
     energy_per_cycle : ndarray
         Magnetizing energy transferred per pulse, ``Lm (Ipk^2 - I0^2) / 2``,
         the mean over the pulses of a pattern; times ``frequency`` it is the
@@ -827,6 +830,10 @@ class _Cycle:
             mode=mode, vc_next=vc_next, va_next=va_next, residual=residual,
             restarts=restarts, drive_capability=drive_capability,
             transferred=transferred, shortfall=shortfall, clamp_next=clamp_next,
+            # the ring reached the switch's threshold but the regulation hold
+            # kept it off: whether the ring's drive beats what the held
+            # limiter sinks is not weighed (notes/cycle_model.md)
+            ring_held=ring_on & ~ccm & (mode == 0),
             clamp_peak=np.broadcast_to(clamp_peak, np.shape(peak)),
         )
         if not losses:
@@ -1870,6 +1877,7 @@ def _doubts(design, line, bus, temperature, running, mode, state, on_time, off_t
     doubt = np.where(np.isin(mode, ("burst", "irregular")), "pattern", doubt)
     doubt = np.where(mode == "lockup", "lockup", doubt)
     doubt = np.where(state["jump"], "regime-boundary", doubt)
+    doubt = np.where(running & state["ring_held"] & (doubt == ""), "held-ring", doubt)
     # the start-up current through R_be sits at the base threshold: there the
     # drive-timed wait diverges as tau ln(1/margin), so the low-output cycles
     # (and whether the supply climbs out of them) change with the last digit

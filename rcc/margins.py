@@ -52,6 +52,8 @@ DOUBTS = {
     "pattern": "burst or irregular cycles: the values are averages of a pattern",
     "lockup": "from power-on the output stops far below regulation",
     "regime-boundary": "the power balance sits on a jump between two cycle regimes",
+    "held-ring": "the regulation hold keeps the switch off through a ring that reaches its "
+                 "threshold; the ring's drive against the held limiter is not weighed",
     "unsettled": "the cycle states (or the bus) did not settle",
     "invariant": "a physical invariant failed: the point's numbers are not to be used",
 }
@@ -271,7 +273,7 @@ def describe_doubt(doubt: str) -> str:
     Parameters
     ----------
     doubt : str
-        ``pattern``, ``lockup``, ``regime-boundary``, ``unsettled``,
+        ``pattern``, ``lockup``, ``regime-boundary``, ``held-ring``, ``unsettled``,
         ``invariant: <name>`` or ``model-error`` [-].
 
     Returns

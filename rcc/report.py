@@ -91,8 +91,10 @@ def format_points_table(records) -> str:
             "against the time-domain engine (pattern: a burst or irregular pattern, "
             "values are averages and the peak that of the strongest pulse; "
             "regime-boundary: the balance sits on a jump between two cycle regimes and "
-            "the supply alternates between them; lockup: the low state the output "
-            "stops in from power-on). Confirm such points with `rcc waveforms` or "
+            "the supply alternates between them; held-ring: the regulation hold keeps "
+            "the switch off through a ring that reaches its threshold, and the model "
+            "does not weigh the ring's drive against the held limiter; lockup: the low "
+            "state the output stops in from power-on). Confirm such points with `rcc waveforms` or "
             "`rcc cycle` before acting on them.", indent="")
     return table
 
