@@ -459,6 +459,7 @@ def _onset_base_voltage(design: Design, bus, temperature, hfe, vbe):
     regenerate at any current up to the trip, ``Vbe(T)``.  The onset does not
     depend on the bus (no element of the network does), so it is computed
     once per design, temperature and gain and kept (:data:`_ONSET_LIFTS`).
+    Shockley law: W. Shockley, Bell Syst. Tech. J. 28, 1949 (the ideal-diode law).
     """
     from rcc.startup.dcpoint import circuit_values
     from rcc.startup.poles import onset_collector_current
@@ -1762,7 +1763,7 @@ def _assemble(design, line, bus, temperature, gain, load, state) -> OperatingPoi
     mode_names = np.where(running, mode_names, "off")
     period = np.where(frequency > 0, 1.0 / np.maximum(frequency, 1e-300), 0.0)
     off_time = np.where(running, np.maximum(period - t_on, t_off), 0.0)
-    doubt = _doubts(design, line, bus, temperature, running, mode_names, state, t_on,
+    doubt = _doubts(design, line, bus, temperature, gain, running, mode_names, state, t_on,
                     off_time, frequency)
     return OperatingPoints(
         line_voltage=line,
@@ -1863,7 +1864,7 @@ def limit_power_capability(design: Design, line_voltage, temperature, hfe=None):
                            np.zeros_like(output), at_peak, tolerance=_BUS_TOLERANCE)
 
 
-def _doubts(design, line, bus, temperature, running, mode, state, on_time, off_time,
+def _doubts(design, line, bus, temperature, gain, running, mode, state, on_time, off_time,
             frequency):
     """Why a point's numbers need the engine (empty: none), and invariants.
 
@@ -1878,15 +1879,17 @@ def _doubts(design, line, bus, temperature, running, mode, state, on_time, off_t
     doubt = np.where(mode == "lockup", "lockup", doubt)
     doubt = np.where(state["jump"], "regime-boundary", doubt)
     doubt = np.where(running & state["ring_held"] & (doubt == ""), "held-ring", doubt)
-    # the start-up current through R_be sits at the base threshold: there the
-    # drive-timed wait diverges as tau ln(1/margin), so the low-output cycles
-    # (and whether the supply climbs out of them) change with the last digit
-    # of the line; within 1e-4 of Vbe the point is on a true regime boundary
+    # the start-up current through R_be sits at the base threshold (the
+    # onset of regeneration, _onset_base_voltage): there the drive-timed wait
+    # diverges as tau ln(1/margin), so the low-output cycles (and whether the
+    # supply climbs out of them) change with the last digit of the line;
+    # within 1e-4 of it the point is on a true regime boundary
     rbe = design.drive.base_emitter_resistance
     if rbe is not None:
         vbe = base_emitter_voltage(design.switch.vbe, design.switch.vbe_tempco,
                                    temperature)
         startup = np.maximum(bus - vbe, 0.0) / design.startup.resistance
+        vbe = _onset_base_voltage(design, bus, temperature, gain, vbe)
         knife = np.abs(startup * rbe - vbe) <= _START_BIAS_BOUNDARY * vbe
         doubt = np.where(knife, "regime-boundary", doubt)
     doubt = np.where(running & ~state["settled"] & (doubt == ""), "unsettled", doubt)
