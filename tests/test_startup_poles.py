@@ -231,8 +231,10 @@ def _raw_from_values(values):
             "C_w": g["C_w"], "C_mu": g["C_mu"], "C_pi": g["C_pi"], "g_m": g["g_m"],
             "hfe": g["g_m"] / g["g_pi"], "R_s": 1.0 / g["G_e"], "R_st": 1.0 / g["G_st"],
             "R_be": np.inf if g["G_be"] == 0.0 else 1.0 / g["G_be"], "R_d": 1.0 / g["G_d"],
-            "C_d": g["C_d"], "n": abs(g["k"]), "sign": np.sign(g["k"]), "R_lb": 1.0,
-            "g_m2": 0.0, "hfe2": 1.0}
+            "C_d": g["C_d"], "n": abs(g["k"]), "sign": np.sign(g["k"]),
+            # limiter off: with g_m2 = 0 and no limiter input conductance
+            # (g_m2/hfe2 = 0) R_lb carries no current, so its value is moot
+            "R_lb": 1.0, "g_m2": 0.0, "hfe2": 1.0}
 
 
 def _designs_for_onset():

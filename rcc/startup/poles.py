@@ -220,10 +220,7 @@ def network_poles(small_signal: SmallSignal) -> PoleResult:
     ``1e-9 w0`` (round-off of the companion eigenvalues is about
     ``1e-12 w0``).
     """
-    network = compiled()
-    coefficients = evaluate(network.polynomial, small_signal.values)
-    coefficients = np.atleast_2d(coefficients)
-    coefficients = coefficients * np.sign(coefficients[:, :1])
+    coefficients = _characteristic(small_signal)
     w0 = np.atleast_1d(small_signal.natural_frequency)
     poles = polynomial_roots(coefficients, w0)
     growth = poles[:, 0].real
@@ -231,6 +228,13 @@ def network_poles(small_signal: SmallSignal) -> PoleResult:
     changes = _routh_changes(coefficients, w0)
     return PoleResult(poles, coefficients, starts, growth,
                       np.abs(poles[:, 0].imag) / (2.0 * np.pi), changes)
+
+
+def _characteristic(small_signal: SmallSignal) -> np.ndarray:
+    """Characteristic polynomial of each circuit, highest power first, with a
+    positive leading coefficient [SI]."""
+    coefficients = np.atleast_2d(evaluate(compiled().polynomial, small_signal.values))
+    return coefficients * np.sign(coefficients[:, :1])
 
 
 def _routh_changes(coefficients, w0) -> np.ndarray:
@@ -294,14 +298,12 @@ def onset_collector_current(circuit: CircuitValues) -> np.ndarray:
     to ``ONSET_TOLERANCE``.  Assumed to cross once over the bracket: more
     transconductance, more loop gain.
     """
-    network = compiled()
     trip = np.atleast_1d(np.asarray(circuit.trip_current, dtype=float))
 
     def polynomial(log_current):
         small = small_signal_parameters(circuit, None, collector_current=np.exp(log_current))
-        coefficients = np.atleast_2d(evaluate(network.polynomial, small.values))
-        coefficients = coefficients * np.sign(coefficients[:, :1])
-        return coefficients, np.broadcast_to(np.atleast_1d(small.natural_frequency), trip.shape)
+        return (_characteristic(small),
+                np.broadcast_to(np.atleast_1d(small.natural_frequency), trip.shape))
 
     def unstable(log_current):
         return _routh_changes(*polynomial(log_current)) > 0
