@@ -394,9 +394,15 @@ def expected_output_voltage(design: Design, temperature) -> float:
     return 12.0  # common practice
 
 
-#: A constant-power load takes its power between these fractions of the
-#: expected output voltage; below it is a resistance through the origin, above
-#: a constant current (the time-domain engine's load law, rcc.engine.circuit)
+#: No load takes its rated current or power at a collapsed output (an
+#: electronic load, a downstream converter or a regulator's bias falls to a
+#: resistance there).  A constant-current load takes its current above this
+#: fraction of the expected output voltage and is a resistance through the
+#: origin below it; a constant-power load takes its power between the
+#: fractions of :data:`POWER_LOAD_RANGE`, is a resistance through the origin
+#: below and a constant current above.  The time-domain engine uses the same
+#: law (rcc.engine.circuit)  # common practice
+LOAD_KNEE_FRACTION = 0.2
 POWER_LOAD_RANGE = (0.25, 2.0)
 
 
@@ -404,11 +410,10 @@ POWER_LOAD_RANGE = (0.25, 2.0)
 class _LoadLaw:
     """The load seen by the output balance, values broadcast to the points.
 
-    ``kind`` ``current`` (ideal), ``resistance``, or ``power``: no load takes
-    its rated power at a collapsed output (an electronic load or a downstream
-    converter falls to a resistance there), so a constant-power load takes
-    ``P`` only within :data:`POWER_LOAD_RANGE` of the expected output
-    ``expected`` [V], the law the engine uses (without its secant segments).
+    ``kind`` ``current``, ``resistance`` or ``power``, ``value`` in [A],
+    [ohm] or [W], ``expected`` the expected output voltage [V]: the law of
+    :data:`LOAD_KNEE_FRACTION` and :data:`POWER_LOAD_RANGE`, the one the
+    engine uses (without its secant segments for constant power).
     """
 
     kind: str
@@ -421,7 +426,8 @@ class _LoadLaw:
     def current(self, output_voltage):
         voltage = np.asarray(output_voltage, dtype=float)
         if self.kind == "current":
-            return self.value * np.ones_like(voltage)
+            knee = LOAD_KNEE_FRACTION * self.expected
+            return self.value * np.minimum(voltage / knee, 1.0)
         if self.kind == "resistance":
             return voltage / self.value
         low, high = (fraction * self.expected for fraction in POWER_LOAD_RANGE)
@@ -436,14 +442,20 @@ class _LoadLaw:
         """Output voltage below the expected output at which the load takes
         ``power`` (``fallback`` where none) [V]."""
         power = np.asarray(power, dtype=float)
-        if self.kind == "current":
-            return np.where(self.value > 0, power / np.maximum(self.value, 1e-300), fallback)
         if self.kind == "resistance":
             return np.sqrt(np.maximum(power, 0.0) * self.value)
-        low = POWER_LOAD_RANGE[0] * self.expected
-        return np.where(power < self.value,
-                        low * np.sqrt(np.maximum(power, 0.0) / np.maximum(self.value, 1e-300)),
-                        fallback)
+        # below the knee (current) or the range (power) a resistance
+        # through the origin that takes knee_power at the knee: v^2 / R = P
+        if self.kind == "current":
+            knee = LOAD_KNEE_FRACTION * self.expected
+            knee_power = self.value * knee
+            above = power / np.maximum(self.value, 1e-300)
+        else:
+            knee = POWER_LOAD_RANGE[0] * self.expected
+            knee_power = self.value
+            above = fallback
+        below = knee * np.sqrt(np.maximum(power, 0.0) / np.maximum(knee_power, 1e-300))
+        return np.where(self.value > 0, np.where(power < knee_power, below, above), fallback)
 
 
 def _onset_base_voltage(design: Design, bus, temperature, hfe, vbe):

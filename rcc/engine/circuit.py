@@ -174,9 +174,11 @@ the active region for about a hundred nanoseconds, as in a real transistor.  Suc
 excursion ends in cut-off without saturating and is not a turn-on
 (:func:`rcc.engine.simulate.turn_on_indices`).
 
-*Load*: a resistance; a constant current (below ``LOAD_KNEE_FRACTION`` of
-the expected output voltage it behaves as a resistance through the origin,
-as an electronic load does near zero volts); a constant power, approximated
+*Load*: the project's load law (:data:`rcc.cycle.LOAD_KNEE_FRACTION`,
+shared with the cycle model): a resistance; a constant current (below
+``LOAD_KNEE_FRACTION`` of the expected output voltage it behaves as a
+resistance through the origin, as an electronic load does near zero volts);
+a constant power, approximated
 by secants of the hyperbola ``i = P / v`` between geometrically spaced
 breakpoints (relative current error below ``(r^(1/4) - r^(-1/4))^2`` =
 0.43 % for the spacing ``r = 2^(3/16)``), a resistance through the
@@ -295,8 +297,6 @@ SIGNAL_RECTIFIER_REFERENCE_CURRENT = 1e-2
 ZENER_REFERENCE_CURRENT = 5e-3
 ZENER_KNEE_SLOPE = 0.06
 ZENER_KNEE_FOOT_CURRENT = 1e-9
-#: Constant-current load: resistive below this fraction of the expected output voltage
-LOAD_KNEE_FRACTION = 0.2
 #: Constant-power load: breakpoints from 0.25x to 2x the expected voltage
 #: (rcc.cycle.POWER_LOAD_RANGE, the law the cycle model shares)
 POWER_LOAD_SEGMENTS = 16
@@ -1404,14 +1404,14 @@ def _junction(name, anode, cathode, segments: JunctionSegments, extra=()):
 
 def _load_device(load: Load, expected: float) -> _Device:
     """Constant-current or constant-power load as piecewise-linear regions."""
+    from rcc.cycle import LOAD_KNEE_FRACTION, POWER_LOAD_RANGE
+
     if load.kind == "current":
         knee = LOAD_KNEE_FRACTION * expected
         current = load.value
         regions = [(current / knee, 0.0), (0.0, current)]
         breaks = [knee]
     else:
-        from rcc.cycle import POWER_LOAD_RANGE
-
         power = load.value
         breaks = list(expected * np.geomspace(*POWER_LOAD_RANGE, POWER_LOAD_SEGMENTS + 1))
         regions = [(power / breaks[0] ** 2, 0.0)]
