@@ -20,7 +20,9 @@ Rules (over the window ``[window_start, end_time]``):
     (``expected_output``): the supply switches (or idles after a few cycles)
     far below regulation, as when the current limiter or an unreset drive
     capacitor holds it at a low output.  Checked first, whatever the
-    switching pattern.
+    switching pattern.  Its rate and mean output are taken over whole
+    restart periods (first to last turn-on in the window; the record's last
+    period if the window holds one turn-on).
 ``regular``
     Period-1 switching: every turn-on interval in the window within
     :data:`REGULAR_SPREAD` of their median.
@@ -315,6 +317,14 @@ def classify_operation(turn_on_times, peak_currents, time, output_voltage, *,
         return Operation(kind="none", **quiet, **base)
     rate = count / (end - start)
     if expected > 0 and mean_output < LOCKUP_FRACTION * expected:
+        # restarts tens of milliseconds apart leave a handful of turn-ons in
+        # the window, and count / window is off by up to one restart: the
+        # rate and the mean output are taken over whole restart periods
+        span = _restart_span(turn_ons[turn_ons <= end], start) if count else None
+        if span is not None:
+            first, last, pulses = span
+            rate = pulses / (last - first)
+            base["output_voltage"] = window_mean(time, output, first, last)
         return Operation(kind="lockup", frequency=rate, burst_period=0.0,
                          pulses_per_burst=0.0, **base)
     if count < 2:
@@ -335,6 +345,33 @@ def classify_operation(turn_on_times, peak_currents, time, output_voltage, *,
                          pulses_per_burst=pulses, **base)
     return Operation(kind="irregular", frequency=rate, burst_period=0.0,
                      pulses_per_burst=0.0, **base)
+
+
+def _restart_span(times, start):
+    """Whole restart periods of a lock-up: ``(first, last, pulses)``, the
+    restarts that bound them and the turn-ons from ``first`` up to ``last``;
+    None with fewer than two restarts in the record.
+
+    A restart is a turn-on after a pause longer than BURST_GAP times the
+    shortest interval ending in the window (every turn-on where they are
+    evenly spaced); the restarts from ``start`` on, or the record's last two
+    where the window holds fewer.
+    """
+    if times.size < 2:
+        return None
+    intervals = np.diff(times)
+    recent = intervals[times[1:] >= start]
+    inner = float(np.min(recent if recent.size else intervals[-1:]))
+    pause = np.concatenate(([True], intervals > BURST_GAP * inner))
+    restarts = times[pause] if np.count_nonzero(pause) > 1 else times
+    chosen = restarts[restarts >= start]
+    if chosen.size < 2:
+        chosen = restarts[-2:]
+    if chosen.size < 2:
+        return None
+    first, last = float(chosen[0]), float(chosen[-1])
+    pulses = int(np.count_nonzero((times >= first) & (times < last)))
+    return first, last, pulses
 
 
 def _bursts(times, intervals):

@@ -76,6 +76,43 @@ def test_lockup_switching_far_below_the_expected_output():
     assert result.frequency > 0
 
 
+@pytest.mark.parametrize("phase", [0.0, 0.3, 0.7])
+def test_lockup_rate_and_output_over_whole_restart_periods(phase):
+    # hiccup restarts every 37.9 ms with the output decaying between them
+    # (tau 10 ms): a window of a quarter of 0.2 s holds one or two of them,
+    # and count / window would be 20-40 Hz for the same train.  The rate is
+    # the train's and the mean output the exact one over a period,
+    # V0 tau / T (1 - exp(-T / tau)) (first-order RC discharge)
+    period, tau, peak = 37.9e-3, 10e-3, 2.0
+    end = 0.2
+    turn_ons = np.arange(phase * period, end, period)
+
+    def output(time):
+        since = time - turn_ons[np.maximum(np.searchsorted(turn_ons, time, "right") - 1, 0)]
+        return np.where(time >= turn_ons[0], peak * np.exp(-since / tau), 0.0)
+
+    time = np.sort(np.concatenate((np.linspace(0.0, end, 200001), turn_ons)))
+    result = classify_operation(turn_ons, np.full(turn_ons.size, 3.5), time, output(time),
+                                expected_output=24.0, end_time=end)
+    assert result.kind == "lockup"
+    assert result.frequency == pytest.approx(1.0 / period, rel=1e-9)
+    mean = peak * tau / period * (1.0 - np.exp(-period / tau))
+    assert result.output_voltage == pytest.approx(mean, rel=1e-4)
+
+
+@pytest.mark.parametrize("group", [2, 3])
+@pytest.mark.parametrize("phase", [0.0, 0.45, 0.9])
+def test_lockup_in_groups_counts_whole_groups(phase, group):
+    # restarts every 30 ms, each a group of pulses 40 us apart: group / 30 ms
+    # wherever the window (the last 50 ms) cuts the groups
+    end = 0.2
+    starts = np.arange(phase * 30e-3, end - 1e-3, 30e-3)
+    turn_ons = (starts[:, None] + np.arange(group) * 40e-6).ravel()
+    result = _run(turn_ons, output=0.5, expected=24.0, end=end)
+    assert result.kind == "lockup"
+    assert result.frequency == pytest.approx(group / 30e-3, rel=1e-9)
+
+
 def test_lockup_idling_after_a_few_cycles():
     # a few cycles at power-on, then nothing for 50 ms, output 1.7 V of 5 V
     result = _run([1e-3, 1.02e-3, 1.04e-3, 1.06e-3], output=1.7, expected=5.0, end=50e-3)
