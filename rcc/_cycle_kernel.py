@@ -53,7 +53,7 @@ CONSTANT_NAMES = (
     "rb", "rlb", "rs", "tau", "aux_tau", "storage_constant", "node", "nb", "lm", "vebo",
     "inverse_gain", "clamp_resistance", "cb", "tau_slow", "rbe", "omega", "ring_impedance",
     "ring_damping", "limiter_gain", "zener_resistance", "filter_capacitance", "aux_state",
-    "linear_slow",
+    "linear_slow", "esr",
 )
 # ---- outputs (columns of the result)
 OUTPUT_NAMES = (
@@ -71,7 +71,7 @@ OUTPUT_NAMES = (
 (C_RB, C_RLB, C_RS, C_TAU, C_AUX_TAU, C_STORAGE_CONSTANT, C_NODE, C_NB, C_LM, C_VEBO,
  C_INVERSE_GAIN, C_CLAMP_RESISTANCE, C_CB, C_TAU_SLOW, C_RBE, C_OMEGA,
  C_RING_IMPEDANCE, C_RING_DAMPING, C_LIMITER_GAIN, C_ZENER_RESISTANCE,
- C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW) = range(23)
+ C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_ESR) = range(24)
 
 
 @njit(cache=True, error_model="numpy")
@@ -86,6 +86,24 @@ def storage_time_rising(tau, base_on, base_off, collector, slope, gain):
         derivative = slope + drive * decay / tau
         t = max(t - residual / derivative, 0.0)
     return t if drive - hold > collector else 0.0
+
+
+@njit(cache=True, error_model="numpy")
+def demagnetization_time(lm, esr, peak, vr):
+    """Time for the magnetizing current to fall from ``peak`` to zero on the
+    flyback plateau ``vr + esr i`` [s]: ``L_m di/dt = -(V_R + R' i)`` gives
+    ``(L_m / R') ln(1 + R' I_pk / V_R)`` (``L_m I_pk / V_R`` as R' -> 0)."""
+    x = esr * peak / vr
+    return lm * peak / vr * (np.log1p(x) / x if x > 1e-12 else 1.0)
+
+
+@njit(cache=True, error_model="numpy")
+def demagnetizing_current(lm, esr, peak, vr, t):
+    """Magnetizing current ``t`` after the plateau began at ``peak`` [A]:
+    ``I_pk e^(-t/tau) - (V_R / R') (1 - e^(-t/tau))``, ``tau = L_m / R'``."""
+    y = esr * t / lm
+    fall = -np.expm1(-y) / y if y > 1e-12 else 1.0
+    return peak * np.exp(-y) - vr * t / lm * fall
 
 
 @njit(cache=True, error_model="numpy")
@@ -370,8 +388,16 @@ def _point(p, c, out):
     vc_end = v_on + (vc0 - v_on) * np.exp(-t_on / tau)
     charge_base = amplitude * tau * (1.0 - np.exp(-t_on / tau)) + offset * t_on
     # ---- off-time: flyback plateau
-    t_demag = lm * peak / vr
-    winding_plateau = -nb * vr
+    # while the secondary current flows the output capacitor's ESR (R'
+    # referred to the primary) adds R' i to the plateau: demagnetization
+    # takes demagnetization_time, the drive reset sees the plateau's mean
+    # L_m I_pk / t_demag; the ring after it starts from the ESR-free plateau
+    # (no current left).  The auxiliary capacitor keeps the ESR-free plateau
+    # (notes/cycle_model.md: its rectifier delivers the zener's charge over
+    # the plateau, not at its start)
+    t_demag = demagnetization_time(lm, c[C_ESR], peak, vr)
+    winding_plateau = -nb * (lm * peak / t_demag if t_demag > 0.0 else vr)
+    winding_end = -nb * vr
     # during the plateau the regulation zener also feeds the limiter's base
     # (the auxiliary rectifier holds C_a at the plateau): the junction reset
     # path sees the Thevenin source of R_lb (to the emitter) and the zener path
@@ -397,7 +423,7 @@ def _point(p, c, out):
     ccm = (t_cross < t_demag) and not held_plateau
     # ---- ring after demagnetization
     need = vc_demag - v_threshold
-    free = ring_after_clamp(plateau, drop_plateau, vc_demag, winding_plateau, vr)
+    free = ring_after_clamp(plateau, drop_plateau, vc_demag, winding_end, vr)
     ring_peak = nb * min(free * c[C_RING_DAMPING], bus)
     ring_on = need <= ring_peak
     phase = np.arccos(min(max(-need / (nb * vr), -1.0), 1.0))
@@ -439,7 +465,7 @@ def _point(p, c, out):
     t_off = t_cross if ccm else t_demag + t_after
     ring_turn = ring_on and not held and not ccm
     if ccm:
-        residual = max(peak - vr * t_cross / lm, 0.0)
+        residual = max(demagnetizing_current(lm, c[C_ESR], peak, vr, t_cross), 0.0)
     elif ring_turn:
         residual = -(vr / c[C_RING_IMPEDANCE] * np.sin(phase)
                      * c[C_RING_DAMPING] ** (phase / np.pi))

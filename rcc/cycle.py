@@ -48,7 +48,7 @@ from rcc.limiter import (LIMITER_REVERSE_GAIN, auxiliary_voltage, regulation_cur
                          trip_current)
 from rcc.mains import bus_voltage
 from rcc.operation import LOCKUP_FRACTION
-from rcc.flyback import reflected_voltage
+from rcc.flyback import esr_share, reflected_voltage
 from rcc import _cycle_kernel as kernel
 
 __all__ = [
@@ -116,7 +116,7 @@ class Losses:
         Node-capacitance energy dissipated at turn-on, at the collector
         voltage where the ring lifts the base [W].
     rectifier : ndarray
-        Output rectifier forward drop [W].
+        Output rectifier forward drop and the output capacitor's ESR [W].
     drive : ndarray
         Base-drive energy taken from the feedback winding during the on-time [W].
     reset : ndarray
@@ -633,6 +633,8 @@ class _Cycle:
         else:
             self.v_threshold = self.startup_current * rb - self.vbe_onset * (rb + rbe) / rbe
         self._tau_slow = np.inf if rbe is None else (rb + rbe) * dr.capacitance
+        #: the output capacitor's ESR referred to the primary [ohm]
+        self.esr = design.output.esr * (tr.primary_turns / tr.output_turns)**2
         self.omega = 1.0 / np.sqrt(self.lm * design.node_capacitance)
         self.ring_impedance = np.sqrt(self.lm / design.node_capacitance)
         quality = tr.core_loss_resistance * np.sqrt(design.node_capacitance / self.lm)
@@ -647,7 +649,8 @@ class _Cycle:
             limiter_gain=self.limiter_gain,
             zener_resistance=self.zener_resistance if self.aux_state else np.inf,
             filter_capacitance=regulation.filter_capacitance if self.aux_state else 0.0,
-            aux_state=float(self.aux_state), linear_slow=float(np.isinf(self._tau_slow)))
+            aux_state=float(self.aux_state), linear_slow=float(np.isinf(self._tau_slow)),
+            esr=self.esr)
         #: design constants of the compiled cycle timing (never subset)
         self.constants = np.array([float(constants[name])
                                    for name in kernel.CONSTANT_NAMES])
@@ -777,6 +780,8 @@ class _Cycle:
         ccm, ring_on, restarts = (out[name] > 0.5 for name in ("ccm", "ring_on", "restarts"))
         vr, i0 = np.broadcast_to(vr, shape), np.broadcast_to(i0, shape)
         aux = np.broadcast_to(plateau_aux, shape)
+        # the plateau's mean over demagnetization (the ESR lifts its start)
+        vr_mean = np.where(t_demag > 0, self.lm * peak / np.maximum(t_demag, 1e-300), vr)
         node = d.node_capacitance
         frequency = 1.0 / (t_on + t_off)
         # ---- energy per cycle
@@ -801,7 +806,8 @@ class _Cycle:
         # of the forward charge out through R_b while the junction still sits
         # at Vbe; taken from the magnetizing energy, while the first part
         # (below the bus) is fed by the bus
-        reverse_base = (self.nb * vr + np.maximum(vc_end, 0.0) + self.vbe) / rb
+        reverse_base = (self.nb * (vr + self.esr * peak) + np.maximum(vc_end, 0.0)
+                        + self.vbe) / rb
         fall = fall_time_charge_control(self.transit_time, left, reverse_base)
         reversal = (turn_off_energy(left, fall, node, clamp_level)
                     + 0.5 * self.bus * left * fall)
@@ -812,7 +818,7 @@ class _Cycle:
         # (Thevenin share R_lb || R_z / R_z of the junction charge)
         reset_charge = dr.capacitance * np.maximum(
             vc_end - np.where(ccm, limit_plateau, vc_demag), 0.0)
-        reset_energy = self.nb * vr * reset_charge + aux * self.zener_share * reset_charge
+        reset_energy = self.nb * vr_mean * reset_charge + aux * self.zener_share * reset_charge
         # the auxiliary winding's charge per cycle comes from the magnetizing
         # energy at the plateau voltage (feedback-winding regulation)
         aux_energy = aux_charge * (aux + d.regulation.rectifier_drop) if self.aux_state \
@@ -823,7 +829,10 @@ class _Cycle:
         # (an invariant breach, flagged by _doubts)
         shortfall = np.maximum(-secondary, 0.0)
         secondary = np.maximum(secondary, 0.0)
-        share_out = output_voltage / (output_voltage + d.output.rectifier_drop)
+        # of the energy the secondary current carries, the output takes V_o
+        # per coulomb, the rectifier V_f and the capacitor's ESR the rest
+        share_out = output_voltage / (output_voltage + d.output.rectifier_drop) \
+            * esr_share(self.esr * peak / vr)
         if self.aux_state:
             regulation_power = aux_energy * frequency
             delivered = secondary * share_out * frequency

@@ -85,3 +85,46 @@ def test_plateau_reset_current_by_nodal_analysis(plateau_aux):
         assert v_l < source
     assert v_b < 0.0 and current > 0.0
     assert rate * cb == pytest.approx(current, rel=1e-6)
+
+
+# ---- the flyback plateau with the output capacitor's ESR
+@pytest.mark.parametrize("drop_ratio", [1e-6, 3e-3, 0.05, 0.7, 4.0])
+def test_plateau_with_esr_against_scipy(drop_ratio):
+    # L di/dt = -(V + R i) from I_pk to zero, integrated by scipy's Radau IIA
+    # (Hairer & Wanner, Solving ODEs II, 1996) with the charge q' = i: the end
+    # time is demagnetization_time, the current at half of it
+    # demagnetizing_current, and the energy V q taken at V over L I_pk^2 / 2
+    # is flyback.esr_share(R I_pk / V)
+    from scipy.integrate import solve_ivp
+
+    from rcc.flyback import esr_share
+
+    inductance, peak, voltage = 1.2e-3, 0.8, 150.0
+    resistance = drop_ratio * voltage / peak
+
+    def rhs(_, y):
+        return [-(voltage + resistance * y[0]) / inductance, y[0]]
+
+    def empty(_, y):
+        return y[0]
+    empty.terminal, empty.direction = True, -1
+    solution = solve_ivp(rhs, (0.0, 1.0), [peak, 0.0], method="Radau", events=empty,
+                         rtol=1e-12, atol=[1e-15, 1e-18], dense_output=True)
+    t_end = solution.t_events[0][0]
+    charge = solution.y_events[0][0][1]
+    assert kernel.demagnetization_time(inductance, resistance, peak, voltage) == \
+        pytest.approx(t_end, rel=1e-8)
+    assert kernel.demagnetizing_current(inductance, resistance, peak, voltage, t_end / 2) \
+        == pytest.approx(solution.sol(t_end / 2)[0], rel=1e-8)
+    assert float(esr_share(drop_ratio)) == pytest.approx(
+        voltage * charge / (0.5 * inductance * peak**2), rel=1e-8)
+
+
+def test_esr_share_is_smooth_where_the_series_hands_over():
+    # the series below x = 1e-2 and the closed form above meet without a jump
+    # that a 1e-12 change of an input could expose (well-posedness)
+    from rcc.flyback import esr_share
+
+    below, above = esr_share(np.nextafter(1e-2, 0.0)), esr_share(1e-2)
+    assert abs(float(above) - float(below)) < 1e-13
+    assert float(esr_share(0.0)) == 1.0
