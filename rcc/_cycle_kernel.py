@@ -278,8 +278,12 @@ def _excess(p, c, amplitude, offset, reg_drop, t):
         lift = 0.0
         lift_rate = 0.0
     ideal = (p[P_VBE_LIMITER] + lift) / rs - aux_decay
-    shared = (own + gain * ideal) / (1.0 + gain)
-    shared_rate = (own_rate + gain * (aux_decay / a_tau + lift_rate / rs)) / (1.0 + gain)
+    # the sense resistor carries the emitter current, I_C (1 + 1/hFE) where
+    # the switch leaves saturation (the limiter has taken the rest of the
+    # drive): hFE I_B = I_C + G (I_C (1 + 1/hFE) - I_t)
+    sensed = 1.0 + gain * (1.0 + 1.0 / hfe)
+    shared = (own + gain * ideal) / sensed
+    shared_rate = (own_rate + gain * (aux_decay / a_tau + lift_rate / rs)) / sensed
     if shared < own:
         return p[P_I0] + p[P_SLOPE] * t - shared, p[P_SLOPE] - shared_rate
     return p[P_I0] + p[P_SLOPE] * t - own, p[P_SLOPE] - own_rate
@@ -353,8 +357,13 @@ def _point(p, c, out):
     startup, drop, vt = p[P_STARTUP_CURRENT], p[P_VBE_LIMITER], p[P_THERMAL_VOLTAGE]
     v_threshold = p[P_V_THRESHOLD]
     # ---- on-time decision
-    amplitude = max(p[P_V_ON] - vc0, 0.0) / rb
-    offset = startup - p[P_BLEED]
+    # the emitter rides on the sense resistor, R_s (i0 + s t): the drive
+    # capacitor charges towards a target falling at R_s s, so its current is
+    # (V_on - R_s i0 - v_C0)/R_b + k decaying at tau, less k = C_b R_s s
+    emitter_slope = c[C_RS] * slope
+    k = c[C_CB] * emitter_slope
+    amplitude = max(p[P_V_ON] - c[C_RS] * i0 - vc0, 0.0) / rb + k
+    offset = startup - p[P_BLEED] - k
     reg_drop = rlb * ireg0 / rs
     t_high = max((hfe * max(amplitude + offset, 0.0) - i0) / slope, 0.0)
     t_decision = _decision(p, c, amplitude, offset, reg_drop, t_high)
@@ -362,7 +371,8 @@ def _point(p, c, out):
     base_now = amplitude * np.exp(-t_decision / tau) + offset
     drive = max(base_now, 1e-12)
     lift = vt * np.log(drive / 1e-3) if drive > 1e-3 else 0.0
-    ideal_trip = (drop + lift - rlb * ireg0 * np.exp(-t_decision / a_tau)) / rs
+    ideal_trip = (drop + lift - rlb * ireg0 * np.exp(-t_decision / a_tau)) / rs \
+        * hfe / (hfe + 1.0)
     base_decision = max(base_now, 0.0)
     drive_ends = hfe * base_decision <= ideal_trip
     ireg = ireg0 * np.exp(-t_decision / a_tau)
@@ -384,8 +394,8 @@ def _point(p, c, out):
     peak = peak + slope * max(t_rise - rise, 0.0)
     t_on = t_switch + t_rise
     on_end = 0.0 if drive_ends else (2.0 if ireg > 0.0 else 1.0)
-    v_on = p[P_V_ON]
-    vc_end = v_on + (vc0 - v_on) * np.exp(-t_on / tau)
+    aim = p[P_V_ON] - c[C_RS] * i0 + tau * emitter_slope
+    vc_end = aim - emitter_slope * t_on + (vc0 - aim) * np.exp(-t_on / tau)
     charge_base = amplitude * tau * (1.0 - np.exp(-t_on / tau)) + offset * t_on
     # ---- off-time: flyback plateau
     # while the secondary current flows the output capacitor's ESR (R'

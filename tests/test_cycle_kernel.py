@@ -128,3 +128,46 @@ def test_esr_share_is_smooth_where_the_series_hands_over():
     below, above = esr_share(np.nextafter(1e-2, 0.0)), esr_share(1e-2)
     assert abs(float(above) - float(below)) < 1e-13
     assert float(esr_share(0.0)) == 1.0
+
+
+def test_drive_capacitor_with_the_emitter_rising_against_scipy(monkeypatch):
+    # the on-time drive: C_b dv/dt = (V_on - R_s (i0 + s t) - v) / R_b, the
+    # emitter riding on the sense resistor; the kernel's closed form for the
+    # capacitor at turn-off against scipy's Radau IIA on the standby case at
+    # 85 V and on a lock-up pulse of the 5 V case at 48 V (where R_s I_pk is a
+    # tenth of the drive)
+    from pathlib import Path
+
+    from scipy.integrate import solve_ivp
+
+    from rcc import cycle
+    from rcc.design import load_design
+
+    captured = {}
+    timing = kernel.cycle_timing
+
+    def spy(points, constants):
+        out = timing(points, constants)
+        captured.update(points=points.copy(), constants=constants.copy(), out=out.copy())
+        return out
+
+    monkeypatch.setattr(cycle.kernel, "cycle_timing", spy)
+    root = Path(__file__).resolve().parent.parent / "worked_cases"
+    for name, bus, output in (("standby_12v_universal", 120.0, 12.0),
+                              ("aux_5v_48v_dc", 48.0, 0.5)):
+        design = load_design(root / f"{name}.toml")
+        one = cycle._Cycle(design, np.array([bus]), cycle.reference_temperature(design),
+                           design.switch.hfe_typ)
+        one.evaluate(np.array([output]), np.array([one.v_threshold[0] - 0.2]),
+                     np.array([0.0]), None)
+        p, c = captured["points"][0], captured["constants"]
+        out = dict(zip(kernel.OUTPUT_NAMES, captured["out"][0]))
+        rs, rb, cb = c[kernel.C_RS], c[kernel.C_RB], c[kernel.C_CB]
+        slope, i0, v_on = p[kernel.P_SLOPE], p[kernel.P_I0], p[kernel.P_V_ON]
+
+        def rhs(t, v):
+            return [(v_on - rs * (i0 + slope * t) - v[0]) / (rb * cb)]
+
+        solution = solve_ivp(rhs, (0.0, out["t_on"]), [p[kernel.P_VC0]], method="Radau",
+                             rtol=1e-12, atol=1e-12)
+        assert out["vc_end"] == pytest.approx(solution.y[0, -1], rel=1e-8, abs=1e-9)
