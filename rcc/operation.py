@@ -21,8 +21,10 @@ Rules (over the window ``[window_start, end_time]``):
     far below regulation, as when the current limiter or an unreset drive
     capacitor holds it at a low output.  Checked first, whatever the
     switching pattern.  Its rate and mean output are taken over whole
-    restart periods (first to last turn-on in the window; the record's last
-    period if the window holds one turn-on).
+    restart periods: between the first and the last restart in the window (a
+    restart is a turn-on after a pause longer than :data:`BURST_GAP` times the
+    shortest interval in the window, or every turn-on where they are evenly
+    spaced), or over the record's last period if the window holds one.
 ``regular``
     Period-1 switching: every turn-on interval in the window within
     :data:`REGULAR_SPREAD` of their median.
