@@ -90,10 +90,8 @@ def storage_time_rising(tau, base_on, base_off, collector, slope, gain):
 
 @njit(cache=True, error_model="numpy")
 def demagnetization_time(lm, esr, peak, vr):
-    """Time for the magnetizing current to fall from ``peak`` to zero on the
-    flyback plateau ``vr + esr i`` [s]: ``L_m di/dt = -(V_R + R' i)`` gives
-    ``(L_m / R') ln(1 + R' I_pk / V_R)`` (``L_m I_pk / V_R`` as R' -> 0; the
-    driven first-order RL response, :func:`rcc.flyback.esr_share`)."""
+    """:func:`rcc.flyback.demagnetization_time` with the output resistance
+    ``esr`` for one point [s]."""
     x = esr * peak / vr
     return lm * peak / vr * (np.log1p(x) / x if x > 1e-12 else 1.0)
 

@@ -175,7 +175,8 @@ def dcm_conversion_ratio(duty, magnetizing_inductance, load_resistance, switchin
     return _as(duty) / np.sqrt(k)
 
 
-def demagnetization_time(magnetizing_inductance, peak_current, reflected_voltage):
+def demagnetization_time(magnetizing_inductance, peak_current, reflected_voltage,
+                         output_resistance=0.0):
     """Time for the reflected voltage to reset the magnetizing current.
 
     Parameters
@@ -185,7 +186,10 @@ def demagnetization_time(magnetizing_inductance, peak_current, reflected_voltage
     peak_current : float or array_like
         Magnetizing current at the start of the off-time [A].
     reflected_voltage : float or array_like
-        Reflected voltage [V].
+        Reflected voltage with no current in the output path, ``V_R`` [V].
+    output_resistance : float or array_like, optional
+        Resistance in the output path referred to the primary, ``R'`` (the
+        output capacitor's ESR times ``(Np/Ns)^2``) [ohm]; default 0.
 
     Returns
     -------
@@ -195,8 +199,15 @@ def demagnetization_time(magnetizing_inductance, peak_current, reflected_voltage
     Notes
     -----
     ``t = Lp Ipk / V_R`` (constant voltage across the inductance), [1]_.
+    With ``R'`` the plateau is ``V_R + R' i``: ``L di/dt = -(V_R + R' i)``
+    gives ``t = (L / R') ln(1 + x)``, ``x = R' Ipk / V_R`` (the driven
+    first-order RL response, [4]_), ``Lp Ipk / V_R`` as ``x -> 0``.
     """
-    return _as(magnetizing_inductance) * _as(peak_current) / _as(reflected_voltage)
+    base = _as(magnetizing_inductance) * _as(peak_current) / _as(reflected_voltage)
+    x = np.maximum(_as(output_resistance) * _as(peak_current) / _as(reflected_voltage), 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        factor = np.where(x > 1e-12, np.log1p(x) / np.where(x > 1e-12, x, 1.0), 1.0)
+    return base * factor
 
 
 def esr_share(drop_ratio):

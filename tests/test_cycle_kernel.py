@@ -31,6 +31,22 @@ def test_storage_time_is_the_library_charge_control_formula():
         assert got == pytest.approx(expected, rel=1e-12, abs=1e-18)
 
 
+def test_demagnetization_time_is_the_library_formula():
+    """``demagnetization_time`` is :func:`rcc.flyback.demagnetization_time`
+    for one point, across the ESR-free limit and large drops."""
+    from rcc import flyback
+
+    rng = np.random.default_rng(11)
+    for _ in range(300):
+        inductance, peak = 10 ** rng.uniform(-4, -2), 10 ** rng.uniform(-2, 1)
+        voltage = 10 ** rng.uniform(0, 2.5)
+        resistance = 0.0 if rng.uniform() < 0.2 else 10 ** rng.uniform(-4, 3)
+        expected = float(flyback.demagnetization_time(inductance, peak, voltage, resistance))
+        got = kernel.demagnetization_time(inductance, resistance, peak, voltage)
+        # same formula in the same order: equal to rounding
+        assert got == pytest.approx(expected, rel=1e-13)
+
+
 def test_tables_of_names_match_the_indices():
     """The column tables and the index constants the kernel reads agree."""
     for prefix, names in (("P_", kernel.POINT_NAMES), ("C_", kernel.CONSTANT_NAMES)):
