@@ -29,9 +29,6 @@ _configure_numba_cache()  # per-user kernel cache (before numba loads)
 
 from numba import njit  # noqa: E402
 
-#: A junction reset path is taken as finished this close to its asymptote [V]
-#: (the stages are described in ``rcc.cycle``, "drive-capacitor reset").
-JUNCTION_END = 0.05
 #: Safeguarded Newton steps for the instant the loaded ring frees the base
 #: (quadratic convergence: within 1e-10 of the swing on the population) [1].
 RING_ITERATIONS = 10
@@ -46,32 +43,35 @@ DECISION_ITERATIONS = 100
 POINT_NAMES = (
     "vr", "plateau_aux", "ireg0", "vc0", "i0", "va0", "bus", "hfe", "steal_gain", "slope",
     "v_on", "startup_current", "bleed", "thermal_voltage", "vbe_limiter", "v_threshold",
-    "aux_floor", "aux_hold",
+    "aux_floor", "aux_hold", "output_reflected", "output_rate",
 )
 # ---- design constants (entries of ``constants``)
 CONSTANT_NAMES = (
     "rb", "rlb", "rs", "tau", "aux_tau", "storage_constant", "node", "nb", "lm", "vebo",
     "inverse_gain", "clamp_resistance", "cb", "tau_slow", "rbe", "omega", "ring_impedance",
     "ring_damping", "limiter_gain", "zener_resistance", "filter_capacitance", "aux_state",
-    "linear_slow", "esr",
+    "linear_slow", "esr", "output_capacitance",
 )
 # ---- outputs (columns of the result)
 OUTPUT_NAMES = (
     "ireg", "itrip", "peak", "t_on", "t_off", "t_rise", "on_end", "off_end", "mode",
     "vc_next", "va_next", "residual", "restarts", "drive_capability", "crossing", "left",
     "vc_end", "vc_demag", "ccm", "t_cross", "t_demag", "aux_charge", "phase", "ring_on",
-    "charge_base", "limit_plateau",
+    "charge_base", "limit_plateau", "vr_start",
 )
 
 # column indices of ``points`` (numba reads module globals as constants)
 (P_VR, P_PLATEAU_AUX, P_IREG0, P_VC0, P_I0, P_VA0, P_BUS, P_HFE, P_STEAL_GAIN, P_SLOPE,
  P_V_ON, P_STARTUP_CURRENT, P_BLEED, P_THERMAL_VOLTAGE, P_VBE_LIMITER, P_V_THRESHOLD,
- P_AUX_FLOOR, P_AUX_HOLD) = range(18)
+ P_AUX_FLOOR, P_AUX_HOLD, P_OUTPUT_REFLECTED, P_OUTPUT_RATE) = range(20)
+# columns of the result read back by cycle_timing
+O_T_ON, O_T_OFF, O_VR_START = OUTPUT_NAMES.index("t_on"), OUTPUT_NAMES.index("t_off"), \
+    OUTPUT_NAMES.index("vr_start")
 # column indices of ``constants`` (numba reads module globals as constants)
 (C_RB, C_RLB, C_RS, C_TAU, C_AUX_TAU, C_STORAGE_CONSTANT, C_NODE, C_NB, C_LM, C_VEBO,
  C_INVERSE_GAIN, C_CLAMP_RESISTANCE, C_CB, C_TAU_SLOW, C_RBE, C_OMEGA,
  C_RING_IMPEDANCE, C_RING_DAMPING, C_LIMITER_GAIN, C_ZENER_RESISTANCE,
- C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_ESR) = range(24)
+ C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_ESR, C_OUTPUT_CAPACITANCE) = range(25)
 
 
 @njit(cache=True, error_model="numpy")
@@ -89,20 +89,45 @@ def storage_time_rising(tau, base_on, base_off, collector, slope, gain):
 
 
 @njit(cache=True, error_model="numpy")
-def demagnetization_time(lm, esr, peak, vr):
-    """:func:`rcc.flyback.demagnetization_time` with the output resistance
-    ``esr`` for one point [s]."""
-    x = esr * peak / vr
-    return lm * peak / vr * (np.log1p(x) / x if x > 1e-12 else 1.0)
+def _plateau_constants(lm, esr, capacitance, peak, vr):
+    """``alpha``, ``beta^2`` and ``a`` of the plateau's series RLC
+    (:func:`rcc.flyback.demagnetization_time`)."""
+    alpha = esr / (2.0 * lm)
+    return alpha, alpha * alpha - 1.0 / (lm * capacitance), vr / lm + alpha * peak
 
 
 @njit(cache=True, error_model="numpy")
-def demagnetizing_current(lm, esr, peak, vr, t):
-    """Magnetizing current ``t`` after the plateau began at ``peak`` [A]:
-    ``I_pk e^(-t/tau) - (V_R / R') (1 - e^(-t/tau))``, ``tau = L_m / R'``."""
-    y = esr * t / lm
-    fall = -np.expm1(-y) / y if y > 1e-12 else 1.0
-    return peak * np.exp(-y) - vr * t / lm * fall
+def demagnetization_time(lm, esr, capacitance, peak, vr):
+    """:func:`rcc.flyback.demagnetization_time` with the output path's
+    resistance ``esr`` and capacitance for one point [s]."""
+    alpha, beta_squared, a = _plateau_constants(lm, esr, capacitance, peak, vr)
+    y = peak / a
+    z = beta_squared * y * y
+    if z > 1e-6:
+        root = np.sqrt(z)
+        ratio = np.arctanh(min(root, 1.0)) / root
+    elif z < -1e-6:
+        root = np.sqrt(-z)
+        ratio = np.arctan(root) / root
+    else:
+        ratio = 1.0 + z / 3.0 + z * z / 5.0 + z * z * z / 7.0
+    return y * ratio
+
+
+@njit(cache=True, error_model="numpy")
+def demagnetizing_current(lm, esr, capacitance, peak, vr, t):
+    """:func:`rcc.flyback.demagnetizing_current` for one point [A]."""
+    alpha, beta_squared, a = _plateau_constants(lm, esr, capacitance, peak, vr)
+    u = beta_squared * t * t
+    if u > 1e-8:
+        root = np.sqrt(u)
+        first, second = np.cosh(root), t * np.sinh(root) / root
+    elif u < -1e-8:
+        root = np.sqrt(-u)
+        first, second = np.cos(root), t * np.sin(root) / root
+    else:
+        first, second = 1.0 + u / 2.0 + u * u / 24.0, t * (1.0 + u / 6.0 + u * u / 120.0)
+    return np.exp(-alpha * t) * (peak * first - a * second)
 
 
 @njit(cache=True, error_model="numpy")
@@ -137,11 +162,37 @@ def _knee(c, drop, winding):
 
 
 @njit(cache=True, error_model="numpy")
+def _junction_stage(c, drop, startup_current, winding):
+    """The junction path (2) with the slow path (3) in parallel: asymptote
+    [V] and time constant [s] of the drive capacitor while ``v_C`` is above the
+    junction's asymptote ``winding + drop``."""
+    g_junction = 1.0 / c[C_CLAMP_RESISTANCE]
+    junction = winding + drop
+    if c[C_LINEAR_SLOW] > 0.0:
+        # the slow path is the start-up current alone
+        return junction - startup_current / g_junction, c[C_CB] / g_junction
+    g_slow = c[C_CB] / c[C_TAU_SLOW]
+    target = winding - startup_current * c[C_RBE]
+    return ((junction * g_junction + target * g_slow) / (g_junction + g_slow),
+            c[C_CB] / (g_junction + g_slow))
+
+
+@njit(cache=True, error_model="numpy")
+def _junction_end(asymptote, tau2, start, junction):
+    """Time for the junction stage to bring ``v_C`` from ``start`` down to the
+    junction's asymptote, where its current ends (inf if it never does) [s]."""
+    if start <= junction:
+        return 0.0
+    if asymptote >= junction:
+        return np.inf
+    return tau2 * np.log((start - asymptote) / (junction - asymptote))
+
+
+@njit(cache=True, error_model="numpy")
 def reset(c, drop, startup_current, vc, winding, duration):
     """``_Cycle._reset``: the drive capacitor after ``duration`` with the winding at
     ``winding`` [V]."""
     knee = _knee(c, drop, winding)
-    tau_cb = c[C_CLAMP_RESISTANCE] * c[C_CB]
     floor = winding + c[C_VEBO]
     t1 = c[C_TAU] * np.log(max((vc - floor) / max(knee - floor, 1e-300), 1.0)) \
         if vc > knee else 0.0
@@ -150,15 +201,11 @@ def reset(c, drop, startup_current, vc, winding, duration):
     start2 = knee if vc > knee else vc
     left = max(duration - t1, 0.0)
     junction = winding + drop
-    if start2 > junction:
-        v2 = junction + (start2 - junction) * np.exp(-left / tau_cb)
-        t2 = tau_cb * np.log(max((start2 - junction) / JUNCTION_END, 1.0))
-    else:
-        v2 = start2
-        t2 = 0.0
+    asymptote, tau2 = _junction_stage(c, drop, startup_current, winding)
+    t2 = _junction_end(asymptote, tau2, start2, junction)
     if left < t2:
-        return v2
-    return _slow(c, startup_current, v2, winding, max(left - t2, 0.0))
+        return asymptote + (start2 - asymptote) * np.exp(-left / tau2)
+    return _slow(c, startup_current, min(start2, junction), winding, left - t2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -168,7 +215,6 @@ def reset_cross(c, drop, startup_current, vc, winding, level):
     if vc <= level:
         return 0.0
     knee = _knee(c, drop, winding)
-    tau_cb = c[C_CLAMP_RESISTANCE] * c[C_CB]
     floor = winding + c[C_VEBO]
     junction = winding + drop
     if level >= knee:
@@ -177,14 +223,13 @@ def reset_cross(c, drop, startup_current, vc, winding, level):
         t_knee = c[C_TAU] * np.log((vc - floor) / max(knee - floor, 1e-300)) \
             if vc > knee else 0.0
         start2 = min(vc, knee)
-        if level > junction + JUNCTION_END:
-            t = t_knee + tau_cb * np.log((start2 - junction) / max(level - junction, 1e-300))
+        asymptote, tau2 = _junction_stage(c, drop, startup_current, winding)
+        if level >= junction:
+            t = t_knee + (tau2 * np.log((start2 - asymptote) / (level - asymptote))
+                          if level > asymptote else np.inf)
         else:
-            t_end2 = tau_cb * np.log(max((start2 - junction) / JUNCTION_END, 1.0)) \
-                if start2 > junction else 0.0
-            start3 = min(start2, junction + JUNCTION_END)
-            t = t_knee + t_end2 + _slow_cross(c, startup_current, max(start3, level),
-                                              winding, level)
+            t = t_knee + _junction_end(asymptote, tau2, start2, junction) \
+                + _slow_cross(c, startup_current, min(start2, junction), winding, level)
     return np.inf if np.isnan(t) else t
 
 
@@ -404,7 +449,7 @@ def _point(p, c, out):
     # (no current left).  The auxiliary capacitor keeps the ESR-free plateau
     # (notes/cycle_model.md: its rectifier delivers the zener's charge over
     # the plateau, not at its start)
-    t_demag = demagnetization_time(lm, c[C_ESR], peak, vr)
+    t_demag = demagnetization_time(lm, c[C_ESR], c[C_OUTPUT_CAPACITANCE], peak, vr)
     winding_plateau = -nb * (lm * peak / t_demag if t_demag > 0.0 else vr)
     winding_end = -nb * vr
     # during the plateau the regulation zener also feeds the limiter's base
@@ -474,7 +519,8 @@ def _point(p, c, out):
     t_off = t_cross if ccm else t_demag + t_after
     ring_turn = ring_on and not held and not ccm
     if ccm:
-        residual = max(demagnetizing_current(lm, c[C_ESR], peak, vr, t_cross), 0.0)
+        residual = max(demagnetizing_current(lm, c[C_ESR], c[C_OUTPUT_CAPACITANCE], peak, vr,
+                                                t_cross), 0.0)
     elif ring_turn:
         residual = -(vr / c[C_RING_IMPEDANCE] * np.sin(phase)
                      * c[C_RING_DAMPING] ** (phase / np.pi))
@@ -502,7 +548,7 @@ def _point(p, c, out):
     values = (ireg, itrip, peak, t_on, t_off, t_rise, on_end, off_end, mode, vc_next,
               va_next, residual, 1.0 if restarts else 0.0, drive_capability, crossing, left, vc_end,
               vc_demag, 1.0 if ccm else 0.0, t_cross, t_demag, aux_charge, phase, 1.0 if ring_on else 0.0,
-              charge_base, limit_plateau)
+              charge_base, limit_plateau, vr)
     for k in range(len(values)):
         out[k] = values[k]
 
@@ -525,7 +571,18 @@ def cycle_timing(points, constants):
     """
     out = np.empty((points.shape[0], len(OUTPUT_NAMES)))
     for n in range(points.shape[0]):
-        _point(points[n], constants, out[n])
+        p = points[n]
+        _point(p, constants, out[n])
+        if p[P_OUTPUT_RATE] > 0.0:
+            # the output capacitor at the plateau's start sits below the mean
+            # output by the ripple: the sawtooth of a linear load (decay rate
+            # k = I_o / (V_o C_o)) over the cycle time T starts at V_o u /
+            # (e^u - 1), u = k T; the cycle is taken again from that plateau
+            u = p[P_OUTPUT_RATE] * (out[n, O_T_ON] + out[n, O_T_OFF])
+            start = u / np.expm1(u) if u < 700.0 else 0.0
+            shifted = p.copy()
+            shifted[P_VR] = max(p[P_VR] - p[P_OUTPUT_REFLECTED] * (1.0 - start), 1e-3)
+            _point(shifted, constants, out[n])
     return out
 
 

@@ -39,8 +39,8 @@ from dataclasses import dataclass, fields
 import numpy as np
 
 from rcc.design import Design, Load
-from rcc.devices import (REFERENCE_TEMPERATURE, base_emitter_voltage, current_gain,
-                          fall_time_charge_control,
+from rcc.devices import (OUTPUT_RECTIFIER_RESISTANCE, REFERENCE_TEMPERATURE,
+                          base_emitter_voltage, current_gain, fall_time_charge_control,
                           thermal_voltage, turn_off_energy, zener_voltage)
 from rcc.stress import (clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_cycle,
                          rcd_clamp_periodic)
@@ -48,7 +48,7 @@ from rcc.limiter import (LIMITER_REVERSE_GAIN, auxiliary_voltage, regulation_cur
                          trip_current)
 from rcc.mains import bus_voltage
 from rcc.operation import LOCKUP_FRACTION
-from rcc.flyback import esr_share, reflected_voltage
+from rcc.flyback import output_energy_share, reflected_voltage
 from rcc import _cycle_kernel as kernel
 
 __all__ = [
@@ -573,9 +573,12 @@ _POINT_ATTRIBUTES = ("bus", "hfe", "steal_gain", "slope", "v_on", "startup_curre
 class _Cycle:
     """Cycle evaluation at given output voltages (internal, vectorized)."""
 
-    def __init__(self, design: Design, bus, temperature, hfe):
+    def __init__(self, design: Design, bus, temperature, hfe, load=None):
         tr, sw, dr, lim = design.transformer, design.switch, design.drive, design.limiter
         self.design = design
+        #: the load (a :class:`_LoadLaw` with a value per point) whose drain
+        #: sets the output's ripple between plateaus; None: no ripple
+        self.load = load
         self.bus = bus
         self.temperature = temperature
         self.hfe = hfe
@@ -633,8 +636,14 @@ class _Cycle:
         else:
             self.v_threshold = self.startup_current * rb - self.vbe_onset * (rb + rbe) / rbe
         self._tau_slow = np.inf if rbe is None else (rb + rbe) * dr.capacitance
-        #: the output capacitor's ESR referred to the primary [ohm]
-        self.esr = design.output.esr * (tr.primary_turns / tr.output_turns)**2
+        #: the output path's resistance (the output capacitor's ESR and the
+        #: rectifier's series resistance) referred to the primary [ohm]
+        self.esr = (design.output.esr + OUTPUT_RECTIFIER_RESISTANCE) \
+            * (tr.primary_turns / tr.output_turns)**2
+        #: the output capacitance referred to the primary: it charges during
+        #: the plateau (at a lock-up by as much as the output sits at) [F]
+        self.output_capacitance = design.output.capacitance \
+            * (tr.output_turns / tr.primary_turns)**2
         self.omega = 1.0 / np.sqrt(self.lm * design.node_capacitance)
         self.ring_impedance = np.sqrt(self.lm / design.node_capacitance)
         quality = tr.core_loss_resistance * np.sqrt(design.node_capacitance / self.lm)
@@ -650,7 +659,7 @@ class _Cycle:
             zener_resistance=self.zener_resistance if self.aux_state else np.inf,
             filter_capacitance=regulation.filter_capacitance if self.aux_state else 0.0,
             aux_state=float(self.aux_state), linear_slow=float(np.isinf(self._tau_slow)),
-            esr=self.esr)
+            esr=self.esr, output_capacitance=self.output_capacitance)
         #: design constants of the compiled cycle timing (never subset)
         self.constants = np.array([float(constants[name])
                                    for name in kernel.CONSTANT_NAMES])
@@ -666,6 +675,8 @@ class _Cycle:
             if name != "constants" and isinstance(value, (np.ndarray, np.generic)) \
                     and np.shape(value) == shape:
                 setattr(part, name, value.reshape(-1)[index])
+        if self.load is not None:
+            part.load = self.load.take(index)
         return part
 
     def auxiliary_plateau(self, output_voltage):
@@ -753,8 +764,16 @@ class _Cycle:
         else:
             va0 = 0.0
             ireg0 = regulation_current(d, output_voltage, self.temperature)
+        # the load drains the output between plateaus at the relative rate
+        # I_o / (V_o C_o): the kernel starts the plateau from the bottom of
+        # that ripple (the mean output is the balance's unknown)
+        output = np.maximum(np.asarray(output_voltage, dtype=float), 1e-9)
+        ratio = tr.primary_turns / tr.output_turns
+        rate = 0.0 if self.load is None else \
+            self.load.current(output) / (output * d.output.capacitance)
         columns = {"vr": vr, "plateau_aux": plateau_aux, "ireg0": ireg0, "vc0": vc0,
-                   "i0": i0, "va0": va0}
+                   "i0": i0, "va0": va0, "output_reflected": ratio * output,
+                   "output_rate": rate}
         columns.update((name, getattr(self, name, 0.0)) for name in _POINT_ATTRIBUTES)
         shape = np.broadcast_shapes(*(np.shape(value) for value in columns.values()))
         points = np.empty(shape + (len(kernel.POINT_NAMES),))
@@ -767,7 +786,7 @@ class _Cycle:
         if not energy:
             quick = {name: out[name] for name in ("vc_next", "residual", "va_next", "peak",
                                                   "t_on", "t_off")}
-            quick["vr"] = np.broadcast_to(vr, shape)
+            quick["vr"] = out["vr_start"]
             return quick
         (ireg, itrip, peak, t_on, t_off, t_rise, vc_next, va_next, residual,
          drive_capability, crossing, left, vc_end, vc_demag, t_cross, t_demag, aux_charge,
@@ -778,7 +797,8 @@ class _Cycle:
         on_end, off_end, mode = (out[name].astype(int) for name in ("on_end", "off_end",
                                                                      "mode"))
         ccm, ring_on, restarts = (out[name] > 0.5 for name in ("ccm", "ring_on", "restarts"))
-        vr, i0 = np.broadcast_to(vr, shape), np.broadcast_to(i0, shape)
+        # the plateau the cycle saw (from the bottom of the output's ripple)
+        vr, i0 = out["vr_start"], np.broadcast_to(i0, shape)
         aux = np.broadcast_to(plateau_aux, shape)
         # the plateau's mean over demagnetization (the ESR lifts its start)
         vr_mean = np.where(t_demag > 0, self.lm * peak / np.maximum(t_demag, 1e-300), vr)
@@ -830,9 +850,11 @@ class _Cycle:
         shortfall = np.maximum(-secondary, 0.0)
         secondary = np.maximum(secondary, 0.0)
         # of the energy the secondary current carries, the output takes V_o
-        # per coulomb, the rectifier V_f and the capacitor's ESR the rest
-        share_out = output_voltage / (output_voltage + d.output.rectifier_drop) \
-            * esr_share(self.esr * peak / vr)
+        # per coulomb (a charge balance at the mean output, exact for a linear
+        # load whatever the ripple: flyback.output_energy_share); the
+        # rectifier's V_f, the path's resistance and the ripple the rest
+        share_out = output_energy_share(self.lm, peak, vr, ratio * output_voltage / vr,
+                                        self.esr, self.output_capacitance)
         if self.aux_state:
             regulation_power = aux_energy * frequency
             delivered = secondary * share_out * frequency
@@ -919,9 +941,11 @@ class _Cycle:
     #      R_lb / (R_lb + R_z) (notes/cycle_model.md);
     #   3. the slow path: base-emitter resistor and start-up current.
     # Breakdown (1) stops carrying current at v_C* = w + VEBO + R_b (VEBO -
-    # V_d)(1 + beta_R)/R_lb, where path 2 alone holds the base at -VEBO;
-    # path 2 is taken as finished within rcc._cycle_kernel.JUNCTION_END of its
-    # asymptote.  The compiled timing evaluates these stages
+    # V_d)(1 + beta_R)/R_lb, where path 2 alone holds the base at -VEBO.
+    # Paths 2 and 3 then act in parallel (one linear RC towards the weighted
+    # asymptote) until v_C reaches w + V_d, where path 2's current ends; path
+    # 3 alone takes it on from there (notes/cycle_model.md, "the junction
+    # path's end").  The compiled timing evaluates these stages
     # (rcc._cycle_kernel.reset, reset_cross).
 
     def _clamp_resistance(self):
@@ -1633,7 +1657,7 @@ def _solve_output(design: Design, bus, temperature, gain, load):
     regulation hold output), the point is a start-up lock-up: mode ``lockup``
     at the output where it sits.
     """
-    cycle = _Cycle(design, bus, temperature, gain)
+    cycle = _Cycle(design, bus, temperature, gain, load)
     top = _upper_output(design, temperature, bus)
     states = {"vc": np.minimum(cycle.v_threshold, 0.0) + np.zeros_like(bus),
               "i0": np.zeros_like(bus),

@@ -12,6 +12,7 @@ from scipy.constants import zero_Celsius
 
 __all__ = [
     "REFERENCE_TEMPERATURE",
+    "OUTPUT_RECTIFIER_RESISTANCE",
     "base_emitter_voltage",
     "current_gain",
     "zener_voltage",
@@ -24,6 +25,13 @@ __all__ = [
 
 #: Reference temperature of datasheet values, 25 degC [K].
 REFERENCE_TEMPERATURE = zero_Celsius + 25.0
+
+#: Series (bulk and lead) resistance of the output rectifier, in series with
+#: its junction whose drop is ``output.rectifier_drop`` at 1 A [ohm].  Every
+#: model puts it in the output path: at a lock-up pulse the secondary carries
+#: tens of amperes and it sets the plateau more than the output does
+#: # common practice: 20-60 mohm for rectifiers of a few amperes
+OUTPUT_RECTIFIER_RESISTANCE = 0.05
 
 
 def base_emitter_voltage(vbe_reference, tempco, temperature):

@@ -32,8 +32,10 @@ def test_storage_time_is_the_library_charge_control_formula():
 
 
 def test_demagnetization_time_is_the_library_formula():
-    """``demagnetization_time`` is :func:`rcc.flyback.demagnetization_time`
-    for one point, across the ESR-free limit and large drops."""
+    """``demagnetization_time`` and ``demagnetizing_current`` are
+    :func:`rcc.flyback.demagnetization_time` and
+    :func:`rcc.flyback.demagnetizing_current` for one point, across the
+    resistance- and capacitance-free limits, over- and underdamped plateaus."""
     from rcc import flyback
 
     rng = np.random.default_rng(11)
@@ -41,10 +43,16 @@ def test_demagnetization_time_is_the_library_formula():
         inductance, peak = 10 ** rng.uniform(-4, -2), 10 ** rng.uniform(-2, 1)
         voltage = 10 ** rng.uniform(0, 2.5)
         resistance = 0.0 if rng.uniform() < 0.2 else 10 ** rng.uniform(-4, 3)
-        expected = float(flyback.demagnetization_time(inductance, peak, voltage, resistance))
-        got = kernel.demagnetization_time(inductance, resistance, peak, voltage)
+        capacitance = np.inf if rng.uniform() < 0.2 else 10 ** rng.uniform(-8, -2)
+        expected = float(flyback.demagnetization_time(inductance, peak, voltage, resistance,
+                                                      capacitance))
+        got = kernel.demagnetization_time(inductance, resistance, capacitance, peak, voltage)
         # same formula in the same order: equal to rounding
         assert got == pytest.approx(expected, rel=1e-13)
+        half = float(flyback.demagnetizing_current(inductance, peak, voltage, expected / 2,
+                                                   resistance, capacitance))
+        assert kernel.demagnetizing_current(inductance, resistance, capacitance, peak, voltage,
+                                            expected / 2) == pytest.approx(half, rel=1e-12)
 
 
 def test_tables_of_names_match_the_indices():
@@ -103,23 +111,29 @@ def test_plateau_reset_current_by_nodal_analysis(plateau_aux):
     assert rate * cb == pytest.approx(current, rel=1e-6)
 
 
-# ---- the flyback plateau with the output capacitor's ESR
-@pytest.mark.parametrize("drop_ratio", [1e-6, 3e-3, 0.05, 0.7, 4.0])
-def test_plateau_with_esr_against_scipy(drop_ratio):
-    # L di/dt = -(V + R i) from I_pk to zero, integrated by scipy's Radau IIA
-    # (Hairer & Wanner, Solving ODEs II, 1996) with the charge q' = i: the end
-    # time is demagnetization_time, the current at half of it
-    # demagnetizing_current, and the energy V q taken at V over L I_pk^2 / 2
-    # is flyback.esr_share(R I_pk / V)
+# ---- the flyback plateau with the output path's resistance and capacitance
+@pytest.mark.parametrize("drop_ratio, capacitance", [
+    (1e-6, np.inf), (3e-3, np.inf), (0.05, np.inf), (0.7, np.inf), (4.0, np.inf),
+    (0.0, 2e-6), (0.7, 2e-6), (4.0, 2e-6), (4.0, 2e-8), (40.0, 2e-8)])
+def test_plateau_against_scipy(drop_ratio, capacitance):
+    # L di/dt = -(V + R i + q/C) from I_pk to zero, integrated by scipy's
+    # Radau IIA (Hairer & Wanner, Solving ODEs II, 1996) with the charge q' =
+    # i: the end time is demagnetization_time, the current at half of it
+    # demagnetizing_current, the charge plateau_charge, and the output's share
+    # V q / (L I_pk^2 / 2) output_energy_share.  The cases span the RL limit
+    # (no capacitance), underdamped (R = 0 and 0.7) and overdamped (4.0 and
+    # 40 with 20 nF) plateaus; without C the share is the closed form
+    # 2 (1 - ln(1 + x)/x)/x of the driven RL response (Hayt & Kemmerly,
+    # Engineering Circuit Analysis, first-order circuits # from memory)
     from scipy.integrate import solve_ivp
 
-    from rcc.flyback import esr_share
+    from rcc import flyback
 
     inductance, peak, voltage = 1.2e-3, 0.8, 150.0
     resistance = drop_ratio * voltage / peak
 
     def rhs(_, y):
-        return [-(voltage + resistance * y[0]) / inductance, y[0]]
+        return [-(voltage + resistance * y[0] + y[1] / capacitance) / inductance, y[0]]
 
     def empty(_, y):
         return y[0]
@@ -128,25 +142,45 @@ def test_plateau_with_esr_against_scipy(drop_ratio):
                          rtol=1e-12, atol=[1e-15, 1e-18], dense_output=True)
     t_end = solution.t_events[0][0]
     charge = solution.y_events[0][0][1]
-    # measured: the closed forms within 8.2e-14 relative of the integration at
-    # every drop ratio here (the solver's tolerance); 1e-11 leaves room for
-    # another scipy's step control
-    assert kernel.demagnetization_time(inductance, resistance, peak, voltage) == \
-        pytest.approx(t_end, rel=1e-11)
-    assert kernel.demagnetizing_current(inductance, resistance, peak, voltage, t_end / 2) \
+    arguments = (inductance, peak, voltage, resistance, capacitance)
+    # measured: the closed forms within 1.1e-13 relative of the integration
+    # (the solver's tolerance), the quadrature within 2e-14; 1e-11 leaves room
+    # for another scipy's step control
+    assert kernel.demagnetization_time(inductance, resistance, capacitance, peak, voltage) \
+        == pytest.approx(t_end, rel=1e-11)
+    assert kernel.demagnetizing_current(inductance, resistance, capacitance, peak, voltage,
+                                        t_end / 2) \
         == pytest.approx(solution.sol(t_end / 2)[0], rel=1e-11)
-    assert float(esr_share(drop_ratio)) == pytest.approx(
-        voltage * charge / (0.5 * inductance * peak**2), rel=1e-11)
+    assert float(flyback.plateau_charge(*arguments)) == pytest.approx(charge, rel=1e-11)
+    share = float(flyback.output_energy_share(inductance, peak, voltage, 1.0, resistance,
+                                              capacitance))
+    assert share == pytest.approx(voltage * charge / (0.5 * inductance * peak**2), rel=1e-11)
+    if np.isinf(capacitance) and drop_ratio > 0:
+        x = drop_ratio
+        assert share == pytest.approx(2 * (1 - np.log1p(x) / x) / x, rel=1e-9)
 
 
-def test_esr_share_is_smooth_where_the_series_hands_over():
-    # the series below x = 1e-2 and the closed form above meet without a jump
-    # that a 1e-12 change of an input could expose (well-posedness)
-    from rcc.flyback import esr_share
+@pytest.mark.parametrize("near", [1e-6, -1e-6, 1e-8, -1e-8])
+def test_plateau_is_smooth_where_the_series_hand_over(near):
+    # the series near beta^2 = 0 (critical damping) and the closed forms on
+    # either side meet without a jump that a 1e-12 change of an input could
+    # expose (well-posedness): the capacitance that puts z or u at the switch
+    from rcc import flyback
 
-    below, above = esr_share(np.nextafter(1e-2, 0.0)), esr_share(1e-2)
-    assert abs(float(above) - float(below)) < 1e-13
-    assert float(esr_share(0.0)) == 1.0
+    inductance, peak, voltage, resistance = 1e-3, 2.0, 20.0, 3.0
+    alpha = resistance / (2 * inductance)
+    a = voltage / inductance + alpha * peak
+    y = peak / a
+    # z = beta^2 y^2 = near (the time's series) at this capacitance
+    capacitance = 1.0 / (inductance * (alpha**2 - near / y**2))
+    values = [float(flyback.demagnetization_time(inductance, peak, voltage, resistance, c))
+              for c in (capacitance * (1 - 1e-12), capacitance, capacitance * (1 + 1e-12))]
+    assert max(values) - min(values) < 1e-9 * values[1]
+    # and u = beta^2 t^2 = near (the current's series) at t = y
+    currents = [float(flyback.demagnetizing_current(inductance, peak, voltage, t, resistance,
+                                                    capacitance))
+                for t in (y * (1 - 1e-12), y)]
+    assert abs(currents[1] - currents[0]) < 1e-9 * peak
 
 
 def test_drive_capacitor_with_the_emitter_rising_against_scipy(monkeypatch):

@@ -88,8 +88,10 @@ def test_report_prints_the_signed_margin(reports):
     # 0.7585 before the output capacitor's ESR lifted the flyback plateau's
     # start, which shortens the plateau and its reset; 0.758 before the on-time
     # drive took the emitter's rise on the sense resistor and the limiter the
-    # emitter current: both move the drive at the end and the peak it holds)
-    assert "[FAIL] weak-drive (value 0.796, minimum 1, margin -20.4%)" in text
+    # emitter current: both move the drive at the end and the peak it holds;
+    # 0.796 before the output path's resistance and capacitance on the plateau
+    # and the junction reset's end, which set the drive capacitor at turn-on)
+    assert "[FAIL] weak-drive (value 0.808, minimum 1, margin -19.2%)" in text
 
 
 def test_no_output_finding_for_a_supply_that_does_not_oscillate(reports):

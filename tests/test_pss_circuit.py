@@ -222,10 +222,6 @@ _AUX_REASON = ("output 2.4-5.3 % above the cycle model's (measured: standby 85 V
 _IRREGULAR_REASON = ("the engine does not settle to a period-1 orbit here (irregular or "
                      "burst switching still after 5000 cycles; the result is the "
                      "transient fall-back, not converged): nothing to compare")
-_NO_START_REASON = ("the cycle model reports the supply off at 36 V / 1 A (no restart after "
-                    "a pulse) while the engine's periodic steady state, started from the "
-                    "model's state, finds a collapsed cycle: 4.4 kHz, 0.53 V output, 2.5 A "
-                    "peak; neither regulates")
 XFAIL = {
     ("legacy_24v_substitute", 0, 0.1): _IRREGULAR_REASON,
     ("legacy_24v_substitute", 0, 1.0): _AUX_REASON,
@@ -239,7 +235,11 @@ XFAIL = {
     ("standby_12v_universal", 2, 0.1): _IRREGULAR_REASON,
     ("standby_12v_universal", 2, 1.0): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 0, 0.1): _IRREGULAR_REASON,
-    ("aux_5v_48v_dc", 0, 1.0): _NO_START_REASON,
+    # (aux_5v_48v_dc at 36 V / 1 A was xfailed until 2026-12-03: the model
+    # reported the supply off; with the output path's resistance and
+    # capacitance on the plateau and the junction reset's end it finds the
+    # collapsed cycle: frequency -3.7 %, output -0.2 %, peak +3.0 % against
+    # the periodic steady state's 5.08 kHz, 0.585 V, 2.46 A)
     ("aux_5v_48v_dc", 1, 0.1): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 1, 1.0): _IRREGULAR_REASON,
     ("aux_5v_48v_dc", 2, 0.1): _IRREGULAR_REASON,

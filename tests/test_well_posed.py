@@ -118,12 +118,6 @@ def test_population_one_part_in_1e12_moves_nothing(index):
     assert compared > 0, compared
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "ill posed again since the zener feeds the drive reset on the plateau (measured "
-    "2026-12-03): at 90 V the balance is 'irregular' 30.5 kHz, 6.83 V "
-    "(regime-boundary), at 90 V x (1 + 1e-12) 'dcm' 33.4 kHz, 6.86 V (unsettled); "
-    "both doubted, so rcc check prints the engine's values there; the surplus jumps "
-    "between patterns at the balance and the jump test misses one side (issue 8)"))
 def test_population_irregular_pattern_point():
     """pop-1-0022 at 90 V, 0.408848 A settles into an irregular pattern.  With
     the RCD clamp level of each cycle taken from that cycle's own rate, the
@@ -131,7 +125,11 @@ def test_population_irregular_pattern_point():
     a change of the line by one part in 10^12 flipped the point between
     ``burst`` at 37.5 kHz and ``irregular`` at 17.2 kHz; with the clamp
     capacitor carried through the pattern the balance is the same on both
-    sides (``irregular``, a mixed-regime point; notes/accuracy.md)."""
+    sides (``irregular``, a mixed-regime point; notes/accuracy.md).  After the
+    zener-fed reset it flipped again (``irregular`` 30.5 kHz against ``dcm``
+    33.4 kHz, a strict xfail); since the output path's resistance and
+    capacitance on the plateau (2026-12-03) it is ``dcm`` 52.6 kHz, 5.797 V,
+    ``held-ring``, on both sides to 3e-11."""
     from rcc.population import generate_one
 
     design = generate_one(POPULATION_SEED, 22).design

@@ -257,8 +257,9 @@ BREAKDOWN_RESISTANCE = 5.0
 LIMITER_BASE_RESISTANCE = 10.0
 LIMITER_SATURATION_VOLTAGE = 0.1
 LIMITER_SATURATION_RESISTANCE = 5.0
-#: Diode on-resistances [ohm]  # common practice for small rectifiers
-OUTPUT_RECTIFIER_RESISTANCE = 0.05
+#: Diode on-resistances [ohm]  # common practice for small rectifiers (the
+#: output rectifier's, shared with the cycle model, in :mod:`rcc.devices`)
+OUTPUT_RECTIFIER_RESISTANCE = devices.OUTPUT_RECTIFIER_RESISTANCE
 AUX_RECTIFIER_RESISTANCE = 1.0
 CLAMP_DIODE_DROP = 1.0
 CLAMP_DIODE_RESISTANCE = 1.0
