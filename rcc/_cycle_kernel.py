@@ -50,7 +50,7 @@ CONSTANT_NAMES = (
     "rb", "rlb", "rs", "tau", "aux_tau", "storage_constant", "node", "nb", "lm", "vebo",
     "inverse_gain", "clamp_resistance", "cb", "tau_slow", "rbe", "omega", "ring_impedance",
     "ring_damping", "limiter_gain", "zener_resistance", "filter_capacitance", "aux_state",
-    "linear_slow", "esr", "output_capacitance",
+    "linear_slow", "esr", "output_capacitance", "rb_on", "tau_on",
 )
 # ---- outputs (columns of the result)
 OUTPUT_NAMES = (
@@ -71,7 +71,8 @@ O_T_ON, O_T_OFF, O_VR_START = OUTPUT_NAMES.index("t_on"), OUTPUT_NAMES.index("t_
 (C_RB, C_RLB, C_RS, C_TAU, C_AUX_TAU, C_STORAGE_CONSTANT, C_NODE, C_NB, C_LM, C_VEBO,
  C_INVERSE_GAIN, C_CLAMP_RESISTANCE, C_CB, C_TAU_SLOW, C_RBE, C_OMEGA,
  C_RING_IMPEDANCE, C_RING_DAMPING, C_LIMITER_GAIN, C_ZENER_RESISTANCE,
- C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_ESR, C_OUTPUT_CAPACITANCE) = range(25)
+ C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_ESR, C_OUTPUT_CAPACITANCE, C_RB_ON,
+ C_TAU_ON) = range(27)
 
 
 @njit(cache=True, error_model="numpy")
@@ -308,7 +309,7 @@ def _hold_release(c, floor, drop, hold, va, t_inverse):
 @njit(cache=True, error_model="numpy")
 def _excess(p, c, amplitude, offset, reg_drop, t):
     """Ramp minus the current the base can hold at ``t`` [A], and its rate [A/s]."""
-    tau, a_tau, rs = c[C_TAU], c[C_AUX_TAU], c[C_RS]
+    tau, a_tau, rs = c[C_TAU_ON], c[C_AUX_TAU], c[C_RS]
     gain, hfe, vt = p[P_STEAL_GAIN], p[P_HFE], p[P_THERMAL_VOLTAGE]
     decay = amplitude * np.exp(-t / tau)
     drive = max(decay + offset, 1e-12)
@@ -392,7 +393,9 @@ def _plateau_reset(c, p, plateau_aux, drop):
 @njit(cache=True, error_model="numpy")
 def _point(p, c, out):
     """One switching cycle of one point: ``rcc.cycle._Cycle.evaluate``'s timing."""
-    rb, tau, rlb, rs = c[C_RB], c[C_TAU], c[C_RLB], c[C_RS]
+    # the base current of the on-time and the turn-off also crosses the
+    # switch's base spreading resistance: R_b + r_bb and its R C
+    rb, tau, rlb, rs = c[C_RB_ON], c[C_TAU_ON], c[C_RLB], c[C_RS]
     nb, lm, a_tau = c[C_NB], c[C_LM], c[C_AUX_TAU]
     aux_state = c[C_AUX_STATE] > 0.0
     vr, plateau_aux, ireg0 = p[P_VR], p[P_PLATEAU_AUX], p[P_IREG0]
@@ -490,7 +493,7 @@ def _point(p, c, out):
     # collector-base junction conducts and pulls the limiter's base to about
     # the emitter for half of each period, so the zener path drains the
     # auxiliary capacitor towards Vz (not Vz + Vbe_lim) half of the time
-    zeta_hold = 0.25 * nb**2 * c[C_RING_IMPEDANCE] * (1.0 / rb + 1.0 / c[C_CLAMP_RESISTANCE])
+    zeta_hold = 0.25 * nb**2 * c[C_RING_IMPEDANCE] * (1.0 / c[C_RB] + 1.0 / c[C_CLAMP_RESISTANCE])
     decay = zeta_hold * omega - omega / np.pi * np.log(c[C_RING_DAMPING])
     swing = nb * free
     reach = drop - vc_demag

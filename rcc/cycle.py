@@ -40,7 +40,7 @@ import numpy as np
 
 from rcc.design import Design, Load
 from rcc.devices import (OUTPUT_RECTIFIER_RESISTANCE, REFERENCE_TEMPERATURE,
-                          base_emitter_voltage, current_gain, fall_time_charge_control,
+                          SWITCH_BASE_RESISTANCE, base_emitter_voltage, current_gain, fall_time_charge_control,
                           thermal_voltage, turn_off_energy, zener_voltage)
 from rcc.stress import (clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_cycle,
                          rcd_clamp_periodic)
@@ -595,6 +595,10 @@ class _Cycle:
         self.winding_on = self.nb * (bus - sw.vce_sat) * self.lm / self.lt
         self.v_on = self.winding_on - self.vbe
         self.tau = dr.resistance * dr.capacitance
+        #: the drive path of the on-time and the turn-off: R_b and the switch's
+        #: base spreading resistance [ohm], and its R C [s]
+        self.rb_on = dr.resistance + SWITCH_BASE_RESISTANCE
+        self.tau_on = self.rb_on * dr.capacitance
         # storage-time constant from the datasheet storage time, measured with
         # I_B1 = I_B2 and hard overdrive: t_s = tau_S ln 2 (charge control)
         self.storage_constant = sw.storage_time / np.log(2.0)
@@ -659,7 +663,8 @@ class _Cycle:
             zener_resistance=self.zener_resistance if self.aux_state else np.inf,
             filter_capacitance=regulation.filter_capacitance if self.aux_state else 0.0,
             aux_state=float(self.aux_state), linear_slow=float(np.isinf(self._tau_slow)),
-            esr=self.esr, output_capacitance=self.output_capacitance)
+            esr=self.esr, output_capacitance=self.output_capacitance, rb_on=self.rb_on,
+            tau_on=self.tau_on)
         #: design constants of the compiled cycle timing (never subset)
         self.constants = np.array([float(constants[name])
                                    for name in kernel.CONSTANT_NAMES])
@@ -753,7 +758,6 @@ class _Cycle:
         vr = reflected_voltage(output_voltage, d.output.rectifier_drop, tr.primary_turns,
                                tr.output_turns)
         vr = np.maximum(vr, 1e-3)
-        rb = dr.resistance
         # ---- regulation current into the limiter base during the on-time
         plateau_aux = self.auxiliary_plateau(output_voltage)
         if self.aux_state:
@@ -827,7 +831,7 @@ class _Cycle:
         # at Vbe; taken from the magnetizing energy, while the first part
         # (below the bus) is fed by the bus
         reverse_base = (self.nb * (vr + self.esr * peak) + np.maximum(vc_end, 0.0)
-                        + self.vbe) / rb
+                        + self.vbe) / self.rb_on
         fall = fall_time_charge_control(self.transit_time, left, reverse_base)
         reversal = (turn_off_energy(left, fall, node, clamp_level)
                     + 0.5 * self.bus * left * fall)

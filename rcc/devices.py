@@ -13,6 +13,7 @@ from scipy.constants import zero_Celsius
 __all__ = [
     "REFERENCE_TEMPERATURE",
     "OUTPUT_RECTIFIER_RESISTANCE",
+    "SWITCH_BASE_RESISTANCE",
     "base_emitter_voltage",
     "current_gain",
     "zener_voltage",
@@ -32,6 +33,12 @@ REFERENCE_TEMPERATURE = zero_Celsius + 25.0
 #: tens of amperes and it sets the plateau more than the output does
 #: # common practice: 20-60 mohm for rectifiers of a few amperes
 OUTPUT_RECTIFIER_RESISTANCE = 0.05
+
+#: Base spreading resistance of the switch, in series with its base terminal
+#: [ohm].  The drive current flows through it during the on-time (at a few
+#: hundred milliamperes it adds about half a volt to the base) and the
+#: reverse base current at turn-off  # from memory: a few ohms for power BJTs
+SWITCH_BASE_RESISTANCE = 2.0
 
 
 def base_emitter_voltage(vbe_reference, tempco, temperature):

@@ -184,7 +184,7 @@ def test_plateau_is_smooth_where_the_series_hand_over(near):
 
 
 def test_drive_capacitor_with_the_emitter_rising_against_scipy(monkeypatch):
-    # the on-time drive: C_b dv/dt = (V_on - R_s (i0 + s t) - v) / R_b, the
+    # the on-time drive: C_b dv/dt = (V_on - R_s (i0 + s t) - v) / (R_b + r_bb), the
     # emitter riding on the sense resistor; the kernel's closed form for the
     # capacitor at turn-off against scipy's Radau IIA on the standby case at
     # 85 V and on a lock-up pulse of the 5 V case at 48 V (where R_s I_pk is a
@@ -215,7 +215,9 @@ def test_drive_capacitor_with_the_emitter_rising_against_scipy(monkeypatch):
                      np.array([0.0]), None)
         p, c = captured["points"][0], captured["constants"]
         out = dict(zip(kernel.OUTPUT_NAMES, captured["out"][0]))
-        rs, rb, cb = c[kernel.C_RS], c[kernel.C_RB], c[kernel.C_CB]
+        # the drive path: R_b and the switch's base spreading resistance
+        rs, rb, cb = c[kernel.C_RS], c[kernel.C_RB_ON], c[kernel.C_CB]
+        assert rb == design.drive.resistance + devices.SWITCH_BASE_RESISTANCE
         slope, i0, v_on = p[kernel.P_SLOPE], p[kernel.P_I0], p[kernel.P_V_ON]
 
         def rhs(t, v):

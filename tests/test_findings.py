@@ -90,8 +90,9 @@ def test_report_prints_the_signed_margin(reports):
     # drive took the emitter's rise on the sense resistor and the limiter the
     # emitter current: both move the drive at the end and the peak it holds;
     # 0.796 before the output path's resistance and capacitance on the plateau
-    # and the junction reset's end, which set the drive capacitor at turn-on)
-    assert "[FAIL] weak-drive (value 0.808, minimum 1, margin -19.2%)" in text
+    # and the junction reset's end, which set the drive capacitor at turn-on;
+    # 0.808 before the drive charged through the base spreading resistance too)
+    assert "[FAIL] weak-drive (value 0.814, minimum 1, margin -18.6%)" in text
 
 
 def test_no_output_finding_for_a_supply_that_does_not_oscillate(reports):

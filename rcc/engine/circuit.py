@@ -247,8 +247,9 @@ __all__ = [
 
 #: Conductance from every node to ground [S]  # common practice (gmin)
 NODE_LEAK_CONDUCTANCE = 1e-12
-#: Base spreading resistance of the switch [ohm]  # from memory: a few ohms for power BJTs
-SWITCH_BASE_RESISTANCE = 2.0
+#: Base spreading resistance of the switch [ohm] (shared with the cycle model,
+#: :data:`rcc.devices.SWITCH_BASE_RESISTANCE`)
+SWITCH_BASE_RESISTANCE = devices.SWITCH_BASE_RESISTANCE
 #: Collector-emitter resistance added to Vce,sat in saturation [ohm]  # common practice
 SWITCH_SATURATION_RESISTANCE = 0.2
 #: Series resistance of the base-emitter reverse breakdown [ohm]  # common practice
@@ -276,8 +277,16 @@ COARSE_SEGMENTS_PER_DECADE = 1.0
 #: collector-base junction (fine: they set the start-up, the trip, the
 #: regulation and the drive reset), the auxiliary rectifier, and the output
 #: rectifier and clamp diode (coarse).  Below the first breakpoint the first chord continues to
-#: zero current; above the last the last chord continues.
-SWITCH_JUNCTION_CURRENTS = (1e-5, 10.0, SEGMENTS_PER_DECADE)
+#: zero current; above the last the last chord continues.  The switch's table
+#: reaches 10 kA: in saturation its junction follows the whole stored charge,
+#: and the excess charge over tau_F is hundreds to thousands of amperes
+#: (tau_S / tau_F of 10^3 times the excess base current); a table ending at
+#: 10 A continued its last chord linearly there and put the junction about
+#: 1.1 V too high (pop-1-0011 at 22.3 V, early in a lock-up pulse: the base
+#: 2.46 V above the emitter at 0.25 A of base current, 0.49 V of it across
+#: the spreading resistance; with the table to 10 kA 1.43 V at 0.29 A, 0.59 V
+#: of it across that resistance)
+SWITCH_JUNCTION_CURRENTS = (1e-5, 1e4, SEGMENTS_PER_DECADE)
 LIMITER_JUNCTION_CURRENTS = (1e-7, 1e-1, SEGMENTS_PER_DECADE)
 ZENER_CURRENTS = (1e-5, 1e-1, SEGMENTS_PER_DECADE)
 LIMITER_COLLECTOR_BASE_CURRENTS = (1e-5, 1e-1, SEGMENTS_PER_DECADE)
