@@ -373,7 +373,7 @@ def output_energy_share(magnetizing_inductance, peak_current, reflected_voltage,
     -------
     ndarray
         ``f V_R q / (L I_pk^2 / 2)`` [1] (``q`` of :func:`plateau_charge`);
-        ``f`` with no ``R'`` or ``C'``.
+        ``f`` with no ``R'`` or ``C'``, and where ``I_pk`` is zero.
 
     Notes
     -----
@@ -387,8 +387,12 @@ def output_energy_share(magnetizing_inductance, peak_current, reflected_voltage,
     """
     charge = plateau_charge(magnetizing_inductance, peak_current, reflected_voltage,
                             output_resistance, output_capacitance)
-    return (_as(output_fraction) * _as(reflected_voltage) * charge
-            / (0.5 * _as(magnetizing_inductance) * _as(peak_current)**2))
+    energy = 0.5 * _as(magnetizing_inductance) * _as(peak_current)**2
+    fraction = _as(output_fraction)
+    # (no current: the limit of a vanishing pulse, with no drop, is f)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        share = fraction * _as(reflected_voltage) * charge / energy
+    return np.where(energy > 0.0, share, fraction)
 
 
 def ramp_time(magnetizing_inductance, peak_current, bus_voltage):

@@ -163,7 +163,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numba import njit
 from scipy.constants import Boltzmann, elementary_charge
-from scipy.integrate import solve_ivp
+from scipy.integrate import BDF, Radau
 
 from rcc import devices
 from rcc.design import Design, Load
@@ -899,6 +899,17 @@ class SmoothRun:
 
 #: Least cut-off interval before a turn-on counts [s]
 CUTOFF_INTERVAL = 100e-9
+#: The stiff solvers are stable far into the right half plane: with a step
+#: ``h`` large against ``1/lambda`` they damp a mode that grows as ``e^(lambda
+#: t)`` (Radau IIA's stability function tends to zero as ``lambda h -> +inf``;
+#: Hairer & Wanner, *Solving Ordinary Differential Equations II*, 2nd ed.,
+#: 1996, sec. IV.3 and IV.5  # from memory), so a rest the circuit leaves by
+#: itself (the switch turning on from the start-up current) can look stable.
+#: Where the Jacobian has an eigenvalue with positive real part the step is
+#: held below ``GROWTH_STEP / Re(lambda)`` [1]; the check runs only for
+#: steps above ``GROWTH_CHECK_STEP`` (the fast phases take shorter ones) [s].
+GROWTH_STEP = 0.5
+GROWTH_CHECK_STEP = 1e-8
 
 
 def _turn_ons(time, current, threshold, collector_voltage, bus_voltage):
@@ -973,7 +984,10 @@ def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperatu
     Notes
     -----
     The right-hand side and a forward-difference Jacobian are compiled
-    (numba); scipy's Radau IIA [7]_ (or BDF) does the rest.
+    (numba); scipy's Radau IIA [7]_ (or BDF) steps it, with the step held
+    below :data:`GROWTH_STEP` over the fastest growing mode's rate where the
+    Jacobian has one (a rest the circuit leaves by itself, which the solver
+    would otherwise damp).
     """
     circuit = build_smooth(design, bus_voltage, load, temperature=temperature, hfe=hfe,
                            limiter_reverse_gain=limiter_reverse_gain,
@@ -983,14 +997,27 @@ def simulate_smooth(design: Design, bus_voltage: float, load: Load, *, temperatu
     if atol is None:
         atol = np.array([1e-7 if name.startswith("i_") else 1e-6 for name in names])
     start = _time.process_time()
-    solution = solve_ivp(circuit.rhs, (0.0, float(duration)), x0, method=method, rtol=rtol,
-                         atol=atol, jac=circuit.jacobian,
-                         max_step=np.inf if max_step is None else float(max_step))
+    limit = np.inf if max_step is None else float(max_step)
+    solver = {"Radau": Radau, "BDF": BDF}[method](
+        circuit.rhs, 0.0, x0, float(duration), rtol=rtol, atol=atol, jac=circuit.jacobian,
+        max_step=limit)
+    times, values = [0.0], [np.array(x0, dtype=float)]
+    while solver.status == "running":
+        # a growing mode (a rest the circuit leaves by itself) is kept
+        # growing: the step stays below GROWTH_STEP / (its rate)
+        solver.max_step = limit
+        if solver.h_abs is not None and solver.h_abs > GROWTH_CHECK_STEP:
+            rate = float(np.max(np.linalg.eigvals(circuit.jacobian(solver.t, solver.y)).real))
+            if rate > 0.0:
+                solver.max_step = min(limit, GROWTH_STEP / rate)
+        message = solver.step()
+        times.append(solver.t)
+        values.append(solver.y.copy())
     cpu = _time.process_time() - start
-    if not solution.success:
-        raise RuntimeError(f"smooth reference: solver failed at t = {solution.t[-1]:.6g} s: "
-                           f"{solution.message}")
-    t, states = solution.t, solution.y
+    if solver.status == "failed":
+        raise RuntimeError(f"smooth reference: solver failed at t = {solver.t:.6g} s: "
+                           f"{message}")
+    t, states = np.array(times), np.array(values).T
     signals = circuit.signals(states)
     p = design.limiter
     threshold = 0.1 * p.vbe / p.sense_resistance
