@@ -168,7 +168,8 @@ class OperatingPoints:
     current_gain : ndarray
         Switch current gain at that temperature [1].
     output_voltage : ndarray
-        Output voltage [V].
+        Output voltage, its mean over the cycle (at a lock-up, the mean of
+        the sawtooth each pulse charges and the load drains) [V].
     frequency : ndarray
         Switching frequency (average over bursts) [Hz].
     on_time : ndarray
