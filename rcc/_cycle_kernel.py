@@ -50,7 +50,7 @@ CONSTANT_NAMES = (
     "rb", "rlb", "rs", "tau", "aux_tau", "storage_constant", "node", "nb", "lm", "vebo",
     "inverse_gain", "clamp_resistance", "cb", "tau_slow", "rbe", "omega", "ring_impedance",
     "ring_damping", "limiter_gain", "zener_resistance", "filter_capacitance", "aux_state",
-    "linear_slow", "esr", "output_capacitance", "rb_on", "tau_on",
+    "linear_slow", "output_resistance", "output_capacitance", "rb_on", "tau_on",
 )
 # ---- outputs (columns of the result)
 OUTPUT_NAMES = (
@@ -71,7 +71,8 @@ O_T_ON, O_T_OFF, O_VR_START = OUTPUT_NAMES.index("t_on"), OUTPUT_NAMES.index("t_
 (C_RB, C_RLB, C_RS, C_TAU, C_AUX_TAU, C_STORAGE_CONSTANT, C_NODE, C_NB, C_LM, C_VEBO,
  C_INVERSE_GAIN, C_CLAMP_RESISTANCE, C_CB, C_TAU_SLOW, C_RBE, C_OMEGA,
  C_RING_IMPEDANCE, C_RING_DAMPING, C_LIMITER_GAIN, C_ZENER_RESISTANCE,
- C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_ESR, C_OUTPUT_CAPACITANCE, C_RB_ON,
+ C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_OUTPUT_RESISTANCE, C_OUTPUT_CAPACITANCE,
+ C_RB_ON,
  C_TAU_ON) = range(27)
 
 
@@ -90,18 +91,18 @@ def storage_time_rising(tau, base_on, base_off, collector, slope, gain):
 
 
 @njit(cache=True, error_model="numpy")
-def _plateau_constants(lm, esr, capacitance, peak, vr):
+def _plateau_constants(lm, resistance, capacitance, peak, vr):
     """``alpha``, ``beta^2`` and ``a`` of the plateau's series RLC
     (:func:`rcc.flyback.demagnetization_time`)."""
-    alpha = esr / (2.0 * lm)
+    alpha = resistance / (2.0 * lm)
     return alpha, alpha * alpha - 1.0 / (lm * capacitance), vr / lm + alpha * peak
 
 
 @njit(cache=True, error_model="numpy")
-def demagnetization_time(lm, esr, capacitance, peak, vr):
+def demagnetization_time(lm, resistance, capacitance, peak, vr):
     """:func:`rcc.flyback.demagnetization_time` with the output path's
-    resistance ``esr`` and capacitance for one point [s]."""
-    alpha, beta_squared, a = _plateau_constants(lm, esr, capacitance, peak, vr)
+    resistance and capacitance for one point [s]."""
+    alpha, beta_squared, a = _plateau_constants(lm, resistance, capacitance, peak, vr)
     y = peak / a
     z = beta_squared * y * y
     if z > 1e-6:
@@ -116,9 +117,9 @@ def demagnetization_time(lm, esr, capacitance, peak, vr):
 
 
 @njit(cache=True, error_model="numpy")
-def demagnetizing_current(lm, esr, capacitance, peak, vr, t):
+def demagnetizing_current(lm, resistance, capacitance, peak, vr, t):
     """:func:`rcc.flyback.demagnetizing_current` for one point [A]."""
-    alpha, beta_squared, a = _plateau_constants(lm, esr, capacitance, peak, vr)
+    alpha, beta_squared, a = _plateau_constants(lm, resistance, capacitance, peak, vr)
     u = beta_squared * t * t
     if u > 1e-8:
         root = np.sqrt(u)
@@ -445,14 +446,16 @@ def _point(p, c, out):
     vc_end = aim - emitter_slope * t_on + (vc0 - aim) * np.exp(-t_on / tau)
     charge_base = amplitude * tau * (1.0 - np.exp(-t_on / tau)) + offset * t_on
     # ---- off-time: flyback plateau
-    # while the secondary current flows the output capacitor's ESR (R'
-    # referred to the primary) adds R' i to the plateau: demagnetization
-    # takes demagnetization_time, the drive reset sees the plateau's mean
-    # L_m I_pk / t_demag; the ring after it starts from the ESR-free plateau
-    # (no current left).  The auxiliary capacitor keeps the ESR-free plateau
+    # while the secondary current flows the output path's resistance and the
+    # output capacitor's rise (R' and C' referred to the primary) add R' i +
+    # q/C' to the plateau: demagnetization takes demagnetization_time (a
+    # series RLC discharge), the drive reset sees the plateau's mean L_m I_pk
+    # / t_demag; the ring after it starts from the plateau without current.
+    # The auxiliary capacitor keeps the plateau without the drop
     # (notes/cycle_model.md: its rectifier delivers the zener's charge over
     # the plateau, not at its start)
-    t_demag = demagnetization_time(lm, c[C_ESR], c[C_OUTPUT_CAPACITANCE], peak, vr)
+    t_demag = demagnetization_time(lm, c[C_OUTPUT_RESISTANCE], c[C_OUTPUT_CAPACITANCE],
+                                   peak, vr)
     winding_plateau = -nb * (lm * peak / t_demag if t_demag > 0.0 else vr)
     winding_end = -nb * vr
     # during the plateau the regulation zener also feeds the limiter's base
@@ -522,8 +525,8 @@ def _point(p, c, out):
     t_off = t_cross if ccm else t_demag + t_after
     ring_turn = ring_on and not held and not ccm
     if ccm:
-        residual = max(demagnetizing_current(lm, c[C_ESR], c[C_OUTPUT_CAPACITANCE], peak, vr,
-                                                t_cross), 0.0)
+        residual = max(demagnetizing_current(lm, c[C_OUTPUT_RESISTANCE],
+                                             c[C_OUTPUT_CAPACITANCE], peak, vr, t_cross), 0.0)
     elif ring_turn:
         residual = -(vr / c[C_RING_IMPEDANCE] * np.sin(phase)
                      * c[C_RING_DAMPING] ** (phase / np.pi))

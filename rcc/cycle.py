@@ -40,8 +40,9 @@ import numpy as np
 
 from rcc.design import Design, Load
 from rcc.devices import (OUTPUT_RECTIFIER_RESISTANCE, REFERENCE_TEMPERATURE,
-                          SWITCH_BASE_RESISTANCE, base_emitter_voltage, current_gain, fall_time_charge_control,
-                          thermal_voltage, turn_off_energy, zener_voltage)
+                          SWITCH_BASE_RESISTANCE, base_emitter_voltage, current_gain,
+                          fall_time_charge_control, thermal_voltage, turn_off_energy,
+                          zener_voltage)
 from rcc.stress import (clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_cycle,
                          rcd_clamp_periodic)
 from rcc.limiter import (LIMITER_REVERSE_GAIN, auxiliary_voltage, regulation_current,
@@ -643,7 +644,7 @@ class _Cycle:
         self._tau_slow = np.inf if rbe is None else (rb + rbe) * dr.capacitance
         #: the output path's resistance (the output capacitor's ESR and the
         #: rectifier's series resistance) referred to the primary [ohm]
-        self.esr = (design.output.esr + OUTPUT_RECTIFIER_RESISTANCE) \
+        self.output_resistance = (design.output.esr + OUTPUT_RECTIFIER_RESISTANCE) \
             * (tr.primary_turns / tr.output_turns)**2
         #: the output capacitance referred to the primary: it charges during
         #: the plateau (at a lock-up by as much as the output sits at) [F]
@@ -664,8 +665,8 @@ class _Cycle:
             zener_resistance=self.zener_resistance if self.aux_state else np.inf,
             filter_capacitance=regulation.filter_capacitance if self.aux_state else 0.0,
             aux_state=float(self.aux_state), linear_slow=float(np.isinf(self._tau_slow)),
-            esr=self.esr, output_capacitance=self.output_capacitance, rb_on=self.rb_on,
-            tau_on=self.tau_on)
+            output_resistance=self.output_resistance,
+            output_capacitance=self.output_capacitance, rb_on=self.rb_on, tau_on=self.tau_on)
         #: design constants of the compiled cycle timing (never subset)
         self.constants = np.array([float(constants[name])
                                    for name in kernel.CONSTANT_NAMES])
@@ -831,7 +832,7 @@ class _Cycle:
         # of the forward charge out through R_b while the junction still sits
         # at Vbe; taken from the magnetizing energy, while the first part
         # (below the bus) is fed by the bus
-        reverse_base = (self.nb * (vr + self.esr * peak) + np.maximum(vc_end, 0.0)
+        reverse_base = (self.nb * (vr + self.output_resistance * peak) + np.maximum(vc_end, 0.0)
                         + self.vbe) / self.rb_on
         fall = fall_time_charge_control(self.transit_time, left, reverse_base)
         reversal = (turn_off_energy(left, fall, node, clamp_level)
@@ -859,7 +860,7 @@ class _Cycle:
         # load whatever the ripple: flyback.output_energy_share); the
         # rectifier's V_f, the path's resistance and the ripple the rest
         share_out = output_energy_share(self.lm, peak, vr, ratio * output_voltage / vr,
-                                        self.esr, self.output_capacitance)
+                                        self.output_resistance, self.output_capacitance)
         if self.aux_state:
             regulation_power = aux_energy * frequency
             delivered = secondary * share_out * frequency
