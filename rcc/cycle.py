@@ -859,8 +859,10 @@ class _Cycle:
         # per coulomb (a charge balance at the mean output, exact for a linear
         # load whatever the ripple: flyback.output_energy_share); the
         # rectifier's V_f, the path's resistance and the ripple the rest
-        share_out = output_energy_share(self.lm, peak, vr, ratio * output_voltage / vr,
-                                        self.output_resistance, self.output_capacitance)
+        share_out = output_energy_share(
+            self.lm, peak, vr, ratio * output_voltage / vr, self.output_resistance,
+            self.output_capacitance,
+            np.maximum(1.0 - ratio * d.output.rectifier_drop / vr, 0.0))
         if self.aux_state:
             regulation_power = aux_energy * frequency
             delivered = secondary * share_out * frequency

@@ -348,7 +348,8 @@ def plateau_charge(magnetizing_inductance, peak_current, reflected_voltage,
 
 
 def output_energy_share(magnetizing_inductance, peak_current, reflected_voltage,
-                        output_fraction, output_resistance=0.0, output_capacitance=np.inf):
+                        output_fraction, output_resistance=0.0, output_capacitance=np.inf,
+                        start_fraction=None):
     """Share of the flyback energy ``L I_pk^2 / 2`` the output takes at its
     mean voltage.
 
@@ -368,12 +369,17 @@ def output_energy_share(magnetizing_inductance, peak_current, reflected_voltage,
     output_capacitance : float or array_like, optional
         Output capacitance referred to the primary, ``C'`` [F]; default
         infinite.
+    start_fraction : float or array_like, optional
+        The output capacitor's part of ``V_R`` where the plateau starts,
+        ``V_start / (V_start + V_f)`` [1]; default ``output_fraction``.
 
     Returns
     -------
     ndarray
-        ``f V_R q / (L I_pk^2 / 2)`` [1] (``q`` of :func:`plateau_charge`);
-        ``f`` with no ``R'`` or ``C'``, and where ``I_pk`` is zero.
+        ``f V_R q / (L I_pk^2 / 2)`` [1] (``q`` of :func:`plateau_charge`),
+        at most the energy the capacitor receives, ``(f_s V_R q + q^2 /
+        (2 C')) / (L I_pk^2 / 2)``; ``f`` with no ``R'`` or ``C'``, and where
+        ``I_pk`` is zero.
 
     Notes
     -----
@@ -383,16 +389,22 @@ def output_energy_share(magnetizing_inductance, peak_current, reflected_voltage,
     against the load's at ``V_o`` is the charge balance, exact for a linear
     load whatever the ripple.  The energy the capacitor's rise during the
     plateau stores above ``V_o`` (``q^2/(2 C')``, the ripple's share) and
-    the rectifier's drop and the path's resistance take the rest.
+    the rectifier's drop and the path's resistance take the rest.  Where the
+    load is not linear over a large swing the charge balance at the mean can
+    ask for more than the capacitor receives, ``V_start q + q^2/(2 C')``; the
+    share is held to that (energy is conserved, no loss turns negative).
     """
     charge = plateau_charge(magnetizing_inductance, peak_current, reflected_voltage,
                             output_resistance, output_capacitance)
     energy = 0.5 * _as(magnetizing_inductance) * _as(peak_current)**2
     fraction = _as(output_fraction)
+    start = fraction if start_fraction is None else _as(start_fraction)
     # (no current: the limit of a vanishing pulse, with no drop, is f)
     with np.errstate(divide="ignore", invalid="ignore"):
         share = fraction * _as(reflected_voltage) * charge / energy
-    return np.where(energy > 0.0, share, fraction)
+        received = (start * _as(reflected_voltage) * charge
+                    + charge**2 / (2.0 * _as(output_capacitance))) / energy
+    return np.where(energy > 0.0, np.minimum(share, received), fraction)
 
 
 def ramp_time(magnetizing_inductance, peak_current, bus_voltage):

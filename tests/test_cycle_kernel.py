@@ -322,3 +322,22 @@ def test_drive_capacitor_with_the_emitter_rising_against_scipy(monkeypatch):
         # measured: 2.2e-16 relative on both cases; 1e-11 leaves room for
         # another scipy's step control
         assert out["vc_end"] == pytest.approx(solution.y[0, -1], rel=1e-11)
+
+
+def test_output_share_never_exceeds_what_the_capacitor_receives():
+    # on pop-1-0041 at 28.7 V (a lock-up whose output swings over a current
+    # load's knee) the charge balance at the mean asked for more energy than
+    # the output capacitor receives over the plateau, and the rectifier's loss
+    # came out negative (-0.19 mJ per pulse, measured 2026-12-03): energy
+    # conservation (the pulse's L I^2/2 is all the output path has) bounds the
+    # share, and every loss stays non-negative
+    from rcc.cycle import operating_points
+    from rcc.design import Load
+    from rcc.population import generate_one
+
+    design = generate_one(1, 41).design
+    points = operating_points(design, 28.7, Load("current", 0.222664), 298.15)
+    for name in ("rectifier", "clamp", "core", "drive", "reset", "turn_off_flyback"):
+        assert float(getattr(points.losses, name)) >= 0.0, name
+    delivered = float(points.output_power) / float(points.frequency)
+    assert delivered <= float(points.energy_per_cycle), (delivered, points.energy_per_cycle)
