@@ -37,15 +37,17 @@ collector node equal to ``i_lk``, node c sees ``i_lk`` and the collector
 currents of the switch and the clamp.
 
 ``M(v)`` is the incremental capacitance matrix of the nodes collector c,
-base b, emitter e, limiter base l (and the output terminal o when the ESR is
-not zero): the winding capacitance c-ground, the switch's output capacitance
-as a real collector-base capacitor ``C_bc`` (c-b), the switch's diffusion
-charges ``tau_F I_F`` (b-e) and ``tau_R I_R`` (b-c), the limiter's junction
-and diffusion charges (l-ground, l-b), and two small parasitic capacitors
-that make the emitter and output-terminal nodes dynamic: ``C_e`` = 100 pF
+base terminal b, emitter e, limiter base l, internal base b' (and the output
+terminal o when the ESR is not zero): the winding capacitance c-ground, the
+switch's output capacitance as a real collector-base capacitor ``C_bc``
+(c-b'), the switch's diffusion charges ``tau_F I_F`` (b'-e) and ``tau_R I_R``
+(b'-c), the limiter's junction
+and diffusion charges (l-ground, l-b), and small parasitic capacitors that
+make the emitter, base-terminal and output-terminal nodes dynamic: ``C_e`` = 100 pF
 emitter-ground (time constant ``R_s C_e`` = 0.16 ns at 1.6 ohm; it takes
 ``C_e dv_e/dt`` of about 0.2 mA at the fastest emitter slew, against
-hundreds of mA through the sense resistor) and ``C_o`` = 10 nF at the output
+hundreds of mA through the sense resistor), ``C_b`` = 100 pF base
+terminal-ground (``R_B C_b`` = 0.2 ns) and ``C_o`` = 10 nF at the output
 terminal, shunted by the ESR (0.1 ohm x 10 nF = 1 ns; against a reflected
 leakage of about 1 uH it rings with quality factor ``R_esr sqrt(C_o/L)``
 below 0.02, i.e. not at all).  Measured on the standby case at 85 V (two
@@ -130,8 +132,14 @@ it); constant power ``(P/V_p) u / (1 + u^(2n))^(1/n)`` with ``u = v/V_p``,
 16 rounds the corner: the law is within 4.4 % of the sharp one at the
 corner and within 1e-6 beyond a factor 2 from it.
 
-Left out, with the reason: the switch's base and collector spreading
-resistances and its emitter-base depletion capacitance (the saturation
+*Base spreading resistance* ``R_B`` = :data:`BASE_SPREADING_RESISTANCE`
+between the base terminal (drive, start-up resistor, base-emitter resistor,
+limiter collector) and the internal base b' that the junctions, their charges
+and the breakdown see (Gummel & Poon [2]_); the terminal carries
+:data:`BASE_TERMINAL_CAPACITANCE` to ground so that it is a dynamic node.
+
+Left out, with the reason: the switch's collector spreading
+resistance and its emitter-base depletion capacitance (the saturation
 voltage of this Ebers-Moll switch is 0.05-0.15 V instead of ``vce_sat``,
 which changes ``di/dt`` by under ``0.2 V / V_bus``); the forward recovery
 and reverse recovery of the rectifiers.
@@ -175,6 +183,15 @@ __all__ = ["SmoothCircuit", "SmoothRun", "CycleSummary", "build_smooth", "simula
 EMITTER_CAPACITANCE = 100e-12
 #: Parasitic capacitance at the output terminal, shunted by the ESR [F]
 OUTPUT_TERMINAL_CAPACITANCE = 10e-9
+#: Base spreading resistance of the switch, between its base terminal and
+#: the internal base the junctions see [ohm]: the ``R_B`` of the Gummel-Poon
+#: model [2]_; ones of ohms in power transistors of this class  # from memory
+#: (the engine takes the same physical value, rcc.devices.SWITCH_BASE_RESISTANCE;
+#: no code is shared)
+BASE_SPREADING_RESISTANCE = 2.0
+#: Parasitic capacitance base terminal-ground [F] (makes the terminal node
+#: dynamic, as C_e the emitter: time constant 2 ohm x 100 pF = 0.2 ns)
+BASE_TERMINAL_CAPACITANCE = 100e-12
 #: Inverse current gain of both transistors  # from memory
 REVERSE_GAIN = 1.0
 #: Limiter (small-signal) transistor charge and depletion values  # from memory
@@ -235,7 +252,7 @@ SIGNALS = ("collector_current", "primary_current", "collector_voltage", "base_vo
            "aux_voltage", "zener_current", "aux_rectifier_current", "led_current",
            "limiter_base_voltage")
 #: State positions fixed for every design (optional states follow)
-I_LK, I_M, V_C, V_B, V_E, V_L, V_DRIVE, V_OC = range(8)
+I_LK, I_M, V_C, V_B, V_E, V_L, V_DRIVE, V_OC, V_BI = range(9)
 
 
 @njit(cache=True)
@@ -358,20 +375,20 @@ def _equations(y, p, dy, sig, guess):
     (equations: module docstring); ``guess[0]`` carries the last v_m."""
     i_out, i_aux, i_clamp_state = int(p[P_IOUT]), int(p[P_IAUX]), int(p[P_ICLAMP])
     i_lk, i_m = y[I_LK], y[I_M]
-    v_c, v_b, v_e, v_l = y[V_C], y[V_B], y[V_E], y[V_L]
+    v_c, v_b, v_e, v_l, v_bi = y[V_C], y[V_B], y[V_E], y[V_L], y[V_BI]
     v_drive, v_oc = y[V_DRIVE], y[V_OC]
     v_o = y[i_out] if i_out >= 0 else v_oc
     v_a = y[i_aux] if i_aux >= 0 else 0.0
     bus, vt = p[P_BUS], p[P_VT]
     v_m, i_f, i_o, i_a = _magnetizing(p, i_lk, i_m, v_b, v_drive, v_o, v_a, guess[0])
     guess[0] = v_m
-    ic1, ib1, c_be1, c_bc1, i_f1 = _bjt(v_b - v_e, v_b - v_c, p[P_IS1], p[P_HFE],
+    ic1, ib1, c_be1, c_bc1, i_f1 = _bjt(v_bi - v_e, v_bi - v_c, p[P_IS1], p[P_HFE],
                                        REVERSE_GAIN, p[P_TAUF], p[P_TAUR], 0.0, p[P_CBC], vt)
     ic2, ib2, c_be2, c_bc2, _ = _bjt(v_l, v_l - v_b, p[P_IS2], p[P_HFE2], p[P_BR2],
                                      LIMITER_FORWARD_TRANSIT, LIMITER_REVERSE_TRANSIT,
                                      LIMITER_EMITTER_CAPACITANCE,
                                      LIMITER_COLLECTOR_CAPACITANCE, vt)
-    eb, _ = _lexp((v_e - v_b - p[P_VEBO]) / p[P_KNEE])
+    eb, _ = _lexp((v_e - v_bi - p[P_VEBO]) / p[P_KNEE])
     i_bd = VEBO_CURRENT * eb
     i_z = 0.0
     i_led = 0.0
@@ -391,24 +408,29 @@ def _equations(y, p, dy, sig, guess):
     i_be = (v_b - v_e) * p[P_GBE]
     i_sense = v_e / p[P_RS]
     i_lb = (v_e - v_l) / p[P_RLB]
-    n = 5 if i_out >= 0 else 4
-    cur = np.zeros(5)
-    cm = np.zeros((5, 5))
+    i_bb = (v_b - v_bi) / BASE_SPREADING_RESISTANCE
+    # nodes: 0 collector, 1 base terminal, 2 emitter, 3 limiter base,
+    # 4 internal base, 5 output terminal (with an ESR)
+    n = 6 if i_out >= 0 else 5
+    cur = np.zeros(6)
+    cm = np.zeros((6, 6))
     cur[0] = i_lk - ic1 - i_cl
-    cur[1] = i_start + i_f - i_be - ib1 + i_bd - ic2
+    cur[1] = i_start + i_f - i_be - ic2 - i_bb
     cur[2] = ic1 + ib1 - i_sense + i_be - i_lb - i_bd
     cur[3] = i_lb - ib2 + i_z + i_inject
+    cur[4] = i_bb - ib1 + i_bd
     i_load = _load(v_o, p[P_LOADKIND], p[P_LOADVAL], p[P_LOADKNEE]) + i_led
     if i_out >= 0:
-        cur[4] = i_o - i_load - (v_o - v_oc) / p[P_ESR]
-        cm[4, 4] = OUTPUT_TERMINAL_CAPACITANCE
+        cur[5] = i_o - i_load - (v_o - v_oc) / p[P_ESR]
+        cm[5, 5] = OUTPUT_TERMINAL_CAPACITANCE
     cm[0, 0] += p[P_CW] + c_bc1
-    cm[1, 1] += c_bc1 + c_be1 + c_bc2
-    cm[0, 1] -= c_bc1
-    cm[1, 0] -= c_bc1
-    cm[1, 2] -= c_be1
-    cm[2, 1] -= c_be1
+    cm[4, 4] += c_bc1 + c_be1
+    cm[0, 4] -= c_bc1
+    cm[4, 0] -= c_bc1
+    cm[4, 2] -= c_be1
+    cm[2, 4] -= c_be1
     cm[2, 2] += c_be1 + EMITTER_CAPACITANCE
+    cm[1, 1] += c_bc2 + BASE_TERMINAL_CAPACITANCE
     cm[3, 3] += c_be2 + c_bc2
     cm[3, 1] -= c_bc2
     cm[1, 3] -= c_bc2
@@ -431,9 +453,10 @@ def _equations(y, p, dy, sig, guess):
     dy[V_B] = cur[1]
     dy[V_E] = cur[2]
     dy[V_L] = cur[3]
+    dy[V_BI] = cur[4]
     dy[V_DRIVE] = i_f / p[P_CD]
     if i_out >= 0:
-        dy[i_out] = cur[4]
+        dy[i_out] = cur[5]
         dy[V_OC] = (v_o - v_oc) / p[P_ESR] / p[P_COUT]
     else:
         dy[V_OC] = (i_o - i_load) / p[P_COUT]
@@ -443,10 +466,10 @@ def _equations(y, p, dy, sig, guess):
         dy[i_clamp_state] = (i_cl - y[i_clamp_state] / p[P_RCLAMP]) / p[P_CCLAMP]
     # collector terminal current without the depletion part of C_bc (what
     # flows through the junctions, transport plus stored-charge current)
-    collector = i_lk - i_cl - p[P_CW] * cur[0] - p[P_CBC] * (cur[0] - cur[1])
+    collector = i_lk - i_cl - p[P_CW] * cur[0] - p[P_CBC] * (cur[0] - cur[4])
     sig[0], sig[1], sig[2], sig[3], sig[4] = collector, i_lk, v_c, v_b, v_e
     sig[5], sig[6], sig[7], sig[8], sig[9] = v_o, v_drive, ic2, v_m, p[P_RF] * v_m
-    sig[10], sig[11], sig[12], sig[13] = ib1, i_o, i_cl, i_bd
+    sig[10], sig[11], sig[12], sig[13] = i_bb, i_o, i_cl, i_bd
     sig[14], sig[15], sig[16], sig[17], sig[18] = v_a, i_z, i_a, i_led, v_l
 
 
@@ -597,6 +620,8 @@ class SmoothCircuit:
             # drop above the base (the limiter's collector-base junction)
             x[idx["v_limiter_base"]] = min(x[idx["v_emitter"]],
                                            x[idx["v_base"]] + self.parameters["limiter_vbe"])
+        if "v_base_internal" not in values:
+            x[idx["v_base_internal"]] = x[idx["v_base"]]
         if "v_output" in idx and "v_output" not in values:
             x[idx["v_output"]] = x[idx["v_output_capacitor"]]
         return x
@@ -639,7 +664,9 @@ def state_names(design: Design) -> tuple:
     """Names of the reference's state vector for a design.
 
     ``i_leakage``, ``i_magnetizing`` [A]; node voltages to ground
-    ``v_collector``, ``v_base``, ``v_emitter``, ``v_limiter_base`` [V];
+    ``v_collector``, ``v_base`` (the base terminal), ``v_emitter``,
+    ``v_limiter_base``, ``v_base_internal`` (behind the base spreading
+    resistance, where the junctions are) [V];
     ``v_drive`` (feedback side minus base side) [V]; ``v_output_capacitor``
     [V]; ``v_output`` (output terminal, only with an ESR) [V]; ``v_aux``
     (feedback-winding regulation) [V]; ``v_clamp`` (RCD clamp capacitor,
@@ -649,7 +676,7 @@ def state_names(design: Design) -> tuple:
     is ``v_collector`` here.
     """
     names = ["i_leakage", "i_magnetizing", "v_collector", "v_base", "v_emitter",
-             "v_limiter_base", "v_drive", "v_output_capacitor"]
+             "v_limiter_base", "v_drive", "v_output_capacitor", "v_base_internal"]
     if design.output.esr > 0:
         names.append("v_output")
     if design.regulation.method == "feedback-winding":
