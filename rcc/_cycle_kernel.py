@@ -32,9 +32,10 @@ from numba import njit  # noqa: E402
 #: Safeguarded Newton steps for the instant the loaded ring frees the base
 #: (quadratic convergence: within 1e-10 of the swing on the population) [1].
 RING_ITERATIONS = 10
-#: Newton steps of the storage time with a rising collector current [1]
-#: (as :func:`rcc.devices.storage_time_rising_current`).
-STORAGE_ITERATIONS = 12
+#: Relative tolerance of the storage time and of the steal's onset
+#: (safeguarded Newton, bracketed) [1].
+STORAGE_TOLERANCE = 1e-13
+STORAGE_ITERATIONS = 100
 #: Relative tolerance of the on-time decision (safeguarded Newton) [1].
 DECISION_TOLERANCE = 1e-13
 DECISION_ITERATIONS = 100
@@ -51,6 +52,7 @@ CONSTANT_NAMES = (
     "inverse_gain", "clamp_resistance", "cb", "tau_slow", "rbe", "omega", "ring_impedance",
     "ring_damping", "limiter_gain", "zener_resistance", "filter_capacitance", "aux_state",
     "linear_slow", "output_resistance", "output_capacitance", "rb_on", "tau_on",
+    "transit_time",
 )
 # ---- outputs (columns of the result)
 OUTPUT_NAMES = (
@@ -73,21 +75,142 @@ O_T_ON, O_T_OFF, O_VR_START = OUTPUT_NAMES.index("t_on"), OUTPUT_NAMES.index("t_
  C_RING_IMPEDANCE, C_RING_DAMPING, C_LIMITER_GAIN, C_ZENER_RESISTANCE,
  C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_OUTPUT_RESISTANCE, C_OUTPUT_CAPACITANCE,
  C_RB_ON,
- C_TAU_ON) = range(27)
+ C_TAU_ON, C_TRANSIT_TIME) = range(28)
 
 
 @njit(cache=True, error_model="numpy")
-def storage_time_rising(tau, base_on, base_off, collector, slope, gain):
-    """:func:`rcc.devices.storage_time_rising_current` for one point [s]."""
-    drive = gain * (base_on + base_off)
-    hold = gain * base_off
-    t = 0.0
+def _window(a, b, end, tau_s, tau_d):
+    """Integrals over ``[a, b]`` of ``w``, ``t w`` and ``e^(-t/tau_d) w`` with the
+    memory kernel ``w = e^(-(end - t)/tau_s)`` [s, s^2, s]."""
+    wa = np.exp(-(end - a) / tau_s)
+    wb = np.exp(-(end - b) / tau_s)
+    plain = tau_s * (wb - wa)
+    linear = tau_s * (b * wb - a * wa) - tau_s * plain
+    rate = 1.0 / tau_s - 1.0 / tau_d
+    x = rate * (b - a)
+    if abs(x) < 0.5:
+        first = np.exp(-(end - a) / tau_s - a / tau_d)
+        decaying = first * (b - a) if x == 0.0 else first * np.expm1(x) / rate
+    else:
+        decaying = (np.exp(-(end - b) / tau_s - b / tau_d)
+                    - np.exp(-(end - a) / tau_s - a / tau_d)) / rate
+    return plain, linear, decaying
+
+
+@njit(cache=True, error_model="numpy")
+def _steal_root(p, c, amplitude, offset, ideal, low, high):
+    """Root of ``i_C + I_d - ideal`` (the emitter current the limiter would see
+    with the whole drive in the base, less its threshold) between ``low`` and
+    ``high``, where the function has opposite signs (bracketed Newton) [s]."""
+    slope, tau, i0 = p[P_SLOPE], c[C_TAU_ON], p[P_I0]
+    rising = i0 + slope * high + amplitude * np.exp(-high / tau) + offset - ideal >= 0.0
+    width = high - low
+    t = high if rising else low
     for _ in range(STORAGE_ITERATIONS):
-        decay = np.exp(-t / tau)
-        residual = collector + slope * t - (drive * decay - hold)
-        derivative = slope + drive * decay / tau
-        t = max(t - residual / derivative, 0.0)
-    return t if drive - hold > collector else 0.0
+        decay = amplitude * np.exp(-t / tau)
+        f = i0 + slope * t + decay + offset - ideal
+        if f == 0.0:
+            return t
+        if (f >= 0.0) == rising:
+            high = t
+        else:
+            low = t
+        step = t - f / (slope - decay / tau)
+        new = step if (np.isfinite(step) and low < step < high) else 0.5 * (low + high)
+        if abs(new - t) <= STORAGE_TOLERANCE * max(width, 1e-300):
+            return new
+        t = new
+    return 0.5 * (low + high)
+
+
+@njit(cache=True, error_model="numpy")
+def _steal_windows(p, c, amplitude, offset, ideal, t_decision):
+    """Where the limiter takes drive before the decision: ``i_C + I_d`` above
+    ``ideal``.  The function is convex (a rising ramp plus a decaying
+    exponential), so that is at most an interval from the turn-on and one
+    up to the decision: ``(end of the first, start of the second)`` [s]
+    (``(0, t_decision)``: none)."""
+    slope, tau, i0 = p[P_SLOPE], c[C_TAU_ON], p[P_I0]
+    f0 = i0 + amplitude + offset - ideal
+    fd = i0 + slope * t_decision + amplitude * np.exp(-t_decision / tau) + offset - ideal
+    # the minimum of the convex function
+    if amplitude > tau * slope:
+        t_min = min(tau * np.log(amplitude / (tau * slope)), t_decision)
+    else:
+        t_min = 0.0
+    f_min = i0 + slope * t_min + amplitude * np.exp(-t_min / tau) + offset - ideal
+    if f_min >= 0.0:
+        return 0.0, 0.0
+    first_end = _steal_root(p, c, amplitude, offset, ideal, 0.0, t_min) if f0 > 0.0 else 0.0
+    second_start = _steal_root(p, c, amplitude, offset, ideal, t_min, t_decision) \
+        if fd > 0.0 else t_decision
+    return first_end, second_start
+
+
+@njit(cache=True, error_model="numpy")
+def storage_time(p, c, amplitude, offset, ideal, t_decision):
+    """Storage time after the on-time decision, from the excess charge the
+    base current has left in the saturated switch (charge control) [s].
+
+    With ``E`` the excess stored charge (``q - tau_F i_C``) and ``H = hFE i_B -
+    i_C - hFE tau_F di_C/dt``, charge control gives ``hFE dE/dt = H - hFE E /
+    tau_S`` (Moll 1954; the engine's saturated law).  From the turn-on
+    (``E = 0``) to the decision, ``hFE E_d`` is ``H`` convolved with
+    ``e^(-t/tau_S)``: the drive ``I_d = A e^(-t/tau) + I_off`` into the base,
+    less, where ``i_C + I_d`` is above ``ideal`` (:func:`_steal_windows`),
+    what the limiter takes, ``hFE I_lim = kappa (i_C + I_d - ideal)``,
+    ``kappa = G / (1 + G/hFE)`` (the sense resistor carries ``i_C + i_B``).  After the decision ``H``
+    falls on at the rate it has there, ``r``, and storage ends when ``E``
+    is gone: ``tau_S (H_d + r u) - r tau_S^2 + B e^(-u/tau_S) = 0`` with
+    ``B = hFE E_d - tau_S H_d + r tau_S^2`` (bracketed Newton).
+    """
+    tau_s, tau = c[C_STORAGE_CONSTANT], c[C_TAU_ON]
+    hfe, slope, i0, gain = p[P_HFE], p[P_SLOPE], p[P_I0], p[P_STEAL_GAIN]
+    transit = hfe * c[C_TRANSIT_TIME] * slope
+    t_d = t_decision
+    kappa = gain / (1.0 + gain / hfe)
+    first_end, second_start = _steal_windows(p, c, amplitude, offset, ideal, t_d)
+    excess = 0.0
+    for a, b, steal in ((0.0, first_end, True), (first_end, second_start, False),
+                        (second_start, t_d, True)):
+        if not b > a:
+            continue
+        plain, linear, decaying = _window(a, b, t_d, tau_s, tau)
+        k = kappa if steal else 0.0
+        excess += ((hfe - k) * amplitude * decaying
+                   + ((hfe - k) * offset - (1.0 + k) * i0 + k * ideal - transit) * plain
+                   - (1.0 + k) * slope * linear)
+    drive_rate = -amplitude / tau * np.exp(-t_d / tau)
+    if second_start < t_d:
+        drive = amplitude * np.exp(-t_d / tau) + offset
+        held = ((hfe - kappa) * drive - (1.0 + kappa) * (i0 + slope * t_d)
+                + kappa * ideal - transit)
+        rate = (hfe - kappa) * drive_rate - (1.0 + kappa) * slope
+    else:
+        drive = amplitude * np.exp(-t_d / tau) + offset
+        held = hfe * drive - (i0 + slope * t_d) - transit
+        rate = hfe * drive_rate - slope
+    if not excess > 0.0 or not rate < 0.0:
+        return 0.0
+    start = excess - tau_s * held + rate * tau_s * tau_s
+    low = 0.0
+    high = max(excess / (-tau_s * rate), tau_s - held / rate, 0.0)
+    u = high if start < 0.0 else 0.0
+    for _ in range(STORAGE_ITERATIONS):
+        memory = start * np.exp(-u / tau_s)
+        value = tau_s * (held + rate * u) - rate * tau_s * tau_s + memory
+        if value == 0.0:
+            return u
+        if value > 0.0:
+            low = u
+        else:
+            high = u
+        step = u - value / (tau_s * rate - memory / tau_s)
+        new = step if (np.isfinite(step) and low < step < high) else 0.5 * (low + high)
+        if abs(new - u) <= STORAGE_TOLERANCE * max(high, 1e-300):
+            return new
+        u = new
+    return u
 
 
 @njit(cache=True, error_model="numpy")
@@ -419,15 +542,17 @@ def _point(p, c, out):
     base_now = amplitude * np.exp(-t_decision / tau) + offset
     drive = max(base_now, 1e-12)
     lift = vt * np.log(drive / 1e-3) if drive > 1e-3 else 0.0
-    ideal_trip = (drop + lift - rlb * ireg0 * np.exp(-t_decision / a_tau)) / rs \
-        * hfe / (hfe + 1.0)
+    ideal = (drop + lift - rlb * ireg0 * np.exp(-t_decision / a_tau)) / rs
+    ideal_trip = ideal * hfe / (hfe + 1.0)
     base_decision = max(base_now, 0.0)
     drive_ends = hfe * base_decision <= ideal_trip
     ireg = ireg0 * np.exp(-t_decision / a_tau)
     itrip = max(ideal_trip, 0.0)
-    storage = storage_time_rising(c[C_STORAGE_CONSTANT], base_decision, base_decision,
-                                  i_decision, slope, hfe)
-    peak = i_decision + (0.0 if drive_ends else slope * storage)
+    # storage: the excess charge the base current left, drained by the base
+    # current falling on after the decision (the limiter's steal grows with
+    # the ramp; a drive-ended on-time has only the drive's decay)
+    storage = storage_time(p, c, amplitude, offset, ideal, t_decision)
+    peak = i_decision + slope * storage
     # ---- turn-off transition
     node = c[C_NODE]
     droop = (hfe if drive_ends else 1.0 / c[C_LIMITER_GAIN]) * nb / rb

@@ -666,7 +666,8 @@ class _Cycle:
             filter_capacitance=regulation.filter_capacitance if self.aux_state else 0.0,
             aux_state=float(self.aux_state), linear_slow=float(np.isinf(self._tau_slow)),
             output_resistance=self.output_resistance,
-            output_capacitance=self.output_capacitance, rb_on=self.rb_on, tau_on=self.tau_on)
+            output_capacitance=self.output_capacitance, rb_on=self.rb_on, tau_on=self.tau_on,
+            transit_time=self.transit_time)
         #: design constants of the compiled cycle timing (never subset)
         self.constants = np.array([float(constants[name])
                                    for name in kernel.CONSTANT_NAMES])
@@ -709,11 +710,13 @@ class _Cycle:
           the limiter's collector carries about the whole base current
           ``I_B``, so its junction sits ``V_T ln(I_B / 1 mA)`` above the Vbe
           given at 1 mA (Ebers & Moll 1954, exponential law);
-        - storage by charge control (Moll 1954): the excess charge set by the
-          base current at the decision (``I_B1``) decays while the collector
-          current keeps rising; the saturated limiter pulls the base below
-          the emitter with ``I_B2 = I_B1``
-          (:func:`rcc.devices.storage_time_rising_current`);
+        - storage by charge control (Moll 1954): the excess charge the base
+          current has left in the saturated switch since the turn-on (the
+          drive, less what the limiter takes once the emitter current reaches
+          its threshold) drains while the base current falls on after the
+          decision and the collector current keeps rising; storage ends when
+          it is gone (``rcc._cycle_kernel.storage_time``,
+          ``notes/cycle_model.md``);
         - turn-off transition after storage: the collector current follows the
           limiter's hold point (or, when the drive ends the on-time, the
           switch's own gain) while the collector rises and the feedback

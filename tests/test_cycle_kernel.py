@@ -13,22 +13,78 @@ from rcc import _cycle_kernel as kernel
 from rcc import devices
 
 
-def test_storage_time_is_the_library_charge_control_formula():
-    """``storage_time_rising`` is :func:`rcc.devices.storage_time_rising_current`
-    (charge control, Moll 1954; Sparkes 1960) for one point."""
-    rng = np.random.default_rng(7)
-    for _ in range(300):
-        tau = 10 ** rng.uniform(-7.5, -5.5)
-        base = 10 ** rng.uniform(-4, -0.5)
-        collector = 10 ** rng.uniform(-3, 0.5)
-        slope = 10 ** rng.uniform(3, 6)
-        gain = rng.uniform(5, 80)
-        expected = float(devices.storage_time_rising_current(tau, base, base, collector,
-                                                             slope, gain))
-        got = kernel.storage_time_rising(tau, base, base, collector, slope, gain)
-        # same Newton steps in the same order: equal to rounding (measured: at most
-        # 6.7e-16 relative over these 300 draws, numba's exp against numpy's)
-        assert got == pytest.approx(expected, rel=1e-12, abs=1e-18)
+def _storage_by_integration(hfe, slope, i0, gain, tau_s, tau, transit_time, amplitude,
+                            offset, ideal, t_decision):
+    """The storage time by integrating charge control with scipy's Radau:
+    ``dY/dt = H(t) - Y / tau_S`` (``Y = hFE E``) from the turn-on, with the
+    limiter's linear steal wherever ``i_C + I_d`` is above ``ideal``, and after the
+    decision ``H`` continued along its tangent there (the kernel's stated
+    linearization); the end of storage is the first ``Y = 0`` after it."""
+    from scipy.integrate import solve_ivp
+
+    kappa = gain / (1.0 + gain / hfe)
+    transit = hfe * transit_time * slope
+
+    def held(t):
+        drive = amplitude * np.exp(-t / tau) + offset
+        collector = i0 + slope * t
+        return hfe * drive - max(kappa * (collector + drive - ideal), 0.0) - collector - transit
+
+    step = 1e-6 * t_decision
+    rate = (held(t_decision) - held(t_decision - step)) / step
+
+    def rhs(t, y):
+        h = held(t) if t <= t_decision else held(t_decision) + rate * (t - t_decision)
+        return [h - y[0] / tau_s]
+
+    before = solve_ivp(rhs, (0.0, t_decision), [0.0], method="Radau", rtol=1e-11,
+                       atol=1e-18)
+    start = before.y[0, -1]
+    if start <= 0.0:
+        return 0.0
+    gone = lambda t, y: y[0]  # noqa: E731
+    gone.terminal, gone.direction = True, -1
+    after = solve_ivp(rhs, (t_decision, t_decision + 200 * tau_s), [start], method="Radau",
+                      rtol=1e-11, atol=1e-18, events=gone)
+    return float(after.t_events[0][0]) - t_decision
+
+
+@pytest.mark.parametrize("stolen", [False, True])
+def test_storage_time_is_charge_control_integrated(stolen):
+    """``storage_time``: the excess charge the base current leaves over the
+    on-time (closed-form convolution with ``e^(-t/tau_S)``) and its drain after
+    the decision (bracketed root) against scipy's Radau integration of the
+    same charge-control law (Moll 1954; Hairer & Wanner, *Solving Ordinary
+    Differential Equations II*, 1996, sec. IV.8)."""
+    rng = np.random.default_rng(7 + stolen)
+    for _ in range(12):
+        hfe, gain = rng.uniform(8, 60), rng.uniform(1, 40)
+        tau_s, tau = 10 ** rng.uniform(-6.8, -5.5), 10 ** rng.uniform(-5.5, -3.5)
+        slope, i0 = 10 ** rng.uniform(4, 6), rng.uniform(-0.05, 0.1)
+        t_decision = 10 ** rng.uniform(-6, -4.7)
+        amplitude, offset = 10 ** rng.uniform(-2.5, -0.5), rng.uniform(-1e-3, 1e-3)
+        collector = i0 + slope * t_decision
+        drive = amplitude * np.exp(-t_decision / tau) + offset
+        # the decision: hFE i_B = i_C there (with the steal, ideal from it)
+        if stolen:
+            kappa = gain / (1.0 + gain / hfe)
+            ideal = ((1.0 + kappa) * collector - (hfe - kappa) * drive) / kappa
+            if not collector + drive > ideal:
+                continue
+        else:
+            ideal = 10.0 * (collector + drive)
+        p = np.zeros(len(kernel.POINT_NAMES))
+        c = np.zeros(len(kernel.CONSTANT_NAMES))
+        p[kernel.P_HFE], p[kernel.P_SLOPE], p[kernel.P_I0] = hfe, slope, i0
+        p[kernel.P_STEAL_GAIN] = gain
+        c[kernel.C_STORAGE_CONSTANT], c[kernel.C_TAU_ON] = tau_s, tau
+        c[kernel.C_TRANSIT_TIME] = 1e-8
+        got = kernel.storage_time(p, c, amplitude, offset, ideal, t_decision)
+        want = _storage_by_integration(hfe, slope, i0, gain, tau_s, tau, 1e-8, amplitude,
+                                       offset, ideal, t_decision)
+        # measured: within 2.4e-7 relative of the integration (its tolerance and
+        # the finite-difference tangent)
+        assert got == pytest.approx(want, rel=1e-5, abs=0), (got, want)
 
 
 def test_demagnetization_time_is_the_library_formula():
