@@ -36,6 +36,16 @@ RING_ITERATIONS = 10
 #: (safeguarded Newton, bracketed) [1].
 STORAGE_TOLERANCE = 1e-13
 STORAGE_ITERATIONS = 100
+#: Grid steps over the on-time on which the limiter's windows are located [1].
+STEAL_GRID = 8
+#: Where the ramp's asymptote lies below the drive's start, the decision is
+#: sought within this many of the larger of the drive's and the loop's time
+#: constants [1].
+DRIVE_DECAYS = 50.0
+#: Least distance of ``1 - lambda tau`` from zero (the drive capacitor's and
+#: the primary loop's time constants equal): closer, ``lambda`` is taken that
+#: far off, a change of at most 1e-6 relative in the loop's resistance [1].
+RESONANCE_GUARD = 1e-6
 #: Relative tolerance of the on-time decision (safeguarded Newton) [1].
 DECISION_TOLERANCE = 1e-13
 DECISION_ITERATIONS = 100
@@ -52,7 +62,7 @@ CONSTANT_NAMES = (
     "inverse_gain", "clamp_resistance", "cb", "tau_slow", "rbe", "omega", "ring_impedance",
     "ring_damping", "limiter_gain", "zener_resistance", "filter_capacitance", "aux_state",
     "linear_slow", "output_resistance", "output_capacitance", "rb_on", "tau_on",
-    "transit_time",
+    "transit_time", "loop_rate", "drive_sag",
 )
 # ---- outputs (columns of the result)
 OUTPUT_NAMES = (
@@ -75,47 +85,84 @@ O_T_ON, O_T_OFF, O_VR_START = OUTPUT_NAMES.index("t_on"), OUTPUT_NAMES.index("t_
  C_RING_IMPEDANCE, C_RING_DAMPING, C_LIMITER_GAIN, C_ZENER_RESISTANCE,
  C_FILTER_CAPACITANCE, C_AUX_STATE, C_LINEAR_SLOW, C_OUTPUT_RESISTANCE, C_OUTPUT_CAPACITANCE,
  C_RB_ON,
- C_TAU_ON, C_TRANSIT_TIME) = range(28)
+ C_TAU_ON, C_TRANSIT_TIME, C_LOOP_RATE, C_DRIVE_SAG) = range(30)
 
 
 @njit(cache=True, error_model="numpy")
-def _window(a, b, end, tau_s, tau_d):
-    """Integrals over ``[a, b]`` of ``w``, ``t w`` and ``e^(-t/tau_d) w`` with the
-    memory kernel ``w = e^(-(end - t)/tau_s)`` [s, s^2, s]."""
-    wa = np.exp(-(end - a) / tau_s)
-    wb = np.exp(-(end - b) / tau_s)
-    plain = tau_s * (wb - wa)
-    linear = tau_s * (b * wb - a * wa) - tau_s * plain
-    rate = 1.0 / tau_s - 1.0 / tau_d
+def _ramp(p, c, t):
+    """Primary current of the on-time at ``t`` and its rate [A, A/s].
+
+    The primary loop (winding, saturated switch, sense resistor: ``R`` in
+    all) makes the ramp an R L rise from ``i0``: ``i = i0 + s0 (1 -
+    e^(-lambda t)) / lambda``, ``lambda = R / L_t``, ``s0 = s - lambda i0``
+    with ``s = (V_bus - Vce,sat) / L_t`` the rate at zero current.
+    """
+    rate = c[C_LOOP_RATE]
+    s0 = p[P_SLOPE] - rate * p[P_I0]
+    return p[P_I0] - s0 * np.expm1(-rate * t) / rate, s0 * np.exp(-rate * t)
+
+
+@njit(cache=True, error_model="numpy")
+def _ramp_time(p, c, current):
+    """Instant the ramp reaches ``current`` (inf where it never does) [s]."""
+    rate = c[C_LOOP_RATE]
+    s0 = p[P_SLOPE] - rate * p[P_I0]
+    u = (current - p[P_I0]) * rate / s0
+    if not u > 0.0:
+        return 0.0
+    if u >= 1.0:
+        return np.inf
+    return -np.log1p(-u) / rate
+
+
+@njit(cache=True, error_model="numpy")
+def _drive(c, first, second, offset, t):
+    """Base-drive current ``A1 e^(-t/tau) + A2 e^(-lambda t) + I_off`` and its
+    rate [A, A/s] (``_point``: the drive capacitor charged through ``R_b``
+    while the loop's drop takes the winding's and the emitter's share)."""
+    tau, rate = c[C_TAU_ON], c[C_LOOP_RATE]
+    e1 = first * np.exp(-t / tau)
+    e2 = second * np.exp(-rate * t)
+    return e1 + e2 + offset, -e1 / tau - rate * e2
+
+
+@njit(cache=True, error_model="numpy")
+def _window(a, b, end, tau_s, mu):
+    """``integral over [a, b] of e^(-mu t) e^(-(end - t)/tau_s) dt`` [s]."""
+    rate = 1.0 / tau_s - mu
     x = rate * (b - a)
+    first = np.exp(-(end - a) / tau_s - mu * a)
     if abs(x) < 0.5:
-        first = np.exp(-(end - a) / tau_s - a / tau_d)
-        decaying = first * (b - a) if x == 0.0 else first * np.expm1(x) / rate
-    else:
-        decaying = (np.exp(-(end - b) / tau_s - b / tau_d)
-                    - np.exp(-(end - a) / tau_s - a / tau_d)) / rate
-    return plain, linear, decaying
+        return first * (b - a) if x == 0.0 else first * np.expm1(x) / rate
+    return (np.exp(-(end - b) / tau_s - mu * b) - first) / rate
 
 
 @njit(cache=True, error_model="numpy")
-def _steal_root(p, c, amplitude, offset, ideal, low, high):
-    """Root of ``i_C + I_d - ideal`` (the emitter current the limiter would see
-    with the whole drive in the base, less its threshold) between ``low`` and
-    ``high``, where the function has opposite signs (bracketed Newton) [s]."""
-    slope, tau, i0 = p[P_SLOPE], c[C_TAU_ON], p[P_I0]
-    rising = i0 + slope * high + amplitude * np.exp(-high / tau) + offset - ideal >= 0.0
+def _steal_excess(p, c, first, second, offset, ideal, t):
+    """``i_C + I_d - ideal`` (the emitter current the limiter would see with
+    the whole drive in the base, less its threshold) and its rate."""
+    ramp, ramp_rate = _ramp(p, c, t)
+    drive, drive_rate = _drive(c, first, second, offset, t)
+    return ramp + drive - ideal, ramp_rate + drive_rate
+
+
+@njit(cache=True, error_model="numpy")
+def _steal_root(p, c, first, second, offset, ideal, low, high):
+    """Root of :func:`_steal_excess` between ``low`` and ``high``, where it has
+    opposite signs (bracketed Newton) [s]."""
+    f_high, _ = _steal_excess(p, c, first, second, offset, ideal, high)
+    rising = f_high >= 0.0
     width = high - low
     t = high if rising else low
     for _ in range(STORAGE_ITERATIONS):
-        decay = amplitude * np.exp(-t / tau)
-        f = i0 + slope * t + decay + offset - ideal
+        f, df = _steal_excess(p, c, first, second, offset, ideal, t)
         if f == 0.0:
             return t
         if (f >= 0.0) == rising:
             high = t
         else:
             low = t
-        step = t - f / (slope - decay / tau)
+        step = t - f / df
         new = step if (np.isfinite(step) and low < step < high) else 0.5 * (low + high)
         if abs(new - t) <= STORAGE_TOLERANCE * max(width, 1e-300):
             return new
@@ -124,31 +171,38 @@ def _steal_root(p, c, amplitude, offset, ideal, low, high):
 
 
 @njit(cache=True, error_model="numpy")
-def _steal_windows(p, c, amplitude, offset, ideal, t_decision):
-    """Where the limiter takes drive before the decision: ``i_C + I_d`` above
-    ``ideal``.  The function is convex (a rising ramp plus a decaying
-    exponential), so that is at most an interval from the turn-on and one
-    up to the decision: ``(end of the first, start of the second)`` [s]
-    (``(0, t_decision)``: none)."""
-    slope, tau, i0 = p[P_SLOPE], c[C_TAU_ON], p[P_I0]
-    f0 = i0 + amplitude + offset - ideal
-    fd = i0 + slope * t_decision + amplitude * np.exp(-t_decision / tau) + offset - ideal
-    # the minimum of the convex function
-    if amplitude > tau * slope:
-        t_min = min(tau * np.log(amplitude / (tau * slope)), t_decision)
-    else:
-        t_min = 0.0
-    f_min = i0 + slope * t_min + amplitude * np.exp(-t_min / tau) + offset - ideal
-    if f_min >= 0.0:
+def _steal_windows(p, c, first, second, offset, ideal, t_decision):
+    """Where the limiter takes drive before the decision (``i_C + I_d`` above
+    ``ideal``): an interval from the turn-on and one up to the decision,
+    located on a grid of :data:`STEAL_GRID` steps and refined; returns ``(end
+    of the first, start of the second)`` [s] (``(0, t_decision)``: none;
+    ``(0, 0)``: throughout)."""
+    values = np.empty(STEAL_GRID + 1)
+    for j in range(STEAL_GRID + 1):
+        values[j], _ = _steal_excess(p, c, first, second, offset, ideal,
+                                     t_decision * j / STEAL_GRID)
+    if values.min() > 0.0:
         return 0.0, 0.0
-    first_end = _steal_root(p, c, amplitude, offset, ideal, 0.0, t_min) if f0 > 0.0 else 0.0
-    second_start = _steal_root(p, c, amplitude, offset, ideal, t_min, t_decision) \
-        if fd > 0.0 else t_decision
+    first_end = 0.0
+    if values[0] > 0.0:
+        j = 1
+        while values[j] > 0.0:
+            j += 1
+        first_end = _steal_root(p, c, first, second, offset, ideal,
+                                t_decision * (j - 1) / STEAL_GRID, t_decision * j / STEAL_GRID)
+    second_start = t_decision
+    if values[STEAL_GRID] > 0.0:
+        j = STEAL_GRID - 1
+        while values[j] > 0.0:
+            j -= 1
+        second_start = _steal_root(p, c, first, second, offset, ideal,
+                                   t_decision * j / STEAL_GRID,
+                                   t_decision * (j + 1) / STEAL_GRID)
     return first_end, second_start
 
 
 @njit(cache=True, error_model="numpy")
-def storage_time(p, c, amplitude, offset, ideal, t_decision):
+def storage_time(p, c, first, second, offset, ideal, t_decision):
     """Storage time after the on-time decision, from the excess charge the
     base current has left in the saturated switch (charge control) [s].
 
@@ -156,40 +210,41 @@ def storage_time(p, c, amplitude, offset, ideal, t_decision):
     i_C - hFE tau_F di_C/dt``, charge control gives ``hFE dE/dt = H - hFE E /
     tau_S`` (Moll 1954; the engine's saturated law).  From the turn-on
     (``E = 0``) to the decision, ``hFE E_d`` is ``H`` convolved with
-    ``e^(-t/tau_S)``: the drive ``I_d = A e^(-t/tau) + I_off`` into the base,
-    less, where ``i_C + I_d`` is above ``ideal`` (:func:`_steal_windows`),
-    what the limiter takes, ``hFE I_lim = kappa (i_C + I_d - ideal)``,
-    ``kappa = G / (1 + G/hFE)`` (the sense resistor carries ``i_C + i_B``).  After the decision ``H``
-    falls on at the rate it has there, ``r``, and storage ends when ``E``
-    is gone: ``tau_S (H_d + r u) - r tau_S^2 + B e^(-u/tau_S) = 0`` with
-    ``B = hFE E_d - tau_S H_d + r tau_S^2`` (bracketed Newton).
+    ``e^(-t/tau_S)`` (closed form: ``H`` is a sum of a constant and the
+    exponentials of the drive, :func:`_drive`, and of the ramp, :func:`_ramp`):
+    the drive into the base less, where ``i_C + I_d`` is above ``ideal``
+    (:func:`_steal_windows`), what the limiter takes, ``hFE I_lim = kappa
+    (i_C + I_d - ideal)``, ``kappa = G / (1 + G/hFE)`` (the sense resistor
+    carries ``i_C + i_B``).  After the decision ``H`` falls on at the rate it
+    has there, ``r``, and storage ends when ``E`` is gone: ``tau_S (H_d + r u)
+    - r tau_S^2 + B e^(-u/tau_S) = 0`` with ``B = hFE E_d - tau_S H_d + r
+    tau_S^2`` (bracketed Newton).
     """
-    tau_s, tau = c[C_STORAGE_CONSTANT], c[C_TAU_ON]
-    hfe, slope, i0, gain = p[P_HFE], p[P_SLOPE], p[P_I0], p[P_STEAL_GAIN]
-    transit = hfe * c[C_TRANSIT_TIME] * slope
+    tau_s, tau, rate = c[C_STORAGE_CONSTANT], c[C_TAU_ON], c[C_LOOP_RATE]
+    hfe, gain, i0 = p[P_HFE], p[P_STEAL_GAIN], p[P_I0]
+    s0 = p[P_SLOPE] - rate * i0
+    transit = hfe * c[C_TRANSIT_TIME]
     t_d = t_decision
     kappa = gain / (1.0 + gain / hfe)
-    first_end, second_start = _steal_windows(p, c, amplitude, offset, ideal, t_d)
+    first_end, second_start = _steal_windows(p, c, first, second, offset, ideal, t_d)
     excess = 0.0
     for a, b, steal in ((0.0, first_end, True), (first_end, second_start, False),
                         (second_start, t_d, True)):
         if not b > a:
             continue
-        plain, linear, decaying = _window(a, b, t_d, tau_s, tau)
         k = kappa if steal else 0.0
-        excess += ((hfe - k) * amplitude * decaying
-                   + ((hfe - k) * offset - (1.0 + k) * i0 + k * ideal - transit) * plain
-                   - (1.0 + k) * slope * linear)
-    drive_rate = -amplitude / tau * np.exp(-t_d / tau)
-    if second_start < t_d:
-        drive = amplitude * np.exp(-t_d / tau) + offset
-        held = ((hfe - kappa) * drive - (1.0 + kappa) * (i0 + slope * t_d)
-                + kappa * ideal - transit)
-        rate = (hfe - kappa) * drive_rate - (1.0 + kappa) * slope
-    else:
-        drive = amplitude * np.exp(-t_d / tau) + offset
-        held = hfe * drive - (i0 + slope * t_d) - transit
-        rate = hfe * drive_rate - slope
+        # H = c_1 + c_tau e^(-t/tau) + c_lambda e^(-lambda t)
+        c_one = (hfe - k) * offset - (1.0 + k) * (i0 + s0 / rate) + k * ideal
+        c_tau = (hfe - k) * first
+        c_lambda = (hfe - k) * second + (1.0 + k) * s0 / rate - transit * s0
+        excess += (c_one * _window(a, b, t_d, tau_s, 0.0)
+                   + c_tau * _window(a, b, t_d, tau_s, 1.0 / tau)
+                   + c_lambda * _window(a, b, t_d, tau_s, rate))
+    k = kappa if second_start < t_d else 0.0
+    drive, drive_rate = _drive(c, first, second, offset, t_d)
+    ramp, ramp_rate = _ramp(p, c, t_d)
+    held = (hfe - k) * drive - (1.0 + k) * ramp + k * ideal - transit * ramp_rate
+    rate = (hfe - k) * drive_rate - (1.0 + k - transit * rate) * ramp_rate
     if not excess > 0.0 or not rate < 0.0:
         return 0.0
     start = excess - tau_s * held + rate * tau_s * tau_s
@@ -431,18 +486,18 @@ def _hold_release(c, floor, drop, hold, va, t_inverse):
 
 
 @njit(cache=True, error_model="numpy")
-def _excess(p, c, amplitude, offset, reg_drop, t):
+def _excess(p, c, first, second, offset, reg_drop, t):
     """Ramp minus the current the base can hold at ``t`` [A], and its rate [A/s]."""
-    tau, a_tau, rs = c[C_TAU_ON], c[C_AUX_TAU], c[C_RS]
+    a_tau, rs = c[C_AUX_TAU], c[C_RS]
     gain, hfe, vt = p[P_STEAL_GAIN], p[P_HFE], p[P_THERMAL_VOLTAGE]
-    decay = amplitude * np.exp(-t / tau)
-    drive = max(decay + offset, 1e-12)
-    own = hfe * (decay + offset)
-    own_rate = -hfe * decay / tau
+    value, value_rate = _drive(c, first, second, offset, t)
+    drive = max(value, 1e-12)
+    own = hfe * value
+    own_rate = hfe * value_rate
     aux_decay = reg_drop * np.exp(-t / a_tau)
     if drive > 1e-3:
         lift = vt * np.log(drive / 1e-3)
-        lift_rate = -vt * decay / tau / drive
+        lift_rate = vt * value_rate / drive
     else:
         lift = 0.0
         lift_rate = 0.0
@@ -453,13 +508,14 @@ def _excess(p, c, amplitude, offset, reg_drop, t):
     sensed = 1.0 + gain * (1.0 + 1.0 / hfe)
     shared = (own + gain * ideal) / sensed
     shared_rate = (own_rate + gain * (aux_decay / a_tau + lift_rate / rs)) / sensed
+    ramp, ramp_rate = _ramp(p, c, t)
     if shared < own:
-        return p[P_I0] + p[P_SLOPE] * t - shared, p[P_SLOPE] - shared_rate
-    return p[P_I0] + p[P_SLOPE] * t - own, p[P_SLOPE] - own_rate
+        return ramp - shared, ramp_rate - shared_rate
+    return ramp - own, ramp_rate - own_rate
 
 
 @njit(cache=True, error_model="numpy")
-def _decision(p, c, amplitude, offset, reg_drop, high):
+def _decision(p, c, first, second, offset, reg_drop, high):
     """First root of the excess on ``[0, high]`` by safeguarded Newton [s].
 
     The excess is negative at 0 and not negative at ``high`` (where it is
@@ -469,12 +525,12 @@ def _decision(p, c, amplitude, offset, reg_drop, high):
     :data:`DECISION_TOLERANCE` relative, not after a fixed count.
     """
     low = 0.0
-    value, _ = _excess(p, c, amplitude, offset, reg_drop, low)
+    value, _ = _excess(p, c, first, second, offset, reg_drop, low)
     if value >= 0.0 or not high > low:
         return low if value >= 0.0 else high
     t = high
     for _ in range(DECISION_ITERATIONS):
-        f, df = _excess(p, c, amplitude, offset, reg_drop, t)
+        f, df = _excess(p, c, first, second, offset, reg_drop, t)
         if f >= 0.0:
             high = t
         else:
@@ -528,18 +584,32 @@ def _point(p, c, out):
     startup, drop, vt = p[P_STARTUP_CURRENT], p[P_VBE_LIMITER], p[P_THERMAL_VOLTAGE]
     v_threshold = p[P_V_THRESHOLD]
     # ---- on-time decision
-    # the emitter rides on the sense resistor, R_s (i0 + s t): the drive
-    # capacitor charges towards a target falling at R_s s, so its current is
-    # (V_on - R_s i0 - v_C0)/R_b + k decaying at tau, less k = C_b R_s s
-    emitter_slope = c[C_RS] * slope
-    k = c[C_CB] * emitter_slope
-    amplitude = max(p[P_V_ON] - c[C_RS] * i0 - vc0, 0.0) / rb + k
-    offset = startup - p[P_BLEED] - k
+    # the primary loop's resistance makes the ramp an R L rise (_ramp); the
+    # base loop sees the feedback winding less its share of the loop's drop
+    # and the emitter on the sense resistor, V_on - rho i(t) (rho =
+    # drive_sag), so the drive capacitor charges through R_b towards a target
+    # that falls with the ramp: I_d = I_0 e^(-t/tau) - C_b rho s0 (e^(-lambda t)
+    # - e^(-t/tau)) / (1 - lambda tau), I_0 = (V_on - rho i0 - v_C0) / R_b
+    rate = c[C_LOOP_RATE]
+    x = 1.0 - rate * tau
+    if abs(x) < RESONANCE_GUARD:
+        x = RESONANCE_GUARD if x >= 0.0 else -RESONANCE_GUARD
+    s0 = slope - rate * i0
+    sag = c[C_DRIVE_SAG]
+    second = -c[C_CB] * sag * s0 / x
+    open_drive = (p[P_V_ON] - sag * i0 - vc0) / rb
+    first = max(open_drive, 0.0) - second
+    offset = startup - p[P_BLEED]
     reg_drop = rlb * ireg0 / rs
-    t_high = max((hfe * max(amplitude + offset, 0.0) - i0) / slope, 0.0)
-    t_decision = _decision(p, c, amplitude, offset, reg_drop, t_high)
-    i_decision = i0 + slope * t_decision
-    base_now = amplitude * np.exp(-t_decision / tau) + offset
+    # the drive never exceeds its start: the decision comes before the ramp
+    # reaches hFE times that (or where the drive has decayed, if the ramp's
+    # asymptote lies below it)
+    t_high = _ramp_time(p, c, hfe * max(first + second + offset, 0.0))
+    if not np.isfinite(t_high):
+        t_high = DRIVE_DECAYS * max(tau, 1.0 / rate)
+    t_decision = _decision(p, c, first, second, offset, reg_drop, t_high)
+    i_decision, _ = _ramp(p, c, t_decision)
+    base_now, _ = _drive(c, first, second, offset, t_decision)
     drive = max(base_now, 1e-12)
     lift = vt * np.log(drive / 1e-3) if drive > 1e-3 else 0.0
     ideal = (drop + lift - rlb * ireg0 * np.exp(-t_decision / a_tau)) / rs
@@ -551,25 +621,29 @@ def _point(p, c, out):
     # storage: the excess charge the base current left, drained by the base
     # current falling on after the decision (the limiter's steal grows with
     # the ramp; a drive-ended on-time has only the drive's decay)
-    storage = storage_time(p, c, amplitude, offset, ideal, t_decision)
-    peak = i_decision + slope * storage
+    storage = storage_time(p, c, first, second, offset, ideal, t_decision)
+    t_switch = t_decision + storage
+    peak, slope_end = _ramp(p, c, t_switch)
     # ---- turn-off transition
     node = c[C_NODE]
     droop = (hfe if drive_ends else 1.0 / c[C_LIMITER_GAIN]) * nb / rb
     rise = node / droop
-    t_rise = rise * np.log1p(droop**2 * bus / (slope * node))
+    t_rise = rise * np.log1p(droop**2 * bus / (slope_end * node))
     v_reverse = min(bus, peak / droop)
     crossing = rise * (peak * v_reverse - 0.5 * droop * v_reverse**2)
     left = max(peak - droop * bus, 0.0)
-    t_switch = (peak - i0) / slope
-    base_end = amplitude * np.exp(-t_switch / tau) + offset
+    base_end, _ = _drive(c, first, second, offset, t_switch)
     drive_capability = hfe * max(base_end, 0.0)
-    peak = peak + slope * max(t_rise - rise, 0.0)
+    peak = peak + slope_end * max(t_rise - rise, 0.0)
     t_on = t_switch + t_rise
     on_end = 0.0 if drive_ends else (2.0 if ireg > 0.0 else 1.0)
-    aim = p[P_V_ON] - c[C_RS] * i0 + tau * emitter_slope
-    vc_end = aim - emitter_slope * t_on + (vc0 - aim) * np.exp(-t_on / tau)
-    charge_base = amplitude * tau * (1.0 - np.exp(-t_on / tau)) + offset * t_on
+    # the drive capacitor: the target less the drop across R_b (its own
+    # current, without the start-up current's offset)
+    ramp_end, _ = _ramp(p, c, t_on)
+    capacitor, _ = _drive(c, open_drive - second, second, 0.0, t_on)
+    vc_end = p[P_V_ON] - sag * ramp_end - rb * capacitor
+    charge_base = first * tau * -np.expm1(-t_on / tau) \
+        + second * -np.expm1(-rate * t_on) / rate + offset * t_on
     # ---- off-time: flyback plateau
     # while the secondary current flows the output path's resistance and the
     # output capacitor's rise (R' and C' referred to the primary) add R' i +

@@ -40,7 +40,8 @@ import numpy as np
 
 from rcc.design import Design, Load
 from rcc.devices import (OUTPUT_RECTIFIER_RESISTANCE, REFERENCE_TEMPERATURE,
-                          SWITCH_BASE_RESISTANCE, base_emitter_voltage, current_gain,
+                          SWITCH_BASE_RESISTANCE, SWITCH_SATURATION_RESISTANCE,
+                          base_emitter_voltage, current_gain,
                           fall_time_charge_control, thermal_voltage, turn_off_energy,
                           zener_voltage)
 from rcc.stress import (clamp_power, leakage_energy_rate, leakage_spike, rcd_clamp_cycle,
@@ -601,6 +602,15 @@ class _Cycle:
         #: base spreading resistance [ohm], and its R C [s]
         self.rb_on = dr.resistance + SWITCH_BASE_RESISTANCE
         self.tau_on = self.rb_on * dr.capacitance
+        #: the primary loop of the on-time (winding, saturated switch, sense
+        #: resistor) [ohm]: the ramp is an R L rise at ``loop_rate = R / L_t``
+        #: [1/s], and the base loop loses the feedback winding's share of the
+        #: loop's drop and the emitter's rise, ``drive_sag`` volts per ampere
+        self.loop_resistance = (tr.primary_resistance + SWITCH_SATURATION_RESISTANCE
+                                + lim.sense_resistance)
+        self.loop_rate = self.loop_resistance / self.lt
+        self.drive_sag = lim.sense_resistance \
+            + self.nb * self.lm / self.lt * self.loop_resistance
         # storage-time constant from the datasheet storage time, measured with
         # I_B1 = I_B2 and hard overdrive: t_s = tau_S ln 2 (charge control)
         self.storage_constant = sw.storage_time / np.log(2.0)
@@ -667,7 +677,8 @@ class _Cycle:
             aux_state=float(self.aux_state), linear_slow=float(np.isinf(self._tau_slow)),
             output_resistance=self.output_resistance,
             output_capacitance=self.output_capacitance, rb_on=self.rb_on, tau_on=self.tau_on,
-            transit_time=self.transit_time)
+            transit_time=self.transit_time, loop_rate=self.loop_rate,
+            drive_sag=self.drive_sag)
         #: design constants of the compiled cycle timing (never subset)
         self.constants = np.array([float(constants[name])
                                    for name in kernel.CONSTANT_NAMES])
@@ -901,7 +912,8 @@ class _Cycle:
         mean_current = 0.5 * (peak + i0)
         square_current = (peak**2 + peak * i0 + i0**2) / 3.0
         state["losses"] = Losses(
-            switch_conduction=sw.vce_sat * mean_current * t_on * frequency,
+            switch_conduction=(sw.vce_sat * mean_current
+                               + SWITCH_SATURATION_RESISTANCE * square_current) * t_on * frequency,
             resistive=(lim.sense_resistance + tr.primary_resistance) * square_current * t_on
             * frequency,
             core=(self.bus**2 * t_on + vr**2 * t_flyback) / tr.core_loss_resistance * frequency,

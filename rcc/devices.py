@@ -14,6 +14,7 @@ __all__ = [
     "REFERENCE_TEMPERATURE",
     "OUTPUT_RECTIFIER_RESISTANCE",
     "SWITCH_BASE_RESISTANCE",
+    "SWITCH_SATURATION_RESISTANCE",
     "base_emitter_voltage",
     "current_gain",
     "zener_voltage",
@@ -39,6 +40,11 @@ OUTPUT_RECTIFIER_RESISTANCE = 0.05
 #: hundred milliamperes it adds about half a volt to the base) and the
 #: reverse base current at turn-off  # from memory: a few ohms for power BJTs
 SWITCH_BASE_RESISTANCE = 2.0
+
+#: Collector-emitter resistance of the saturated switch, in series with its
+#: ``vce_sat`` [ohm].  Every model puts it in the primary loop with the
+#: winding's and the sense resistor's  # common practice
+SWITCH_SATURATION_RESISTANCE = 0.2
 
 
 def base_emitter_voltage(vbe_reference, tempco, temperature):

@@ -13,25 +13,25 @@ from rcc import _cycle_kernel as kernel
 from rcc import devices
 
 
-def _storage_by_integration(hfe, slope, i0, gain, tau_s, tau, transit_time, amplitude,
-                            offset, ideal, t_decision):
+def _storage_by_integration(hfe, gain, tau_s, transit_time, ramp, drive, ideal, t_decision):
     """The storage time by integrating charge control with scipy's Radau:
     ``dY/dt = H(t) - Y / tau_S`` (``Y = hFE E``) from the turn-on, with the
-    limiter's linear steal wherever ``i_C + I_d`` is above ``ideal``, and after the
-    decision ``H`` continued along its tangent there (the kernel's stated
-    linearization); the end of storage is the first ``Y = 0`` after it."""
+    limiter's linear steal wherever ``i_C + I_d`` is above ``ideal``, and after
+    the decision ``H`` continued along its tangent there (the kernel's stated
+    linearization); the end of storage is the first ``Y = 0`` after it.
+    ``ramp(t)`` gives the collector current and its rate (the R L rise,
+    checked in ``test_ramp_is_the_rl_rise``), ``drive(t)`` the drive current."""
     from scipy.integrate import solve_ivp
 
     kappa = gain / (1.0 + gain / hfe)
-    transit = hfe * transit_time * slope
+    step = 1e-5 * t_decision
 
     def held(t):
-        drive = amplitude * np.exp(-t / tau) + offset
-        collector = i0 + slope * t
-        return hfe * drive - max(kappa * (collector + drive - ideal), 0.0) - collector - transit
+        (collector, slope), current = ramp(t), drive(t)
+        return (hfe * current - max(kappa * (collector + current - ideal), 0.0) - collector
+                - hfe * transit_time * slope)
 
-    step = 1e-6 * t_decision
-    rate = (held(t_decision) - held(t_decision - step)) / step
+    rate = (held(t_decision + step) - held(t_decision - step)) / (2 * step)
 
     def rhs(t, y):
         h = held(t) if t <= t_decision else held(t_decision) + rate * (t - t_decision)
@@ -49,23 +49,33 @@ def _storage_by_integration(hfe, slope, i0, gain, tau_s, tau, transit_time, ampl
     return float(after.t_events[0][0]) - t_decision
 
 
-@pytest.mark.parametrize("stolen", [False, True])
-def test_storage_time_is_charge_control_integrated(stolen):
-    """``storage_time``: the excess charge the base current leaves over the
-    on-time (closed-form convolution with ``e^(-t/tau_S)``) and its drain after
-    the decision (bracketed root) against scipy's Radau integration of the
-    same charge-control law (Moll 1954; Hairer & Wanner, *Solving Ordinary
-    Differential Equations II*, 1996, sec. IV.8)."""
+def _storage_cases(stolen):
+    """Random on-times: (point row, constants, first, second, offset, ideal,
+    t_decision) with the decision ``hFE i_B = i_C`` at ``t_decision``."""
     rng = np.random.default_rng(7 + stolen)
-    for _ in range(12):
+    cases = []
+    while len(cases) < 12:
         hfe, gain = rng.uniform(8, 60), rng.uniform(1, 40)
         tau_s, tau = 10 ** rng.uniform(-6.8, -5.5), 10 ** rng.uniform(-5.5, -3.5)
         slope, i0 = 10 ** rng.uniform(4, 6), rng.uniform(-0.05, 0.1)
+        loop_rate = 10 ** rng.uniform(1, 4.5)
         t_decision = 10 ** rng.uniform(-6, -4.7)
-        amplitude, offset = 10 ** rng.uniform(-2.5, -0.5), rng.uniform(-1e-3, 1e-3)
-        collector = i0 + slope * t_decision
-        drive = amplitude * np.exp(-t_decision / tau) + offset
-        # the decision: hFE i_B = i_C there (with the steal, ideal from it)
+        # the drive of _point: I_0 e^(-t/tau) - C_b rho s0 (e^(-lambda t) -
+        # e^(-t/tau)) / (1 - lambda tau), rho the volts the base loop loses per
+        # ampere of ramp
+        opened, capacitance, sag = (10 ** rng.uniform(-2.5, -0.5), 10 ** rng.uniform(-8, -6),
+                                    10 ** rng.uniform(0, 1.3))
+        second = -capacitance * sag * (slope - loop_rate * i0) / (1.0 - loop_rate * tau)
+        first = opened - second
+        offset = rng.uniform(-1e-3, 1e-3)
+        p = np.zeros(len(kernel.POINT_NAMES))
+        c = np.zeros(len(kernel.CONSTANT_NAMES))
+        p[kernel.P_HFE], p[kernel.P_SLOPE], p[kernel.P_I0] = hfe, slope, i0
+        p[kernel.P_STEAL_GAIN] = gain
+        c[kernel.C_STORAGE_CONSTANT], c[kernel.C_TAU_ON] = tau_s, tau
+        c[kernel.C_TRANSIT_TIME], c[kernel.C_LOOP_RATE] = 1e-8, loop_rate
+        collector, _ = kernel._ramp(p, c, t_decision)
+        drive, _ = kernel._drive(c, first, second, offset, t_decision)
         if stolen:
             kappa = gain / (1.0 + gain / hfe)
             ideal = ((1.0 + kappa) * collector - (hfe - kappa) * drive) / kappa
@@ -73,18 +83,47 @@ def test_storage_time_is_charge_control_integrated(stolen):
                 continue
         else:
             ideal = 10.0 * (collector + drive)
-        p = np.zeros(len(kernel.POINT_NAMES))
-        c = np.zeros(len(kernel.CONSTANT_NAMES))
-        p[kernel.P_HFE], p[kernel.P_SLOPE], p[kernel.P_I0] = hfe, slope, i0
-        p[kernel.P_STEAL_GAIN] = gain
-        c[kernel.C_STORAGE_CONSTANT], c[kernel.C_TAU_ON] = tau_s, tau
-        c[kernel.C_TRANSIT_TIME] = 1e-8
-        got = kernel.storage_time(p, c, amplitude, offset, ideal, t_decision)
-        want = _storage_by_integration(hfe, slope, i0, gain, tau_s, tau, 1e-8, amplitude,
-                                       offset, ideal, t_decision)
-        # measured: within 2.4e-7 relative of the integration (its tolerance and
+        cases.append((p, c, first, second, offset, ideal, t_decision))
+    return cases
+
+
+@pytest.mark.parametrize("stolen", [False, True])
+def test_storage_time_is_charge_control_integrated(stolen):
+    """``storage_time``: the excess charge the base current leaves over the
+    on-time (closed-form convolution with ``e^(-t/tau_S)``) and its drain after
+    the decision (bracketed root) against scipy's Radau integration of the
+    same charge-control law (Moll 1954; Hairer & Wanner, *Solving Ordinary
+    Differential Equations II*, 1996, sec. IV.8), on an R L ramp and a drive
+    of two exponentials."""
+    for p, c, first, second, offset, ideal, t_decision in _storage_cases(stolen):
+        got = kernel.storage_time(p, c, first, second, offset, ideal, t_decision)
+        want = _storage_by_integration(
+            p[kernel.P_HFE], p[kernel.P_STEAL_GAIN], c[kernel.C_STORAGE_CONSTANT],
+            c[kernel.C_TRANSIT_TIME], lambda t: kernel._ramp(p, c, t),
+            lambda t: kernel._drive(c, first, second, offset, t)[0], ideal, t_decision)
+        # measured: within 5.3e-10 relative of the integration (its tolerance and
         # the finite-difference tangent)
-        assert got == pytest.approx(want, rel=1e-5, abs=0), (got, want)
+        assert got == pytest.approx(want, rel=1e-8, abs=0), (got, want)
+
+
+def test_ramp_is_the_rl_rise():
+    """``_ramp``: the R L rise ``i0 + (s - lambda i0)(1 - e^(-lambda t))/lambda``
+    solves ``L di/dt = V - R i`` (Nilsson & Riedel, *Electric Circuits*, 10th
+    ed., 2015, sec. 7.1, the step response of an R L circuit); ``_ramp_time``
+    inverts it and is infinite beyond the asymptote ``V / R``."""
+    inductance, resistance, voltage, start = 2e-3, 6.5, 120.0, 0.05
+    p = np.zeros(len(kernel.POINT_NAMES))
+    c = np.zeros(len(kernel.CONSTANT_NAMES))
+    p[kernel.P_SLOPE], p[kernel.P_I0] = voltage / inductance, start
+    c[kernel.C_LOOP_RATE] = resistance / inductance
+    for t in (1e-7, 3e-6, 4e-5, 1e-3):
+        current, rate = kernel._ramp(p, c, t)
+        exact = voltage / resistance - (voltage / resistance - start) * np.exp(
+            -resistance * t / inductance)
+        assert current == pytest.approx(exact, rel=1e-13)
+        assert rate == pytest.approx((voltage - resistance * current) / inductance, rel=1e-11)
+        assert kernel._ramp_time(p, c, current) == pytest.approx(t, rel=1e-9)
+    assert kernel._ramp_time(p, c, 1.0001 * voltage / resistance) == np.inf
 
 
 def test_demagnetization_time_is_the_library_formula():
@@ -345,8 +384,9 @@ def test_plateau_starts_at_the_bottom_of_the_ripple_against_scipy():
 
 
 def test_drive_capacitor_with_the_emitter_rising_against_scipy(monkeypatch):
-    # the on-time drive: C_b dv/dt = (V_on - R_s (i0 + s t) - v) / (R_b + r_bb), the
-    # emitter riding on the sense resistor; the kernel's closed form for the
+    # the on-time drive: C_b dv/dt = (V_on - rho i(t) - v) / (R_b + r_bb), the
+    # emitter riding on the sense resistor and the winding losing its share of
+    # the primary loop's drop on the R L ramp i(t); the kernel's closed form for the
     # capacitor at turn-off against scipy's Radau IIA on the standby case at
     # 85 V and on a lock-up pulse of the 5 V case at 48 V (where R_s I_pk is a
     # tenth of the drive)
@@ -380,9 +420,23 @@ def test_drive_capacitor_with_the_emitter_rising_against_scipy(monkeypatch):
         rs, rb, cb = c[kernel.C_RS], c[kernel.C_RB_ON], c[kernel.C_CB]
         assert rb == design.drive.resistance + devices.SWITCH_BASE_RESISTANCE
         slope, i0, v_on = p[kernel.P_SLOPE], p[kernel.P_I0], p[kernel.P_V_ON]
+        # the primary loop: winding, saturated switch and sense resistor make
+        # the ramp an R L rise (Nilsson & Riedel, Electric Circuits, 10th ed.,
+        # 2015, sec. 7.1); the base loop loses the emitter's rise and the
+        # feedback winding's share of the loop's drop
+        loop = (design.transformer.primary_resistance + devices.SWITCH_SATURATION_RESISTANCE
+                + rs)
+        total = design.transformer.magnetizing_inductance \
+            + design.transformer.leakage_inductance
+        assert c[kernel.C_LOOP_RATE] == pytest.approx(loop / total, rel=1e-15)
+        turns = design.transformer.feedback_turns / design.transformer.primary_turns
+        sag = rs + turns * design.transformer.magnetizing_inductance / total * loop
+        assert c[kernel.C_DRIVE_SAG] == pytest.approx(sag, rel=1e-15)
+        final = slope * total / loop
 
         def rhs(t, v):
-            return [(v_on - rs * (i0 + slope * t) - v[0]) / (rb * cb)]
+            current = final - (final - i0) * np.exp(-loop * t / total)
+            return [(v_on - sag * current - v[0]) / (rb * cb)]
 
         solution = solve_ivp(rhs, (0.0, out["t_on"]), [p[kernel.P_VC0]], method="Radau",
                              rtol=1e-12, atol=1e-12)

@@ -250,8 +250,9 @@ NODE_LEAK_CONDUCTANCE = 1e-12
 #: Base spreading resistance of the switch [ohm] (shared with the cycle model,
 #: :data:`rcc.devices.SWITCH_BASE_RESISTANCE`)
 SWITCH_BASE_RESISTANCE = devices.SWITCH_BASE_RESISTANCE
-#: Collector-emitter resistance added to Vce,sat in saturation [ohm]  # common practice
-SWITCH_SATURATION_RESISTANCE = 0.2
+#: Collector-emitter resistance added to Vce,sat in saturation [ohm] (shared
+#: with the cycle model, :data:`rcc.devices.SWITCH_SATURATION_RESISTANCE`)
+SWITCH_SATURATION_RESISTANCE = devices.SWITCH_SATURATION_RESISTANCE
 #: Series resistance of the base-emitter reverse breakdown [ohm]  # common practice
 BREAKDOWN_RESISTANCE = 5.0
 #: Limiter base resistance, saturation voltage and resistance  # common practice
