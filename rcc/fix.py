@@ -30,8 +30,8 @@ from rcc.findings import NOT_STARTING
 from rcc.margins import Evaluation, evaluate
 from rcc.spread import evaluate_many
 
-__all__ = ["Adjustable", "ADJUSTABLE", "Suggestion", "FixResult", "suggest_fixes",
-           "SCAN_FACTORS", "RANGE_FACTOR", "NOT_RUNNING"]
+__all__ = ["Adjustable", "ADJUSTABLE", "Suggestion", "FixResult", "EngineCheck",
+           "suggest_fixes", "engine_checks", "SCAN_FACTORS", "RANGE_FACTOR", "NOT_RUNNING"]
 
 
 @dataclass(frozen=True)
@@ -122,6 +122,42 @@ class Suggestion:
 
 
 @dataclass(frozen=True)
+class EngineCheck:
+    """What the engine from power-on adds to the fast check of one design.
+
+    The search decides with the fast check (cycle model and small-signal
+    start-up); the engine's start-up analysis (start into full load at the
+    worst corner) and its start-up stresses (the first cycles at the highest
+    line, :func:`rcc.verification.startup_stress`) are run on the design and on
+    the best changes only.
+
+    Attributes
+    ----------
+    label : str
+        ``"design"``, ``"best single change"`` or ``"best pair"``.
+    changes : dict
+        ``{"section.key": "value with unit"}`` (empty for the design).
+    verdict : str
+        Verdict of the check with the engine.
+    failing : tuple of str
+        Failing finding codes with the engine.
+    added : tuple of dict
+        Findings the engine raises or makes worse than the fast check:
+        ``{"code", "severity", "value", "limit", "unit", "margin"}`` [SI].
+    """
+
+    label: str
+    changes: dict
+    verdict: str
+    failing: tuple
+    added: tuple
+
+    def to_json(self) -> dict:
+        return {"label": self.label, "changes": self.changes, "verdict": self.verdict,
+                "failing": list(self.failing), "added": list(self.added)}
+
+
+@dataclass(frozen=True)
 class FixResult:
     """Result of :func:`suggest_fixes`.
 
@@ -138,6 +174,9 @@ class FixResult:
     best_single, best_pair : Suggestion or None
     evaluations : int
         Full checks run [-].
+    engine : tuple of EngineCheck
+        The design and its best changes checked with the engine from power-on
+        (:func:`engine_checks`); empty where not run.
     """
 
     title: str
@@ -147,6 +186,7 @@ class FixResult:
     best_single: Suggestion | None
     best_pair: Suggestion | None
     evaluations: int
+    engine: tuple = ()
 
     def to_json(self) -> dict:
         return {"title": self.title, "verdict": self.original.verdict,
@@ -157,6 +197,7 @@ class FixResult:
                 "best_single": self.best_single.to_json() if self.best_single else None,
                 "best_pair": self.best_pair.to_json() if self.best_pair else None,
                 "evaluations": self.evaluations,
+                "engine": [check.to_json() for check in self.engine],
                 "method": "preferred values of IEC 60063 (E24 resistors and voltages, "
                           "E12 capacitors, whole turns); each change checked in full"}
 
@@ -382,3 +423,64 @@ def _best_pair(design, adjustables, singles, suggestions, original, workers, pro
     changes, e = min(scored, key=lambda item: _better_key(item[1]))
     return _suggestion("best-pair", changes, design, adjustables, e,
                        _better_key(e) < _better_key(original))
+
+
+def engine_checks(design: Design, result: FixResult,
+                  progress: Callable[[int, int], None] | None = None
+                  ) -> tuple[EngineCheck, ...]:
+    """The design and its best single change and pair, checked with the engine
+    from power-on (:func:`rcc.analysis.full_check` with ``startup_engine``).
+
+    The search itself runs the fast check; the start-up stresses of the first
+    cycles and the start into full load are the engine's and would cost
+    seconds per searched value.  This says, for the changes the search
+    recommends, what the engine adds: a finding the fast check does not see
+    (for example core saturation in the first cycles after power-on) is not
+    cleared by a change that was not searched for it.
+
+    Parameters
+    ----------
+    design : Design
+        The design [-].
+    result : FixResult
+        From :func:`suggest_fixes` on the same design [-].
+    progress : callable, optional
+        ``progress(done, total)`` after each design [-].
+
+    Returns
+    -------
+    tuple of EngineCheck
+    """
+    from rcc.analysis import full_check
+
+    fast = {f.code: f for f in result.original.findings}
+    todo = [(label, suggestion) for label, suggestion in (
+        ("design", None), ("best single change", result.best_single),
+        ("best pair", result.best_pair)) if label == "design" or suggestion is not None]
+    checks = []
+    for label, suggestion in todo:
+        if progress is not None:
+            progress(len(checks), len(todo))
+        variant = design if suggestion is None else design.with_values(suggestion.changes)
+        own = fast if suggestion is None else {f.code: f for f in
+                                               suggestion.evaluation.findings}
+        report = full_check(variant, startup_engine=True)
+        added = []
+        for finding in report.findings:
+            if finding.severity not in ("fail", "warn"):
+                continue
+            before = own.get(finding.code)
+            worse = before is None or before.severity != finding.severity or (
+                finding.margin is not None and before.margin is not None
+                and finding.margin < before.margin - 1e-9)
+            if worse:
+                added.append({"code": finding.code, "severity": finding.severity,
+                              "value": finding.value, "limit": finding.limit,
+                              "unit": finding.unit, "margin": finding.margin})
+        failing = tuple(f.code for f in report.findings if f.severity == "fail")
+        checks.append(EngineCheck(label, {} if suggestion is None else dict(suggestion.texts),
+                                  "fail" if failing else (
+                                      "warn" if any(f.severity == "warn"
+                                                    for f in report.findings) else "pass"),
+                                  failing, tuple(added)))
+    return tuple(checks)

@@ -695,12 +695,15 @@ def _grid(design, lines=6, loads=7):
 
 @pytest.mark.parametrize("name", sorted(_worked_designs()))
 def test_cycle_bcm_points_follow_the_flyback_relations(name):
-    """In boundary conduction the cycle is the ramp ``Lt (Ipk - I0) / (Vbus -
-    Vce_sat)`` from the (negative, ring) turn-on current I0 (v = L di/dt) plus
-    at most the turn-off transition, the demagnetization ``Lm Ipk / V_R``
-    [IJ02] and a turn-on delay of at most half a ring period ``pi sqrt(Lm C)``
-    (valley turn-on, common practice)."""
+    """In boundary conduction the cycle is the ramp from the (negative, ring)
+    turn-on current I0 to Ipk, an R L rise ``(Lt/R) ln((V - R I0)/(V - R Ipk))``
+    with ``V = Vbus - Vce_sat`` and ``R`` the primary loop (winding, saturated
+    switch, sense resistor; Nilsson & Riedel, *Electric Circuits*, 10th ed.,
+    2015, sec. 7.1), plus at most the turn-off transition, the demagnetization
+    ``Lm Ipk / V_R`` [IJ02] and a turn-on delay of at most half a ring period
+    ``pi sqrt(Lm C)`` (valley turn-on, common practice)."""
     from rcc.cycle import operating_points
+    from rcc.devices import SWITCH_SATURATION_RESISTANCE
 
     design = _worked_designs()[name]
     points = operating_points(design, *_grid(design))
@@ -708,8 +711,15 @@ def test_cycle_bcm_points_follow_the_flyback_relations(name):
     assert np.count_nonzero(bcm) >= 5
     tr = design.transformer
     total_inductance = tr.magnetizing_inductance + tr.leakage_inductance
-    ramp = flyback.ramp_time(total_inductance, points.peak_current - points.start_current,
-                             points.bus_voltage - design.switch.vce_sat)
+    loop = tr.primary_resistance + SWITCH_SATURATION_RESISTANCE \
+        + design.limiter.sense_resistance
+    voltage = points.bus_voltage - design.switch.vce_sat
+    ramp = total_inductance / loop * np.log((voltage - loop * points.start_current)
+                                            / (voltage - loop * points.peak_current))
+    # (the linear ramp Lt (Ipk - I0) / V is its R -> 0 limit)
+    assert np.all(ramp >= flyback.ramp_time(total_inductance,
+                                            points.peak_current - points.start_current,
+                                            voltage))
     # during the turn-off transition the node capacitance takes part of the
     # current, so the ramp covers the on-time less at most that transition
     extra = (points.on_time - ramp)[bcm]

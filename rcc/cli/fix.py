@@ -23,23 +23,34 @@ def fix(
     workers: int = typer.Option(0, "--workers", min=0, help="Worker processes (0: one "
                                 "per CPU)."),
     json_output: bool = typer.Option(False, "--json", help="Print one JSON object."),
+    engine: bool = typer.Option(True, "--engine/--no-engine", help="Check the design and "
+                                "its best changes with the engine from power-on (start "
+                                "into full load, start-up stresses; seconds each)."),
     quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
 ) -> None:
     """For each failing or warning finding, the smallest change of each adjustable
     value (start-up, drive and base-emitter resistors, drive capacitor, sense
     resistor, zener, clamp, feedback turns) that clears it, as an IEC 60063
-    preferred value, checked in full; and the best single change and pair.
+    preferred value, checked in full; and the best single change and pair, with
+    what the engine from power-on adds to the design and to them.
 
     Exit code 0 when the search ran, 2 on bad input.
     """
     from rcc.cli.progress_line import Progress
-    from rcc.fix import suggest_fixes
+    from dataclasses import replace
+
+    from rcc.fix import engine_checks, suggest_fixes
 
     design = load_with_overrides(design_file, settings)
     progress = Progress("fix (full check per value)", quiet)
     try:
         result = suggest_fixes(design, workers=workers or os.cpu_count() or 1,
                                progress=progress)
+        if engine:
+            progress.close()
+            progress = Progress("fix: engine from power-on on the design and its best "
+                                "changes", quiet)
+            result = replace(result, engine=engine_checks(design, result, progress))
     finally:
         progress.close()
     if json_output:
@@ -103,6 +114,23 @@ def format_fixes(result, design_file) -> str:
             better = "the supply starts and runs, as the design does not"
         out += [f"{label}: {changes} ({better}) -> {_effect(s, original)}",
                 f"    try: rcc check {design_file} {_set_args(s)}", ""]
+    if result.engine:
+        out.append("With the engine from power-on (start into full load at the worst corner, "
+                   "the first cycles at the highest line; the search above does not see "
+                   "these):")
+        for check in result.engine:
+            changes = ", ".join(f"{k} = {v}" for k, v in check.changes.items())
+            head = check.label + (f" ({changes})" if changes else "")
+            out.append(f"    {head}: verdict {check.verdict.upper()}"
+                       + (f", fails {', '.join(check.failing)}" if check.failing else ""))
+            for item in check.added:
+                value = "" if item["value"] is None else \
+                    f" {item['value']:.4g} {item['unit']}".rstrip()
+                limit = "" if item["limit"] is None else \
+                    f" (limit {item['limit']:.4g} {item['unit']})".replace(" )", ")")
+                out.append(f"        engine adds {item['severity'].upper()} {item['code']}"
+                           f"{value}{limit}")
+        out.append("")
     out.append("The fast model decides these; confirm a chosen change with `rcc check "
                "--verify` or `rcc cycle` before building it.")
     return "\n".join(out).rstrip() + "\n"
