@@ -43,8 +43,10 @@ STEAL_GRID = 8
 #: constants [1].
 DRIVE_DECAYS = 50.0
 #: Least distance of ``1 - lambda tau`` from zero (the drive capacitor's and
-#: the primary loop's time constants equal): closer, ``lambda`` is taken that
-#: far off, a change of at most 1e-6 relative in the loop's resistance [1].
+#: the primary loop's time constants equal, where the drive's two exponentials
+#: merge): closer, the drive's coefficients take it at that distance, sign
+#: kept; the drive then differs from the exact one by about 1e-6 relative of
+#: its ramp-following part [1].
 RESONANCE_GUARD = 1e-6
 #: Relative tolerance of the on-time decision (safeguarded Newton) [1].
 DECISION_TOLERANCE = 1e-13

@@ -1024,21 +1024,18 @@ def operating_points(design: Design, line_voltage, load, temperature=None, hfe=N
 
     Notes
     -----
-    On-time: the collector current ramps at ``(V_bus - Vce_sat) / (Lm + L_lk)``
-    until the first of (a) ``hFE I_B(t)``, the base current decaying as the
-    drive capacitor charges (``I_B = (V_on - v_C0)/R_b e^(-t/(R_b C_b)) +
-    I_start - Vbe/R_be``; blocking-oscillator timing [3]_), or (b) the trip
-    current of the limiter with the regulation current (``notes/circuit.md``).
-    A limiter-ended on-time continues for the storage time of the charge-control
-    model [4]_: the excess charge ``tau_S ((I_B1 + I_B2) e^(-t/tau_S) - I_B2)``
-    decays until it equals the charge ``tau_S I_C(t) / hFE`` the still-rising
-    collector current needs (with constant ``I_C`` this is the classic
-    ``tau_S ln((I_B1 + I_B2)/(I_C/hFE + I_B2))``).  ``tau_S = storage_time /
-    ln 2`` (the datasheet storage time taken at ``I_B1 = I_B2`` and hard
-    overdrive), ``I_B1`` the base current at the decision and ``I_B2 = I_B1``
-    (the saturated limiter pulls the base below the emitter, which sits at
-    the sense voltage): the storage time approaches the datasheet value under
-    hard overdrive and shortens where the drive barely holds the current.
+    On-time: the collector current rises as the R L step of the primary loop
+    (``(V_bus - Vce_sat) / (Lm + L_lk)`` at zero current, less the drop across
+    the winding, the saturated switch and the sense resistor) until the first
+    of (a) ``hFE I_B(t)``, the base current decaying as the drive capacitor
+    charges (blocking-oscillator timing [3]_), or (b) the trip current of the
+    limiter with the regulation current (``notes/circuit.md``).  The switch
+    then stays saturated for the storage time of the charge-control model
+    [4]_: the excess charge the base current has left since the turn-on (the
+    drive, less what the limiter takes once the emitter current passes its
+    threshold) drains while the base current falls on after the decision;
+    ``tau_S = storage_time / ln 2`` (the datasheet storage time taken at
+    ``I_B1 = I_B2`` and hard overdrive; ``notes/cycle_model.md``).
     After storage the limiter holds the collector current while the collector
     rises to the bus (turn-off transition, included in the on-time; derived in
     ``notes/cycle_model.md``, charge control after Beaufoy & Sparkes 1957);
