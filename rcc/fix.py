@@ -26,7 +26,7 @@ import numpy as np
 
 from rcc.design import Design
 from rcc.eseries import preferred_values
-from rcc.findings import NOT_STARTING
+from rcc.findings import NOT_STARTING, SEVERITIES
 from rcc.margins import Evaluation, evaluate
 from rcc.spread import evaluate_many
 
@@ -470,9 +470,11 @@ def engine_checks(design: Design, result: FixResult,
             if finding.severity not in ("fail", "warn"):
                 continue
             before = own.get(finding.code)
-            worse = before is None or before.severity != finding.severity or (
-                finding.margin is not None and before.margin is not None
-                and finding.margin < before.margin - 1e-9)
+            # new, more severe (SEVERITIES runs from the worst), or a smaller margin
+            worse = before is None or (
+                SEVERITIES.index(finding.severity) < SEVERITIES.index(before.severity)) or (
+                finding.severity == before.severity and finding.margin is not None
+                and before.margin is not None and finding.margin < before.margin - 1e-9)
             if worse:
                 added.append({"code": finding.code, "severity": finding.severity,
                               "value": finding.value, "limit": finding.limit,
