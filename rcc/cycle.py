@@ -602,15 +602,13 @@ class _Cycle:
         #: base spreading resistance [ohm], and its R C [s]
         self.rb_on = dr.resistance + SWITCH_BASE_RESISTANCE
         self.tau_on = self.rb_on * dr.capacitance
-        #: the primary loop of the on-time (winding, saturated switch, sense
-        #: resistor) [ohm]: the ramp is an R L rise at ``loop_rate = R / L_t``
-        #: [1/s], and the base loop loses the feedback winding's share of the
-        #: loop's drop and the emitter's rise, ``drive_sag`` volts per ampere
-        self.loop_resistance = (tr.primary_resistance + SWITCH_SATURATION_RESISTANCE
-                                + lim.sense_resistance)
-        self.loop_rate = self.loop_resistance / self.lt
-        self.drive_sag = lim.sense_resistance \
-            + self.nb * self.lm / self.lt * self.loop_resistance
+        # the primary loop of the on-time (winding, saturated switch, sense
+        # resistor) [ohm]: the ramp is an R L rise at ``loop_rate = R / L_t``
+        # [1/s], and the base loop loses the feedback winding's share of the
+        # loop's drop and the emitter's rise, ``drive_sag`` volts per ampere
+        loop = tr.primary_resistance + SWITCH_SATURATION_RESISTANCE + lim.sense_resistance
+        self.loop_rate = loop / self.lt
+        self.drive_sag = lim.sense_resistance + self.nb * self.lm / self.lt * loop
         # storage-time constant from the datasheet storage time, measured with
         # I_B1 = I_B2 and hard overdrive: t_s = tau_S ln 2 (charge control)
         self.storage_constant = sw.storage_time / np.log(2.0)

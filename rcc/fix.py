@@ -481,8 +481,5 @@ def engine_checks(design: Design, result: FixResult,
                               "unit": finding.unit, "margin": finding.margin})
         failing = tuple(f.code for f in report.findings if f.severity == "fail")
         checks.append(EngineCheck(label, {} if suggestion is None else dict(suggestion.texts),
-                                  "fail" if failing else (
-                                      "warn" if any(f.severity == "warn"
-                                                    for f in report.findings) else "pass"),
-                                  failing, tuple(added)))
+                                  report.verdict, failing, tuple(added)))
     return tuple(checks)

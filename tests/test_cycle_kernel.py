@@ -37,6 +37,8 @@ def _storage_by_integration(hfe, gain, tau_s, transit_time, ramp, drive, ideal, 
         h = held(t) if t <= t_decision else held(t_decision) + rate * (t - t_decision)
         return [h - y[0] / tau_s]
 
+    # tight solver tolerances (the charge Y is of order 1e-8 A s): the
+    # integration's own error stays two orders under the assertion's 1e-8
     before = solve_ivp(rhs, (0.0, t_decision), [0.0], method="Radau", rtol=1e-11,
                        atol=1e-18)
     start = before.y[0, -1]
@@ -120,9 +122,12 @@ def test_ramp_is_the_rl_rise():
         current, rate = kernel._ramp(p, c, t)
         exact = voltage / resistance - (voltage / resistance - start) * np.exp(
             -resistance * t / inductance)
-        assert current == pytest.approx(exact, rel=1e-13)
-        assert rate == pytest.approx((voltage - resistance * current) / inductance, rel=1e-11)
-        assert kernel._ramp_time(p, c, current) == pytest.approx(t, rel=1e-9)
+        # measured: the current within 2.4e-14 relative (the expm1 form against
+        # the difference of exponentials), the rate and the inverse within 2.2e-16
+        assert current == pytest.approx(exact, rel=1e-13, abs=0)
+        assert rate == pytest.approx((voltage - resistance * current) / inductance, rel=1e-14,
+                                     abs=0)
+        assert kernel._ramp_time(p, c, current) == pytest.approx(t, rel=1e-13, abs=0)
     assert kernel._ramp_time(p, c, 1.0001 * voltage / resistance) == np.inf
 
 
